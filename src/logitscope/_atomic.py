@@ -1,0 +1,47 @@
+"""Atomic file writes: a reader sees the old file or the new one, never half of one."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+from typing import IO
+
+
+@contextlib.contextmanager
+def atomic_write(path: str | os.PathLike[str], mode: str = "wb") -> Iterator[IO]:
+    """Open a temporary file beside ``path``; on success fsync it and rename it over ``path``.
+
+    If the block raises, the temporary file is removed and ``path`` is untouched.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> p = pathlib.Path(tempfile.mkdtemp()) / "list.txt"
+    >>> with atomic_write(p, "w") as fh:
+    ...     _ = fh.write("kept")
+    >>> p.read_text()
+    'kept'
+    """
+    target = Path(path)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    try:
+        encoding = None if "b" in mode else "utf-8"
+        with os.fdopen(fd, mode, encoding=encoding) as fh:
+            yield fh
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, target)
+        with contextlib.suppress(OSError):  # make the rename durable where the platform allows
+            dfd = os.open(target.parent, os.O_RDONLY)
+            try:
+                os.fsync(dfd)
+            finally:
+                os.close(dfd)
+    except BaseException:
+        with contextlib.suppress(OSError):
+            os.unlink(tmp)
+        raise

@@ -1,0 +1,224 @@
+"""Input checks at the boundary of the analysis layer.
+
+Each public analysis function passes its arguments through these checks, so a
+bad argument fails with a message that names the problem instead of a
+traceback from inside numpy. A :class:`~logitscope.LogitFrame` validates its
+data once when it is built and then calls the analysis layer inside
+:func:`assume_valid`, which skips the checks that cost a pass over the matrix.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import contextvars
+import math
+from collections.abc import Iterator
+from typing import Any
+
+import numpy as np
+
+from ..errors import (
+    InputTypeError,
+    LabelError,
+    NonFiniteError,
+    ParameterError,
+    ProbabilityError,
+    ShapeError,
+    describe_rows,
+)
+
+_ASSUME_VALID: contextvars.ContextVar[bool] = contextvars.ContextVar("assume_valid", default=False)
+
+FLOAT_KINDS = "f"
+
+
+@contextlib.contextmanager
+def assume_valid() -> Iterator[None]:
+    """Skip the full-matrix checks (finite values) inside this block.
+
+    Shapes, dtypes and label ranges are still checked; only the checks that
+    read every element of the logit matrix are skipped. Use it when the data
+    was validated already, as :class:`~logitscope.LogitFrame` does.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from logitscope.analysis import accuracy
+    >>> with assume_valid():
+    ...     accuracy(np.array([[2.0, 0.0], [0.0, 1.0]]), np.array([0, 0]))
+    0.5
+    """
+    token = _ASSUME_VALID.set(True)
+    try:
+        yield
+    finally:
+        _ASSUME_VALID.reset(token)
+
+
+def _to_numpy(x: Any, what: str) -> np.ndarray:
+    if isinstance(x, np.ndarray):
+        return x
+    # torch tensors and pandas objects, without importing either
+    if hasattr(x, "detach") and hasattr(x, "cpu") and hasattr(x, "numpy"):
+        return x.detach().cpu().numpy()
+    if hasattr(x, "to_numpy"):
+        return np.asarray(x.to_numpy())
+    try:
+        return np.asarray(x)
+    except Exception as exc:  # pragma: no cover - numpy raises many kinds
+        raise InputTypeError(f"{what} could not be read as an array: {exc}") from exc
+
+
+def find_nonfinite_rows(z: np.ndarray) -> np.ndarray:
+    """Return the indices of rows of ``z`` holding NaN or infinite values.
+
+    The check sums each row in float64 (finite float16/32 values cannot
+    overflow there) and only looks closer at rows whose sum is not finite,
+    so a clean matrix costs one pass.
+
+    Examples
+    --------
+    >>> find_nonfinite_rows(np.array([[0.0, 1.0], [np.nan, 0.0], [np.inf, 1.0]]))
+    array([1, 2])
+    """
+    sums = np.add.reduce(z, axis=1, dtype=np.float64)
+    suspect = np.flatnonzero(~np.isfinite(sums))
+    if suspect.size == 0:
+        return suspect
+    bad = ~np.isfinite(z[suspect]).all(axis=1)
+    return suspect[bad]
+
+
+def check_logits(z: Any, what: str = "logits") -> np.ndarray:
+    """Return ``z`` as a 2-D floating array of shape (N, K), N >= 1, K >= 2.
+
+    Integer and boolean inputs are converted to float64; float16, float32 and
+    float64 are kept without a copy.
+
+    Raises
+    ------
+    ShapeError
+        If ``z`` is not 2-D, has no rows or fewer than two columns.
+    NonFiniteError
+        If some rows hold NaN or infinite values (the first rows are named).
+
+    Examples
+    --------
+    >>> check_logits([[1, 2], [3, 4]]).dtype
+    dtype('float64')
+    """
+    arr = _to_numpy(z, what)
+    if arr.dtype.kind not in FLOAT_KINDS:
+        if arr.dtype.kind in "biu":
+            arr = arr.astype(np.float64)
+        else:
+            raise InputTypeError(f"{what} must hold numbers, got dtype {arr.dtype}")
+    if arr.ndim != 2:
+        raise ShapeError(f"{what} must be a 2-D array of shape (n_samples, n_classes), got shape {arr.shape}")
+    n, k = arr.shape
+    if n == 0:
+        raise ShapeError(f"{what} has no rows (shape {arr.shape}); at least one sample is needed")
+    if k < 2:
+        raise ShapeError(
+            f"{what} has {k} column(s) (shape {arr.shape}); at least 2 classes are needed. "
+            "For a binary model with one logit column use LogitFrame(..., binary=True) "
+            "or logitscope.analysis.binary_to_two_column()"
+        )
+    if not _ASSUME_VALID.get():
+        bad = find_nonfinite_rows(arr)
+        if bad.size:
+            raise NonFiniteError(f"{what} hold NaN or infinite values in {bad.size} of {n} rows: {describe_rows(bad)}")
+    return arr
+
+
+def check_labels(y: Any, n_samples: int, n_classes: int, what: str = "labels") -> np.ndarray:
+    """Return ``y`` as an int64 array of class indices in ``[0, n_classes)``.
+
+    Raises
+    ------
+    LabelError
+        If the length differs from ``n_samples``, the values are not whole
+        numbers, or some are outside ``[0, n_classes)`` (the rows are named).
+
+    Examples
+    --------
+    >>> check_labels([0, 2, 1], 3, 3)
+    array([0, 2, 1])
+    """
+    arr = _to_numpy(y, what)
+    if arr.ndim != 1:
+        raise LabelError(f"{what} must be 1-D of length {n_samples}, got shape {arr.shape}")
+    if arr.shape[0] != n_samples:
+        raise LabelError(f"{what} have length {arr.shape[0]} but the logits have {n_samples} rows")
+    if arr.dtype.kind == "b":
+        raise LabelError(f"{what} must be class indices, got booleans")
+    if arr.dtype.kind == "f":
+        nonint = np.flatnonzero(~np.isfinite(arr) | (arr != np.round(arr)))
+        if nonint.size:
+            raise LabelError(f"{what} must be whole numbers; not so at {describe_rows(nonint)}")
+    elif arr.dtype.kind not in "iu":
+        raise LabelError(
+            f"{what} must be integer class indices, got dtype {arr.dtype}; "
+            "pass class names through LogitFrame(labels=..., classes=...)"
+        )
+    out = arr.astype(np.int64, copy=False)
+    bad = np.flatnonzero((out < 0) | (out >= n_classes))
+    if bad.size:
+        raise LabelError(
+            f"{what} must lie in [0, {n_classes}) for {n_classes} classes; "
+            f"out of range at {describe_rows(bad)} (values {out[bad[:5]].tolist()})"
+        )
+    return out
+
+
+def check_probabilities(p: Any, atol: float | None = None, what: str = "probabilities") -> np.ndarray:
+    """Return ``p`` as a valid (N, K) probability matrix.
+
+    Rows must be non-negative and sum to one within ``atol`` (default
+    ``1e-6`` for float64, ``1e-3`` for float32 and float16 input).
+
+    Examples
+    --------
+    >>> check_probabilities([[0.25, 0.75], [1.0, 0.0]]).shape
+    (2, 2)
+    """
+    arr = check_logits(p, what=what)
+    if atol is None:
+        atol = 1e-6 if arr.dtype == np.float64 else 1e-3
+    neg = np.flatnonzero((arr < 0).any(axis=1))
+    if neg.size:
+        raise ProbabilityError(f"{what} must be non-negative; negative values at {describe_rows(neg)}")
+    sums = np.add.reduce(arr, axis=1, dtype=np.float64)
+    off = np.flatnonzero(np.abs(sums - 1.0) > atol)
+    if off.size:
+        raise ProbabilityError(
+            f"{what} rows must sum to 1 (tolerance {atol:g}); "
+            f"{off.size} rows do not, first {describe_rows(off)} (sums {np.round(sums[off[:3]], 6).tolist()})"
+        )
+    return arr
+
+
+def check_temperature(temperature: Any) -> float:
+    """Return ``temperature`` as a positive finite float.
+
+    Examples
+    --------
+    >>> check_temperature(2)
+    2.0
+    """
+    try:
+        t = float(temperature)
+    except (TypeError, ValueError) as exc:
+        raise InputTypeError(f"temperature must be a number, got {temperature!r}") from exc
+    if not math.isfinite(t) or t <= 0:
+        raise ParameterError(f"temperature must be positive and finite, got {temperature!r}")
+    return t
+
+
+def check_k(k: int, n_classes: int, what: str = "k") -> int:
+    """Return ``k`` if ``1 <= k <= n_classes``."""
+    if isinstance(k, bool) or not isinstance(k, int | np.integer):
+        raise InputTypeError(f"{what} must be an integer, got {k!r}")
+    if not 1 <= int(k) <= n_classes:
+        raise ParameterError(f"{what} must lie in [1, {n_classes}] for {n_classes} classes, got {k}")
+    return int(k)

@@ -1,0 +1,203 @@
+"""Ranking samples whose given label is likely wrong.
+
+Three rankings, each returning row indices most-suspect first with a score
+(lower score = more suspect):
+
+- ``self_confidence``: ``p_y``, the probability the model gives the label;
+- ``normalized_margin``: ``p_y - max_{k != y} p_k`` (both from Northcutt,
+  Jiang and Chuang 2021, "Confident Learning: Estimating Uncertainty in
+  Dataset Labels", Section 3.2 ranking options);
+- ``confident_learning``: the off-diagonal of the *confident joint* of the
+  same paper. Each class ``j`` gets the threshold ``t_j`` = mean of ``p_j``
+  over the samples labelled ``j``; a sample counts for class ``j`` when
+  ``p_j >= t_j``, the largest such ``p_j`` deciding between several. Samples
+  labelled ``y`` that count for some ``j != y`` are flagged, ranked by
+  normalised margin.
+
+The probabilities should be out-of-sample (cross-validated), as the paper
+assumes; in-sample probabilities hide label errors that the model memorised.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Literal
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from ..errors import ParameterError
+from ._blocks import as_float64_block, block_slices
+from ._validation import assume_valid, check_labels, check_logits, check_temperature
+from .scores import sample_scores
+
+__all__ = ["LabelIssueRanking", "confident_joint", "per_class_thresholds_cl", "rank_label_issues"]
+
+Method = Literal["self_confidence", "normalized_margin", "confident_learning"]
+
+
+@dataclass(frozen=True)
+class LabelIssueRanking:
+    """Rows ordered most-suspect first, with their scores and suggested labels."""
+
+    method: str
+    index: np.ndarray
+    score: np.ndarray
+    suggested: np.ndarray
+
+    def __len__(self) -> int:
+        return int(self.index.shape[0])
+
+    def top(self, n: int) -> LabelIssueRanking:
+        """The first ``n`` rows of the ranking."""
+        return LabelIssueRanking(self.method, self.index[:n], self.score[:n], self.suggested[:n])
+
+
+def _probs_block(z: np.ndarray, rows: slice, beta: float) -> np.ndarray:
+    b = as_float64_block(z, rows, beta)
+    b -= b.max(axis=1, keepdims=True)
+    np.exp(b, out=b)
+    b /= b.sum(axis=1, keepdims=True)
+    return b
+
+
+def per_class_thresholds_cl(logits: ArrayLike, labels: ArrayLike, temperature: float = 1.0) -> np.ndarray:
+    """Confident-learning thresholds ``t_j = mean(p_j | y = j)`` (NaN for an absent class).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> z = np.log(np.array([[0.8, 0.2], [0.6, 0.4], [0.3, 0.7]]))
+    >>> per_class_thresholds_cl(z, [0, 0, 1]).round(3)
+    array([0.7, 0.7])
+    """
+    z = check_logits(logits)
+    n, k = z.shape
+    y = check_labels(labels, n, k)
+    beta = 1.0 / check_temperature(temperature)
+    total = np.zeros(k)
+    for rows in block_slices(n, k):
+        p = _probs_block(z, rows, beta)
+        yr = y[rows]
+        total += np.bincount(yr, weights=p[np.arange(p.shape[0]), yr], minlength=k)
+    count = np.bincount(y, minlength=k)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return total / count
+
+
+def _confident_assignment(z: np.ndarray, y: np.ndarray, beta: float, thresholds: np.ndarray) -> np.ndarray:
+    """Class each row confidently counts for, or -1 where no ``p_j >= t_j``."""
+    n, k = z.shape
+    assigned = np.full(n, -1, dtype=np.int64)
+    thr = np.where(np.isnan(thresholds), np.inf, thresholds)
+    for rows in block_slices(n, k):
+        p = _probs_block(z, rows, beta)
+        above = np.where(p >= thr[None, :] - 1e-12, p, -1.0)
+        j = above.argmax(axis=1)
+        has = above[np.arange(p.shape[0]), j] >= 0
+        assigned[rows] = np.where(has, j, -1)
+    return assigned
+
+
+def confident_joint(logits: ArrayLike, labels: ArrayLike, temperature: float = 1.0) -> np.ndarray:
+    """The confident joint ``C[i, j]``: samples labelled ``i`` that confidently count for ``j``.
+
+    Rows of samples that count for no class are left out (Northcutt et al. 2021, Eq. 1).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> z = np.log(np.array([[0.8, 0.2], [0.6, 0.4], [0.3, 0.7], [0.1, 0.9]]))
+    >>> confident_joint(z, [0, 0, 1, 0]).tolist()
+    [[2, 1], [0, 1]]
+    """
+    z = check_logits(logits)
+    n, k = z.shape
+    y = check_labels(labels, n, k)
+    t = check_temperature(temperature)
+    with assume_valid():
+        assigned = _confident_assignment(z, y, 1.0 / t, per_class_thresholds_cl(z, y, t))
+    m = assigned >= 0
+    return np.bincount(y[m] * k + assigned[m], minlength=k * k).reshape(k, k)
+
+
+def rank_label_issues(
+    logits: ArrayLike,
+    labels: ArrayLike,
+    method: Method = "confident_learning",
+    temperature: float = 1.0,
+) -> LabelIssueRanking:
+    """Rank samples by how likely their label is wrong, most suspect first.
+
+    Parameters
+    ----------
+    logits : array_like of shape (N, K)
+        Preferably out-of-sample (cross-validated) logits.
+    labels : array_like of shape (N,)
+    method : {"confident_learning", "self_confidence", "normalized_margin"}
+        ``self_confidence`` and ``normalized_margin`` rank every sample;
+        ``confident_learning`` returns only the flagged ones.
+    temperature : float
+        Softmax temperature.
+
+    Returns
+    -------
+    LabelIssueRanking
+        ``suggested`` is the model's most probable class other than the label.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> z = np.log(np.array([[0.8, 0.2], [0.6, 0.4], [0.3, 0.7], [0.1, 0.9]]))
+    >>> r = rank_label_issues(z, [0, 0, 1, 0])
+    >>> r.index.tolist(), r.suggested.tolist()
+    ([3], [1])
+    """
+    z = check_logits(logits)
+    n, k = z.shape
+    y = check_labels(labels, n, k)
+    t = check_temperature(temperature)
+    with assume_valid():
+        s = sample_scores(z, y, temperature=t)
+    assert s.true_probability is not None and s.correct is not None
+    second = s.confidence - s.margin  # the runner-up probability
+    best_other = np.where(s.correct, second, s.confidence)
+    nm = s.true_probability - best_other
+    # most probable class other than the label: the prediction, or the runner-up when the prediction is y
+    suggested = s.predicted.copy()
+    if np.any(s.correct):
+        rows = np.flatnonzero(s.correct)
+        with assume_valid():
+            suggested[rows] = _runner_up(z[rows])
+    if method == "self_confidence":
+        score = s.true_probability
+        idx = np.argsort(score, kind="stable")
+    elif method == "normalized_margin":
+        score = nm
+        idx = np.argsort(score, kind="stable")
+    elif method == "confident_learning":
+        with assume_valid():
+            thr = per_class_thresholds_cl(z, y, t)
+            assigned = _confident_assignment(z, y, 1.0 / t, thr)
+        flagged = np.flatnonzero((assigned >= 0) & (assigned != y))
+        order = np.argsort(nm[flagged], kind="stable")
+        idx = flagged[order]
+        score = nm
+        suggested = suggested.copy()
+        suggested[flagged] = assigned[flagged]
+    else:
+        raise ParameterError(
+            f"method must be 'confident_learning', 'self_confidence' or 'normalized_margin', got {method!r}"
+        )
+    return LabelIssueRanking(method=method, index=idx, score=score[idx], suggested=suggested[idx])
+
+
+def _runner_up(z: np.ndarray) -> np.ndarray:
+    """Index of the second-largest logit of each row."""
+    out = np.empty(z.shape[0], dtype=np.int64)
+    for rows in block_slices(*z.shape):
+        b = np.array(z[rows], dtype=np.float64)
+        r = np.arange(b.shape[0])
+        b[r, b.argmax(axis=1)] = -np.inf
+        out[rows] = b.argmax(axis=1)
+    return out

@@ -1,0 +1,337 @@
+"""Selective prediction: accept confident predictions, send the rest to a person.
+
+A threshold ``t`` accepts the samples with ``confidence >= t``. Its
+*coverage* is the accepted fraction and its *selective risk* the error rate
+among them (Geifman and El-Yaniv 2017, "Selective Classification for Deep
+Neural Networks"). The risk-coverage curve traces both over every threshold;
+the area under it (AURC, Geifman, Uziel and El-Yaniv 2019, "Bias-Reduced
+Uncertainty Estimation for Deep Neural Classifiers") summarises a confidence
+score's ranking quality.
+
+Caution: a threshold chosen on one sample holds only for data like it.
+Validate it on held-out data before use, and where errors can hurt people
+(medical triage, vehicles) follow local regulation and licensed practice.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from typing import Literal
+
+import numpy as np
+from numpy.typing import ArrayLike
+from scipy import stats
+
+from ..errors import ParameterError, ShapeError
+
+__all__ = [
+    "CAUTION",
+    "RiskCoverage",
+    "ThresholdChoice",
+    "aurc",
+    "binomial_interval",
+    "evaluate_threshold",
+    "per_class_thresholds",
+    "risk_coverage_curve",
+    "threshold_for_accuracy",
+    "threshold_for_cost",
+]
+
+IntervalMethod = Literal["wilson", "clopper-pearson"]
+
+#: The caution shown beside every threshold decision.
+CAUTION = (
+    "A threshold fitted on one sample holds only for data like it. Validate it on held-out "
+    "data before use, and for medical, vehicle or other safety uses follow local regulation "
+    "and licensed practice."
+)
+
+
+def _check_pair(confidence: ArrayLike, correct: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
+    conf = np.asarray(confidence, dtype=np.float64)
+    ok = np.asarray(correct)
+    if conf.ndim != 1 or ok.shape != conf.shape:
+        raise ShapeError(f"confidence and correct must be 1-D of one length, got {conf.shape} and {ok.shape}")
+    if conf.size == 0:
+        raise ShapeError("at least one sample is needed")
+    if np.any(~np.isfinite(conf)):
+        raise ParameterError("confidence holds NaN or infinite values")
+    return conf, ok.astype(bool)
+
+
+@dataclass(frozen=True)
+class RiskCoverage:
+    """The risk-coverage curve at every distinct threshold, most confident first.
+
+    ``threshold[i]`` accepts ``n_accepted[i]`` samples with ``n_errors[i]``
+    errors among them. Tied confidences are accepted or refused together.
+    """
+
+    threshold: np.ndarray
+    n_accepted: np.ndarray
+    n_errors: np.ndarray
+    n_total: int
+
+    @property
+    def coverage(self) -> np.ndarray:
+        return self.n_accepted / self.n_total
+
+    @property
+    def risk(self) -> np.ndarray:
+        return self.n_errors / self.n_accepted
+
+    @property
+    def accuracy(self) -> np.ndarray:
+        return 1.0 - self.risk
+
+
+def risk_coverage_curve(confidence: ArrayLike, correct: ArrayLike) -> RiskCoverage:
+    """Selective risk and coverage at each distinct confidence threshold.
+
+    Examples
+    --------
+    >>> rc = risk_coverage_curve([0.9, 0.8, 0.8, 0.6], [1, 1, 0, 0])
+    >>> rc.threshold.tolist(), rc.n_accepted.tolist(), rc.n_errors.tolist()
+    ([0.9, 0.8, 0.6], [1, 3, 4], [0, 1, 2])
+    """
+    conf, ok = _check_pair(confidence, correct)
+    order = np.argsort(-conf, kind="stable")
+    c = conf[order]
+    errors = np.cumsum(~ok[order])
+    # last index of each run of equal confidence
+    last = np.flatnonzero(np.r_[c[1:] != c[:-1], True])
+    return RiskCoverage(threshold=c[last], n_accepted=last + 1, n_errors=errors[last], n_total=conf.size)
+
+
+def aurc(confidence: ArrayLike, correct: ArrayLike) -> float:
+    """Area under the risk-coverage curve, ``(1/N) sum_{n=1}^{N} errors(n) / n``.
+
+    ``errors(n)`` counts the errors among the ``n`` most confident samples
+    (Geifman, Uziel and El-Yaniv 2019). Ties in confidence are ordered
+    pessimistically (errors first) so that the value cannot flatter a score
+    that does not separate them.
+
+    Examples
+    --------
+    >>> round(aurc([0.9, 0.8, 0.7, 0.6], [1, 1, 0, 0]), 6)  # (0 + 0 + 1/3 + 2/4) / 4
+    0.208333
+    """
+    conf, ok = _check_pair(confidence, correct)
+    order = np.lexsort((ok, -conf))  # by confidence descending, errors (False) first among ties
+    errors = np.cumsum(~ok[order])
+    return float(np.mean(errors / np.arange(1, conf.size + 1)))
+
+
+def binomial_interval(
+    successes: int, trials: int, level: float = 0.95, method: IntervalMethod = "wilson"
+) -> tuple[float, float]:
+    """Two-sided confidence interval for a binomial proportion.
+
+    ``"wilson"`` is the Wilson (1927) score interval; ``"clopper-pearson"``
+    the exact interval of Clopper and Pearson (1934) from beta quantiles.
+    With no trials the interval is ``(0, 1)``.
+
+    Examples
+    --------
+    >>> [round(v, 4) for v in binomial_interval(8, 10)]
+    [0.4902, 0.9433]
+    """
+    if not 0 < level < 1:
+        raise ParameterError(f"level must lie in (0, 1), got {level!r}")
+    k, n = int(successes), int(trials)
+    if n < 0 or not 0 <= k <= max(n, 0):
+        raise ParameterError(f"need 0 <= successes <= trials, got {k} of {n}")
+    if n == 0:
+        return 0.0, 1.0
+    alpha = 1.0 - level
+    if method == "wilson":
+        zc = float(stats.norm.ppf(1 - alpha / 2))
+        phat = k / n
+        denom = 1 + zc * zc / n
+        centre = (phat + zc * zc / (2 * n)) / denom
+        half = zc * np.sqrt(phat * (1 - phat) / n + zc * zc / (4 * n * n)) / denom
+        return float(max(0.0, centre - half)), float(min(1.0, centre + half))
+    if method == "clopper-pearson":
+        lo = 0.0 if k == 0 else float(stats.beta.ppf(alpha / 2, k, n - k + 1))
+        hi = 1.0 if k == n else float(stats.beta.ppf(1 - alpha / 2, k + 1, n - k))
+        return lo, hi
+    raise ParameterError(f"method must be 'wilson' or 'clopper-pearson', got {method!r}")
+
+
+@dataclass(frozen=True)
+class ThresholdChoice:
+    """A confidence threshold and what it does to the data it was chosen on.
+
+    ``feasible`` is False when no threshold reaches the asked-for target;
+    the threshold then accepts nothing.
+    """
+
+    threshold: float
+    coverage: float
+    accuracy: float
+    n_accepted: int
+    n_review: int
+    n_total: int
+    interval: tuple[float, float]
+    interval_method: str
+    level: float
+    rule: str
+    feasible: bool = True
+    expected_cost: float | None = None
+    caution: str = field(default=CAUTION, repr=False)
+
+    def to_dict(self) -> dict[str, object]:
+        """A JSON-ready dict (NaN accuracy becomes None)."""
+        acc = None if np.isnan(self.accuracy) else self.accuracy
+        return {
+            "value": self.threshold if np.isfinite(self.threshold) else None,
+            "coverage": self.coverage,
+            "accuracy": acc,
+            "interval": list(self.interval),
+            "interval_method": self.interval_method,
+            "level": self.level,
+            "n_accepted": self.n_accepted,
+            "n_review": self.n_review,
+            "rule": self.rule,
+            "feasible": self.feasible,
+            "expected_cost": self.expected_cost,
+        }
+
+
+def _choice(
+    threshold: float, n_acc: int, n_err: int, n: int, level: float, method: IntervalMethod, rule: str,
+    feasible: bool = True, cost: float | None = None,
+) -> ThresholdChoice:  # fmt: skip
+    right = n_acc - n_err
+    acc = right / n_acc if n_acc else float("nan")
+    return ThresholdChoice(
+        threshold=float(threshold), coverage=n_acc / n, accuracy=acc, n_accepted=int(n_acc),
+        n_review=int(n - n_acc), n_total=int(n), interval=binomial_interval(right, n_acc, level, method),
+        interval_method=method, level=level, rule=rule, feasible=feasible, expected_cost=cost,
+    )  # fmt: skip
+
+
+def evaluate_threshold(
+    confidence: ArrayLike,
+    correct: ArrayLike,
+    threshold: float,
+    level: float = 0.95,
+    method: IntervalMethod = "wilson",
+) -> ThresholdChoice:
+    """Coverage and accuracy (with a binomial interval) of accepting ``confidence >= threshold``.
+
+    Examples
+    --------
+    >>> c = evaluate_threshold([0.9, 0.8, 0.8, 0.6], [1, 1, 0, 0], 0.8)
+    >>> c.coverage, round(c.accuracy, 4), c.n_review
+    (0.75, 0.6667, 1)
+    """
+    conf, ok = _check_pair(confidence, correct)
+    acc = conf >= threshold
+    n_acc = int(acc.sum())
+    return _choice(threshold, n_acc, int((acc & ~ok).sum()), conf.size, level, method, f"fixed at {threshold:g}")
+
+
+def threshold_for_accuracy(
+    confidence: ArrayLike,
+    correct: ArrayLike,
+    target: float,
+    level: float = 0.95,
+    method: IntervalMethod = "wilson",
+    use_lower_bound: bool = False,
+) -> ThresholdChoice:
+    """The lowest threshold whose accepted samples reach ``target`` accuracy.
+
+    Among the distinct confidences ``t``, pick the smallest for which the
+    accuracy of ``{confidence >= t}`` is at least ``target`` (with
+    ``use_lower_bound=True``: the lower end of its confidence interval, a
+    stricter rule that accounts for the sample size). The lowest such
+    threshold gives the largest coverage.
+
+    Examples
+    --------
+    >>> c = threshold_for_accuracy([0.95, 0.9, 0.8, 0.7, 0.6], [1, 1, 1, 0, 1], 0.75)
+    >>> c.threshold, c.coverage, c.accuracy
+    (0.6, 1.0, 0.8)
+    """
+    if not 0 < target <= 1:
+        raise ParameterError(f"target accuracy must lie in (0, 1], got {target!r}")
+    conf, ok = _check_pair(confidence, correct)
+    rc = risk_coverage_curve(conf, ok)
+    right = rc.n_accepted - rc.n_errors
+    if use_lower_bound:
+        score = np.array([binomial_interval(r, a, level, method)[0] for r, a in zip(right, rc.n_accepted, strict=True)])
+        rule = f"lowest threshold whose {method} {level:.0%} lower bound on accuracy >= {target:g}"
+    else:
+        score = right / rc.n_accepted
+        rule = f"lowest threshold whose accuracy >= {target:g}"
+    ok_idx = np.flatnonzero(score >= target - 1e-12)
+    if ok_idx.size == 0:
+        return _choice(np.inf, 0, 0, conf.size, level, method, rule, feasible=False)
+    i = int(ok_idx[-1])  # thresholds run from high to low: the last feasible one is the lowest
+    return _choice(rc.threshold[i], int(rc.n_accepted[i]), int(rc.n_errors[i]), conf.size, level, method, rule)
+
+
+def threshold_for_cost(
+    confidence: ArrayLike,
+    correct: ArrayLike,
+    error_cost: float,
+    review_cost: float,
+    level: float = 0.95,
+    method: IntervalMethod = "wilson",
+) -> ThresholdChoice:
+    """The threshold that minimises the expected cost per sample.
+
+    Each accepted error costs ``error_cost``; each sample sent for review
+    costs ``review_cost`` (the reviewer is assumed right). The expected cost
+    of a threshold is ``(error_cost * accepted errors + review_cost * reviewed) / N``;
+    accepting nothing (threshold ``inf``) is one of the candidates. Ties go to
+    the larger coverage.
+
+    Examples
+    --------
+    >>> c = threshold_for_cost([0.95, 0.9, 0.8, 0.7, 0.6], [1, 1, 1, 0, 1], 5.0, 1.0)
+    >>> c.threshold, c.n_review, c.expected_cost
+    (0.8, 2, 0.4)
+    """
+    if not (np.isfinite(error_cost) and np.isfinite(review_cost)) or error_cost < 0 or review_cost < 0:
+        raise ParameterError(f"costs must be non-negative numbers, got {error_cost!r} and {review_cost!r}")
+    conf, ok = _check_pair(confidence, correct)
+    rc = risk_coverage_curve(conf, ok)
+    n = conf.size
+    acc = np.r_[0, rc.n_accepted]
+    err = np.r_[0, rc.n_errors]
+    thr = np.r_[np.inf, rc.threshold]
+    cost = (error_cost * err + review_cost * (n - acc)) / n
+    best = np.flatnonzero(cost <= cost.min() + 1e-12)[-1]
+    rule = f"minimum expected cost with error cost {error_cost:g} and review cost {review_cost:g}"
+    return _choice(thr[best], int(acc[best]), int(err[best]), n, level, method, rule, cost=float(cost[best]))
+
+
+def per_class_thresholds(
+    confidence: ArrayLike,
+    correct: ArrayLike,
+    predicted: ArrayLike,
+    target: float,
+    n_classes: int,
+    level: float = 0.95,
+    method: IntervalMethod = "wilson",
+    use_lower_bound: bool = False,
+) -> list[ThresholdChoice | None]:
+    """One :func:`threshold_for_accuracy` per predicted class (None where a class is never predicted).
+
+    Examples
+    --------
+    >>> out = per_class_thresholds([0.9, 0.6, 0.8, 0.7], [1, 0, 1, 1], [0, 0, 1, 1], 0.9, 2)
+    >>> [c.threshold for c in out]
+    [0.9, 0.7]
+    """
+    conf, ok = _check_pair(confidence, correct)
+    pred = np.asarray(predicted)
+    if pred.shape != conf.shape:
+        raise ShapeError(f"predicted must have shape {conf.shape}, got {pred.shape}")
+    out: list[ThresholdChoice | None] = []
+    for k in range(n_classes):
+        m = pred == k
+        out.append(threshold_for_accuracy(conf[m], ok[m], target, level, method, use_lower_bound) if m.any() else None)
+    return out
