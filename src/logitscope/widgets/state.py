@@ -1,0 +1,107 @@
+"""The shared state that links every view: the selected rows and the temperature.
+
+Views never talk to each other. Each one observes a :class:`SharedState`
+and writes to it: brushing a scatter sets ``rows`` (with ``origin`` naming
+the view), and every other view redraws its own highlight. Moving the
+temperature dial sets ``temperature`` and every view re-reads the cached
+scores of its frame at that temperature.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import numpy as np
+import traitlets
+
+from ..errors import ShapeError
+
+__all__ = ["SharedState", "as_rows"]
+
+
+def as_rows(rows: Any, n_samples: int) -> np.ndarray:
+    """Normalise a selection to sorted unique int64 row positions in ``[0, n_samples)``.
+
+    Accepts positions, a boolean mask of length ``n_samples``, or None (nothing).
+
+    Examples
+    --------
+    >>> as_rows([5, 1, 1], 10).tolist()
+    [1, 5]
+    >>> as_rows(np.array([True, False, True]), 3).tolist()
+    [0, 2]
+    """
+    if rows is None:
+        return np.zeros(0, dtype=np.int64)
+    r = np.asarray(rows)
+    if r.dtype == bool:
+        if r.shape != (n_samples,):
+            raise ShapeError(f"a boolean selection must have shape ({n_samples},), got {r.shape}")
+        return np.flatnonzero(r).astype(np.int64)
+    if r.size == 0:
+        return np.zeros(0, dtype=np.int64)
+    if r.dtype.kind not in "iu":
+        if r.dtype.kind == "f" and np.all(r == np.round(r)):
+            r = r.astype(np.int64)
+        else:
+            raise ShapeError(f"a selection must hold row positions (integers), got dtype {r.dtype}")
+    r = np.unique(r.astype(np.int64).ravel())
+    if r[0] < 0 or r[-1] >= n_samples:
+        raise ShapeError(f"selected rows must lie in [0, {n_samples}); got {r[0]} .. {r[-1]}")
+    return r
+
+
+class SharedState(traitlets.HasTraits):
+    """Selection and temperature shared by linked views.
+
+    Parameters
+    ----------
+    n_samples : int
+        Rows of the frame the views show.
+    temperature : float
+        Starting temperature.
+
+    Examples
+    --------
+    >>> state = SharedState(5)
+    >>> seen = []
+    >>> state.observe(lambda change: seen.append(change["new"].tolist()), "rows")
+    >>> state.select([3, 1], origin="test")
+    >>> seen, state.origin
+    ([[1, 3]], 'test')
+    """
+
+    rows = traitlets.Instance(np.ndarray, help="selected row positions, sorted and unique")
+    origin = traitlets.Unicode("", help="name of the view that made the current selection")
+    temperature = traitlets.Float(1.0, help="softmax temperature every view follows")
+    threshold = traitlets.Float(None, allow_none=True, help="confidence threshold chosen for review, if any")
+
+    def __init__(self, n_samples: int, temperature: float = 1.0, **kwargs: Any) -> None:
+        self.n_samples = int(n_samples)
+        super().__init__(rows=np.zeros(0, dtype=np.int64), temperature=float(temperature), **kwargs)
+
+    @traitlets.validate("rows")
+    def _valid_rows(self, proposal: Any) -> np.ndarray:
+        return as_rows(proposal["value"], self.n_samples)
+
+    @traitlets.validate("temperature")
+    def _valid_temperature(self, proposal: Any) -> float:
+        t = float(proposal["value"])
+        if not np.isfinite(t) or t <= 0:
+            raise traitlets.TraitError(f"temperature must be positive and finite, got {t}")
+        return t
+
+    def select(self, rows: Any, origin: str = "") -> None:
+        """Replace the selection; ``origin`` names the view making it.
+
+        Observers of ``rows`` fire only when the rows change; ``origin`` is set first.
+        """
+        new = as_rows(rows, self.n_samples)
+        with self.hold_trait_notifications():
+            self.origin = origin
+            if not np.array_equal(new, self.rows):
+                self.rows = new
+
+    def clear(self, origin: str = "") -> None:
+        """Select nothing."""
+        self.select(None, origin)
