@@ -1,4 +1,4 @@
-"""The shared state that links every view: the selected rows and the temperature.
+"""The shared state that links every view: selected rows, focus row, temperature, threshold.
 
 Views never talk to each other. Each one observes a :class:`SharedState`
 and writes to it: brushing a scatter sets ``rows`` (with ``origin`` naming
@@ -75,6 +75,7 @@ class SharedState(traitlets.HasTraits):
     origin = traitlets.Unicode("", help="name of the view that made the current selection")
     temperature = traitlets.Float(1.0, help="softmax temperature every view follows")
     threshold = traitlets.Float(None, allow_none=True, help="confidence threshold chosen for review, if any")
+    focus = traitlets.Int(None, allow_none=True, help="the one row shown large in the sample card, if any")
 
     def __init__(self, n_samples: int, temperature: float = 1.0, **kwargs: Any) -> None:
         self.n_samples = int(n_samples)
@@ -83,6 +84,13 @@ class SharedState(traitlets.HasTraits):
     @traitlets.validate("rows")
     def _valid_rows(self, proposal: Any) -> np.ndarray:
         return as_rows(proposal["value"], self.n_samples)
+
+    @traitlets.validate("focus")
+    def _valid_focus(self, proposal: Any) -> int | None:
+        v = proposal["value"]
+        if v is not None and not 0 <= int(v) < self.n_samples:
+            raise traitlets.TraitError(f"focus row must lie in [0, {self.n_samples}), got {v}")
+        return v
 
     @traitlets.validate("temperature")
     def _valid_temperature(self, proposal: Any) -> float:
