@@ -1,0 +1,148 @@
+"""Split rows into a part to fit calibration on and a held-out part to judge it on.
+
+A temperature (or a threshold) fitted on some rows and judged on the same
+rows looks better than it is. These helpers return two disjoint, sorted
+arrays of row positions: ``fit`` (where the temperature and the threshold
+are chosen) and ``held_out`` (where they are judged). Pure numpy.
+
+- :func:`random_split`: a seeded random split, optionally stratified by a
+  label column so every class keeps its share in both parts;
+- :func:`split_by_values`: rows whose metadata value is among ``fit_values``
+  form the fit part, the rest the held-out part (for example fit on one
+  desk's mail, judge on the other desks').
+"""
+
+from __future__ import annotations
+
+from typing import Any, NamedTuple
+
+import numpy as np
+from numpy.typing import ArrayLike
+
+from ..errors import ParameterError, ShapeError
+
+__all__ = ["Split", "random_split", "split_by_values"]
+
+
+class Split(NamedTuple):
+    """Row positions of the fit part and of the held-out part (sorted, disjoint).
+
+    Unpacks as a pair: ``fit, held_out = random_split(n)``.
+    """
+
+    fit: np.ndarray
+    held_out: np.ndarray
+    description: str = ""
+
+
+def _check_n(n_samples: Any) -> int:
+    if isinstance(n_samples, bool) or not isinstance(n_samples, int | np.integer) or n_samples < 2:
+        raise ParameterError(f"a split needs at least 2 rows, got n_samples={n_samples!r}")
+    return int(n_samples)
+
+
+def random_split(
+    n_samples: int,
+    held_out_fraction: float = 0.5,
+    seed: int = 0,
+    stratify: ArrayLike | None = None,
+) -> Split:
+    """A seeded random split into a fit part and a held-out part.
+
+    Parameters
+    ----------
+    n_samples : int
+        Number of rows (at least 2).
+    held_out_fraction : float, default 0.5
+        Share of rows held out, in ``(0, 1)``. Both parts get at least one row.
+    seed : int
+        Seed of :func:`numpy.random.default_rng`; the same seed gives the same split.
+    stratify : array_like of shape (n_samples,), optional
+        Group labels (for example the true classes): each group is split on
+        its own with the same fraction (rounded), so class shares match in
+        both parts. A group of one row goes to the fit part.
+
+    Returns
+    -------
+    Split
+        ``fit`` and ``held_out`` row positions, sorted and disjoint, covering every row.
+
+    Examples
+    --------
+    >>> fit, held_out, _ = random_split(10, 0.3, seed=1)
+    >>> len(fit), len(held_out), sorted(np.r_[fit, held_out].tolist()) == list(range(10))
+    (7, 3, True)
+    """
+    n = _check_n(n_samples)
+    frac = float(held_out_fraction)
+    if not 0.0 < frac < 1.0:
+        raise ParameterError(f"held_out_fraction must lie strictly between 0 and 1, got {held_out_fraction!r}")
+    rng = np.random.default_rng(seed)
+    held = np.zeros(n, dtype=bool)
+    if stratify is None:
+        k = min(n - 1, max(1, round(frac * n)))
+        held[rng.permutation(n)[:k]] = True
+        how = f"random split, seed {seed}, {frac:.0%} held out"
+    else:
+        groups = np.asarray(stratify)
+        if groups.shape != (n,):
+            raise ShapeError(f"stratify must have shape ({n},), got {groups.shape}")
+        _, codes = np.unique(groups, return_inverse=True)
+        for g in range(int(codes.max()) + 1):
+            rows = np.flatnonzero(codes == g)
+            k = min(rows.size - 1, round(frac * rows.size))
+            if k > 0:
+                held[rng.permutation(rows)[:k]] = True
+        if held.all() or not held.any():  # tiny groups everywhere: fall back to one row each side
+            held[:] = False
+            held[rng.integers(n)] = True
+        how = f"random split stratified by label, seed {seed}, {frac:.0%} held out"
+    return Split(np.flatnonzero(~held).astype(np.int64), np.flatnonzero(held).astype(np.int64), how)
+
+
+def split_by_values(column: ArrayLike, fit_values: ArrayLike | Any) -> Split:
+    """Fit on the rows whose ``column`` value is among ``fit_values``; hold out the rest.
+
+    Parameters
+    ----------
+    column : array_like of shape (N,)
+        A metadata column (strings, numbers, booleans).
+    fit_values : value or sequence of values
+        The values whose rows form the fit part.
+
+    Returns
+    -------
+    Split
+
+    Raises
+    ------
+    ParameterError
+        When either part would be empty, or a value of ``fit_values`` never occurs.
+
+    Examples
+    --------
+    >>> fit, held_out, how = split_by_values(["north", "south", "north", "east"], ["north"])
+    >>> fit.tolist(), held_out.tolist()
+    ([0, 2], [1, 3])
+    """
+    col = np.asarray(column, dtype=object)
+    if col.ndim != 1 or col.size < 2:
+        raise ShapeError(f"column must be 1-D with at least 2 rows, got shape {col.shape}")
+    if isinstance(fit_values, str) or np.ndim(fit_values) == 0:
+        values = [fit_values]
+    else:
+        values = list(fit_values)
+    if not values:
+        raise ParameterError("fit_values is empty: name at least one value whose rows form the fit part")
+    present = set(col.tolist())
+    missing = [v for v in values if v not in present]
+    if missing:
+        raise ParameterError(f"fit_values not found in the column: {missing[:5]!r}")
+    wanted = set(values)
+    mask = np.fromiter((v in wanted for v in col.tolist()), dtype=bool, count=col.size)
+    if mask.all():
+        raise ParameterError("every row is in the fit part; nothing is left to hold out")
+    shown = ", ".join(str(v) for v in values[:5]) + (" ..." if len(values) > 5 else "")
+    return Split(
+        np.flatnonzero(mask).astype(np.int64), np.flatnonzero(~mask).astype(np.int64), f"fit on rows with {shown}"
+    )
