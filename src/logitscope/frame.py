@@ -509,7 +509,8 @@ class LogitFrame:
             data["label"] = np.asarray(self._labels)
             data["label_class"] = pd.Categorical.from_codes(self._labels, categories=list(self._classes))
         data.update(cols)
-        return pd.DataFrame(data, index=pd.Index(np.asarray(self._ids), name="id"))
+        # copy=False: the columns are fresh arrays already; consolidating them would copy N x 11 floats
+        return pd.DataFrame(data, index=pd.Index(np.asarray(self._ids), name="id"), copy=False)
 
     def _require_labels(self, what: str) -> np.ndarray:
         if self._labels is None:

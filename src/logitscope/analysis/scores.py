@@ -23,6 +23,7 @@ cache-sized row blocks. Both accumulate in float64.
 from __future__ import annotations
 
 import os
+from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -132,6 +133,20 @@ def _pick(backend: Backend) -> str:
     return backend
 
 
+def _numba_blocks(z: np.ndarray) -> Iterator[tuple[slice, np.ndarray]]:
+    """The whole matrix in one piece when numba can read it as is; else float32 blocks.
+
+    Numba has no float16 arrays: such a matrix is widened (exactly) to float32
+    one block at a time, so the extra memory stays bounded.
+    """
+    if z.dtype in (np.float32, np.float64) and z.flags.c_contiguous:
+        yield slice(0, z.shape[0]), z
+        return
+    wide = np.float64 if z.dtype == np.float64 else np.float32
+    for rows in block_slices(*z.shape, budget=1 << 22):
+        yield rows, np.ascontiguousarray(z[rows], dtype=wide)
+
+
 # --------------------------------------------------------------------------- numpy
 
 
@@ -213,16 +228,12 @@ def sample_scores(
     if _pick(backend) == "numba":
         nb = _numba()
         has_y = y is not None
-        yy = y if has_y else np.zeros(1, dtype=np.int64)
-        logp = out["true_log_probability"] if has_y else np.empty(1)
-        brier = out["brier"] if has_y else np.empty(1)
-        rank = out["true_rank"] if has_y else np.empty(1, dtype=np.int64)
-        zc = np.ascontiguousarray(z)
-        nb.scores_kernel(
-            zc, yy, has_y, beta,
-            out["predicted"], out["confidence"], out["entropy"], out["margin"],
-            out["logit_margin"], out["energy"], logp, brier, rank,
-        )  # fmt: skip
+        for rows, zc in _numba_blocks(z):
+            yy = y[rows] if has_y else np.zeros(1, dtype=np.int64)
+            per_row = [out[name][rows] for name in ("predicted", *f64)]
+            label_cols = [out[name][rows] if has_y else np.empty(1) for name in ("true_log_probability", "brier")]
+            rank = out["true_rank"][rows] if has_y else np.empty(1, dtype=np.int64)
+            nb.scores_kernel(zc, yy, has_y, beta, *per_row, *label_cols, rank)
     else:
         _scores_numpy(z, y, beta, out)
     correct = None if y is None else out["predicted"] == y
@@ -268,8 +279,11 @@ def temperature_moments(
 
         raise ParameterError(f"inverse temperature must be positive and finite, got {beta!r}")
     if _pick(backend) == "numba":
-        nll, d1, d2 = _numba().moments_kernel(np.ascontiguousarray(z), y, float(beta))
-        return float(nll) / n, float(d1) / n, float(d2) / n
+        nll = d1 = d2 = 0.0
+        for rows, zc in _numba_blocks(z):
+            a, b, c = _numba().moments_kernel(zc, y[rows], float(beta))
+            nll, d1, d2 = nll + a, d1 + b, d2 + c
+        return nll / n, d1 / n, d2 / n
     nll = d1 = d2 = 0.0
     for rows in block_slices(n, k):
         zb = np.asarray(z[rows], dtype=np.float64)

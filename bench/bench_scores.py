@@ -1,0 +1,157 @@
+"""Benchmark the per-sample scores and the temperature fit against baselines measured in the same run.
+
+Usage::
+
+    python bench/bench_scores.py            # N = 1,000,000, K = 100, float32
+    python bench/bench_scores.py --n 200000 --k 1000
+
+Baselines:
+
+- floor: one streaming pass ``z.sum(axis=1)``, the memory-bandwidth floor;
+- naive: ``scipy.special.softmax`` + ``scipy.stats.entropy`` + ``np.sort`` for the margin;
+- torch: ``torch.log_softmax`` + entropy + ``torch.topk(2)`` on the CPU, when torch is installed.
+
+Targets (checked and printed, never asserted in unit tests): ``LogitFrame.scores()``
+within 6x of the floor and at least 10x faster than the naive composition; the
+temperature fit within 15 floor passes; peak memory of ``scores()`` under 1.5x
+the logit matrix. The timings are best-of-``--repeat`` wall times.
+"""
+
+from __future__ import annotations
+
+import argparse
+import time
+import tracemalloc
+from collections.abc import Callable
+
+import numpy as np
+
+from logitscope import LogitFrame
+from logitscope.analysis import sample_scores, temperature_moments
+from logitscope.analysis import scores as scores_module
+
+
+def best_of(fn: Callable[[], object], repeat: int) -> float:
+    best = float("inf")
+    for _ in range(repeat):
+        start = time.perf_counter()
+        fn()
+        best = min(best, time.perf_counter() - start)
+    return best
+
+
+def naive(z: np.ndarray, y: np.ndarray) -> dict[str, np.ndarray]:
+    from scipy.special import softmax
+    from scipy.stats import entropy
+
+    p = softmax(z, axis=1)
+    top2 = np.sort(p, axis=1)[:, -2:]
+    return {
+        "predicted": p.argmax(axis=1),
+        "confidence": top2[:, 1],
+        "entropy": entropy(p, axis=1),
+        "margin": top2[:, 1] - top2[:, 0],
+        "true_probability": p[np.arange(len(y)), y],
+    }
+
+
+def torch_scores(zt: object, yt: object) -> object:
+    import torch
+
+    logp = torch.log_softmax(zt, dim=1)
+    p = logp.exp()
+    ent = -(p * logp).sum(dim=1)
+    top = torch.topk(p, 2, dim=1).values
+    return ent, top[:, 0] - top[:, 1], p.gather(1, yt[:, None])
+
+
+def main() -> None:
+    parser = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("--n", type=int, default=1_000_000)
+    parser.add_argument("--k", type=int, default=100)
+    parser.add_argument("--repeat", type=int, default=3)
+    parser.add_argument("--seed", type=int, default=0)
+    args = parser.parse_args()
+
+    rng = np.random.default_rng(args.seed)
+    # a parcel-sorting camera's logits: a class signal plus noise, float32
+    y = rng.integers(0, args.k, args.n)
+    z = rng.standard_normal((args.n, args.k), dtype=np.float32) * np.float32(2.0)
+    z[np.arange(args.n), y] += np.float32(4.0)
+    frame = LogitFrame(z, labels=y)
+    mb = z.nbytes / 2**20
+    print(f"N = {args.n:,}, K = {args.k}, float32 logits: {mb:.0f} MiB; backends: {scores_module.available_backends()}")
+
+    # warm up (numba compiles or loads its cache; page in the matrix)
+    sample_scores(z[:1000], y[:1000])
+    temperature_moments(z[:1000], y[:1000], 1.0)
+    z.sum(axis=1)
+
+    def fresh_scores() -> object:
+        frame._cache.clear()  # time the computation, not the per-temperature cache
+        return frame.scores()
+
+    rows: list[tuple[str, float]] = []
+    floor = best_of(lambda: z.sum(axis=1), args.repeat)
+    rows.append(("floor: z.sum(axis=1)", floor))
+    t_frame = best_of(fresh_scores, args.repeat)
+    rows.append(("LogitFrame.scores() (DataFrame)", t_frame))
+    t_arrays = best_of(lambda: sample_scores(z, y), args.repeat)
+    rows.append((f"analysis.sample_scores ({scores_module.available_backends()[0]})", t_arrays))
+    t_numpy = best_of(lambda: sample_scores(z, y, backend="numpy"), 1)
+    rows.append(("analysis.sample_scores (numpy backend)", t_numpy))
+    t_naive = best_of(lambda: naive(z, y), 1)
+    rows.append(("naive: scipy softmax + entropy + np.sort", t_naive))
+    try:
+        import torch
+
+        torch.set_num_threads(2)
+        zt, yt = torch.from_numpy(z), torch.from_numpy(y)
+        torch_scores(zt[:1000], yt[:1000])
+        rows.append((f"torch {torch.__version__} log_softmax + entropy + topk", best_of(lambda: torch_scores(zt, yt), 2)))
+    except ImportError:
+        print("torch not installed: its baseline is skipped")
+
+    calls = 0
+    original = scores_module.temperature_moments
+
+    def counting(*a: object, **k: object) -> tuple[float, float, float]:
+        nonlocal calls
+        calls += 1
+        return original(*a, **k)
+
+    import logitscope.analysis.temperature as temp_module
+
+    temp_module.temperature_moments = counting  # type: ignore[assignment]
+    try:
+        start = time.perf_counter()
+        fit = frame.fit_temperature()
+        t_fit = time.perf_counter() - start
+    finally:
+        temp_module.temperature_moments = original  # type: ignore[assignment]
+    rows.append((f"fit_temperature ({calls} passes, T = {fit.temperature:.4f})", t_fit))
+
+    width = max(len(r[0]) for r in rows) + 2
+    print(f"\n{'what':<{width}}{'seconds':>9}{'x floor':>9}")
+    for name, t in rows:
+        print(f"{name:<{width}}{t:>9.3f}{t / floor:>9.1f}")
+
+    frame._cache.clear()
+    tracemalloc.start()
+    frame.scores()
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+
+    print("\ntargets")
+    checks = [
+        ("scores() within 6x of the floor", t_frame / floor, t_frame / floor <= 6.0),
+        ("scores() at least 10x faster than naive", t_naive / t_frame, t_naive / t_frame >= 10.0),
+        ("temperature fit within 15 floor passes", t_fit / floor, t_fit / floor <= 15.0),
+        ("peak memory of scores() under 1.5x the matrix", peak / z.nbytes, peak / z.nbytes < 1.5),
+    ]
+    for name, value, ok in checks:
+        print(f"  {'met ' if ok else 'MISS'}  {name}: {value:.2f}")
+
+
+if __name__ == "__main__":
+    main()
