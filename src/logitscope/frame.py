@@ -539,6 +539,29 @@ class LogitFrame:
 
         return summarize(self, temperature, fit_temperature, target_accuracy, n_bins, interval)
 
+    def compare(self, other: LogitFrame) -> an.CheckpointComparison:
+        """Compare this checkpoint's outputs with ``other``'s on the same samples (McNemar 1947).
+
+        Both frames must hold the same ids in the same order and the same
+        classes; the labels of ``self`` are used, each frame at its own temperature.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> a = LogitFrame(np.array([[2.0, 0.0], [0.0, 2.0]]), labels=[0, 0])
+        >>> b = LogitFrame(np.array([[2.0, 0.0], [2.0, 0.0]]), labels=[0, 0])
+        >>> a.compare(b).only_b_right
+        1
+        """
+        if other.classes != self.classes:
+            raise ClassNameError("checkpoints to compare must have the same classes in the same order")
+        if other.n_samples != self.n_samples or not np.array_equal(other.ids, self.ids):
+            raise ShapeError("checkpoints to compare must score the same sample ids in the same order")
+        with assume_valid():
+            return an.compare_checkpoints(
+                self._logits, other._logits, self._labels, self._temperature, other._temperature
+            )
+
     def report(self, path: str | os.PathLike[str], **options: Any) -> None:
         """Write a self-contained HTML report for teammates (see :func:`logitscope.report.write_report`)."""
         from .report import write_report

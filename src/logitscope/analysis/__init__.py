@@ -28,6 +28,7 @@ from .class_mix import (
     compare_class_mix,
     estimate_priors,
 )
+from .compare import CheckpointComparison, compare_checkpoints, mcnemar_exact
 from .confusion import ConfusedPair, confusion_matrix, most_confused_pairs, normalize_rows, top_k_confusion
 from .label_errors import LabelIssueRanking, confident_joint, per_class_thresholds_cl, rank_label_issues
 from .metrics import (
@@ -65,6 +66,7 @@ from .temperature import (
 __all__ = [
     "CAUTION",
     "SCORE_COLUMNS",
+    "CheckpointComparison",
     "ClassMixTest",
     "ConfusedPair",
     "LabelIssueRanking",
@@ -90,6 +92,7 @@ __all__ = [
     "class_counts",
     "class_mix_test",
     "classwise_calibration_error",
+    "compare_checkpoints",
     "compare_class_mix",
     "confident_joint",
     "confusion_matrix",
@@ -104,6 +107,7 @@ __all__ = [
     "log_softmax",
     "logsumexp",
     "maximum_calibration_error",
+    "mcnemar_exact",
     "mean_confidence",
     "mean_entropy",
     "most_confused_pairs",
