@@ -1,0 +1,42 @@
+"""The compiled kernels: our vectorisable exponential and the block handling around numba."""
+
+import numpy as np
+import pytest
+
+from logitscope.analysis import sample_scores, temperature_moments
+
+kernels = pytest.importorskip("logitscope.analysis._numba_kernels")
+
+
+def test_exp_nonpositive_is_within_two_ulp_of_numpy_exp():
+    # reference: numpy.exp (the C library's correctly rounded-to-1-ulp exp) over the whole range we use
+    rng = np.random.default_rng(0)
+    x = np.concatenate([-rng.exponential(50.0, 200_000), -rng.uniform(0, 1e-6, 1000), [0.0, -0.5 * np.log(2), -707.9]])
+    got = kernels.exp_nonpositive_array(x)
+    ref = np.exp(x)
+    ulp = np.abs(got - ref) / np.spacing(ref)
+    assert ulp.max() <= 2.0
+
+
+def test_exp_nonpositive_clamp_below_minus_708_is_negligible():
+    # below -708 the kernel returns e^-708 ~ 3.3e-308 instead of a smaller number or 0; the kernels only add such
+    # terms to sums >= 1, so an absolute error under 1e-307 cannot change a result (float64 epsilon is 2.2e-16)
+    x = np.array([-708.5, -745.0, -800.0, -1e4])
+    got = kernels.exp_nonpositive_array(x)
+    assert np.all(got >= 0) and np.all(got < 1e-307)
+
+
+@pytest.mark.parametrize("layout", ["C", "F", "strided"])
+@pytest.mark.parametrize("dtype", [np.float16, np.float32, np.float64])
+def test_numba_path_handles_layouts_and_dtypes_like_numpy_path(layout, dtype):
+    rng = np.random.default_rng(1)
+    base = (rng.normal(size=(700, 24)) * 5).astype(dtype)
+    z = {"C": base, "F": np.asfortranarray(base), "strided": base[::2]}[layout]
+    y = rng.integers(0, 24, z.shape[0])
+    a = sample_scores(z, y, temperature=0.6, backend="numba").to_dict()
+    b = sample_scores(z, y, temperature=0.6, backend="numpy").to_dict()
+    for name in a:
+        np.testing.assert_allclose(a[name].astype(float), b[name].astype(float), rtol=0, atol=1e-12, err_msg=name)
+    ma = temperature_moments(z, y, 1.7, backend="numba")
+    mb = temperature_moments(z, y, 1.7, backend="numpy")
+    np.testing.assert_allclose(ma, mb, rtol=1e-12)
