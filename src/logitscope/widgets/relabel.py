@@ -1,0 +1,368 @@
+"""RelabelQueue (marks for relabeling, saved to a file) and LabelIssuePicker (select likely label errors)."""
+
+from __future__ import annotations
+
+import os
+import warnings
+from pathlib import Path
+from typing import Any
+
+import anywidget
+import numpy as np
+import pandas as pd
+import traitlets
+
+from .. import analysis as an
+from ..errors import ClassNameError, LabelError, LogitscopeError, ParameterError
+from ..frame import LogitFrame
+from ..relabel_store import RelabelStore, RelabelStoreWarning, default_path
+from ._assets import esm
+from .gallery import check_frame
+from .state import SharedState
+
+__all__ = ["LabelIssuePicker", "RelabelQueue"]
+
+QUEUE_NAME = "relabel queue"
+PICKER_NAME = "label issue picker"
+METHODS = ("confident_learning", "self_confidence", "normalized_margin")
+
+
+class RelabelQueue(anywidget.AnyWidget):
+    """Mark samples for relabeling with a suggested label and a note; the list lives in a JSON file.
+
+    Marks are made on the current selection or on the focused sample. Every
+    change is saved atomically to ``path``; opening a queue again on the same
+    path (after a kernel restart, say) restores the list. "Export CSV" writes
+    the list beside the JSON file.
+
+    The suggested label defaults, per sample, to the most probable class other
+    than the given label (the prediction when the model disagrees with the
+    label), or, for samples flagged by the latest pick of a linked
+    :class:`LabelIssuePicker`, the class that pick suggested.
+
+    Parameters
+    ----------
+    frame : LogitFrame
+    state : SharedState, optional
+    path : str or path-like, optional
+        The JSON file; by default ``logitscope-relabel-<fingerprint>.json`` in
+        the current folder, the fingerprint taken from the frame's ids and
+        classes (so the same data reopens the same list).
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, logitscope
+    >>> frame = logitscope.load_demo("mailroom")
+    >>> path = pathlib.Path(tempfile.mkdtemp()) / "marks.json"
+    >>> queue = RelabelQueue(frame, path=path)
+    >>> queue.mark([5, 7], note="smudged")
+    >>> queue.marks[["id", "given_label", "note"]].values.tolist()
+    [['card-00005', 'five', 'smudged'], ['card-00007', 'seven', 'smudged']]
+    >>> len(RelabelQueue(frame, path=path).marks)  # reopened from the file
+    2
+    """
+
+    _esm = esm("relabel.js")
+
+    _kind = traitlets.Unicode("queue").tag(sync=True)
+    path = traitlets.Unicode("", help="the JSON file the marks are saved to").tag(sync=True)
+    classes = traitlets.List(traitlets.Unicode()).tag(sync=True)
+    items = traitlets.List(traitlets.Dict(), help="marks shown, latest first").tag(sync=True)
+    n_marks = traitlets.Int(0).tag(sync=True)
+    n_selected = traitlets.Int(0).tag(sync=True)
+    focus_id = traitlets.Unicode("", help="id of the focused sample, '' when none").tag(sync=True)
+    focus_default = traitlets.Unicode("", help="default suggestion for the focused sample").tag(sync=True)
+    status = traitlets.Unicode("").tag(sync=True)
+    max_items = traitlets.Int(500, help="how many marks the list shows (all are kept)").tag(sync=True)
+
+    def __init__(
+        self,
+        frame: LogitFrame,
+        state: SharedState | None = None,
+        path: str | os.PathLike[str] | None = None,
+        **kwargs: Any,
+    ) -> None:
+        st = check_frame(frame, state)
+        self.frame = frame
+        self.state = st
+        target = default_path(frame) if path is None else Path(path)
+        with warnings.catch_warnings(record=True) as caught:
+            warnings.simplefilter("always", RelabelStoreWarning)
+            self.store = RelabelStore(target, frame)  # a corrupt file raises here and is left alone
+        notes = [str(w.message) for w in caught if issubclass(w.category, RelabelStoreWarning)]
+        for w in caught:
+            warnings.warn_explicit(w.message, w.category, w.filename, w.lineno)
+        self._suggestions: dict[int, int] = {}
+        super().__init__(path=str(target.resolve()), classes=list(frame.classes), **kwargs)
+        loaded = len(self.store)
+        if notes:
+            self.status = " ".join(notes)
+        elif loaded:
+            self.status = f"reopened {loaded:,} marks from the file"
+        else:
+            self.status = "no marks yet; the list is saved to the file on every change"
+        st.observe(self._on_state, ["rows", "focus", "temperature"])
+        self.on_msg(self._on_msg)
+        self._on_state()
+        self._show()
+
+    # ------------------------------------------------------------------ Python API
+
+    @property
+    def marks(self) -> pd.DataFrame:
+        """The marks as a DataFrame (``id, row, given_label, suggested_label, note, marked_at``)."""
+        return self.store.to_frame()
+
+    def suggest(self, rows: Any) -> np.ndarray:
+        """Default suggested class index for each row (see the class docstring)."""
+        r = np.asarray(rows, dtype=np.int64).ravel()
+        if r.size == 0:
+            return np.zeros(0, dtype=np.int64)
+        z = np.array(self.frame.logits[r], dtype=np.float64)
+        labels = self.frame.labels
+        if labels is not None:
+            z[np.arange(r.size), labels[r]] = -np.inf  # the argmax is the same at every temperature
+        out = z.argmax(axis=1)
+        for i, row in enumerate(r.tolist()):
+            if row in self._suggestions:
+                out[i] = self._suggestions[row]
+        return out.astype(np.int64)
+
+    def set_suggestions(self, rows: Any, classes: Any) -> None:
+        """Use these suggested class indices for these rows (a label-issue pick calls this)."""
+        r = np.asarray(rows, dtype=np.int64).ravel()
+        c = np.asarray(classes, dtype=np.int64).ravel()
+        if r.shape != c.shape:
+            raise ParameterError(f"{r.size} rows but {c.size} suggested classes")
+        self._suggestions = dict(zip(r.tolist(), c.tolist(), strict=True))
+        self._on_state()
+
+    def mark(self, rows: Any, suggested: Any = None, note: str = "") -> None:
+        """Mark rows for relabeling and save.
+
+        Parameters
+        ----------
+        rows : int, sequence of int or boolean mask
+            Row positions in the frame.
+        suggested : str or int, optional
+            The suggested class (name or index) for all rows; by default each
+            row's own suggestion (:meth:`suggest`).
+        note : str
+            A free note stored with each mark.
+        """
+        r = self._as_rows(rows)
+        if r.size == 0:
+            raise ParameterError("nothing to mark: no rows given")
+        if suggested is None or suggested == "":
+            names = [self.frame.classes[int(j)] for j in self.suggest(r)]
+        else:
+            names = [self._class_name(suggested)] * r.size
+        ids = self.frame.ids[r]
+        self.store.add_many(
+            {"id": sid, "suggested_label": name, "note": note} for sid, name in zip(ids.tolist(), names, strict=True)
+        )
+        self.status = f"marked {r.size:,} sample{'s' if r.size != 1 else ''}; saved"
+        self._show()
+
+    def unmark(self, ids: Any) -> None:
+        """Remove the marks of these sample ids and save."""
+        seq = [ids] if isinstance(ids, str | int | np.integer) else list(ids)
+        removed = self.store.remove_many(seq)
+        self.status = f"removed {removed:,} mark{'s' if removed != 1 else ''}; saved"
+        self._show()
+
+    def export_csv(self, path: str | os.PathLike[str] | None = None) -> Path:
+        """Write the marks to CSV (by default beside the JSON file) and return the path."""
+        target = self.store.path.with_suffix(".csv") if path is None else Path(path)
+        out = self.store.export_csv(target)
+        self.status = f"exported {len(self.store):,} marks to {out.resolve()}"
+        return out
+
+    # ------------------------------------------------------------------ internals
+
+    def _as_rows(self, rows: Any) -> np.ndarray:
+        if isinstance(rows, int | np.integer) and not isinstance(rows, bool):
+            rows = [int(rows)]
+        r = np.asarray(rows)
+        if r.dtype == bool:
+            if r.shape != (self.frame.n_samples,):
+                raise ParameterError(f"a boolean mask must have shape ({self.frame.n_samples},), got {r.shape}")
+            return np.flatnonzero(r)
+        if r.size and r.dtype.kind not in "iu":
+            raise ParameterError(f"rows must be integer positions, got dtype {r.dtype}")
+        r = r.astype(np.int64).ravel()
+        bad = r[(r < 0) | (r >= self.frame.n_samples)]
+        if bad.size:
+            raise ParameterError(f"rows must lie in [0, {self.frame.n_samples}); got {bad[:5].tolist()}")
+        return np.unique(r)
+
+    def _class_name(self, value: Any) -> str:
+        classes = self.frame.classes
+        if isinstance(value, int | np.integer) and not isinstance(value, bool):
+            if not 0 <= int(value) < len(classes):
+                raise ParameterError(f"class index {int(value)} is outside [0, {len(classes)})")
+            return classes[int(value)]
+        name = str(value)
+        if name not in classes:
+            raise ClassNameError(f"{name!r} is not one of the frame's {len(classes)} classes")
+        return name
+
+    def _on_state(self, change: dict[str, Any] | None = None) -> None:
+        focus = self.state.focus
+        with self.hold_sync():
+            self.n_selected = int(self.state.rows.size)
+            if focus is None:
+                self.focus_id = ""
+                self.focus_default = ""
+            else:
+                self.focus_id = str(self.frame.ids[focus])
+                self.focus_default = self.frame.classes[int(self.suggest([focus])[0])]
+
+    def _show(self) -> None:
+        marks = list(self.store)
+        latest = marks[::-1][: self.max_items]
+        items = [
+            {
+                "id": m["id"],
+                "id_text": str(m["id"]),
+                "row": m.get("row"),
+                "given_label": m.get("given_label") or "",
+                "suggested_label": m.get("suggested_label") or "",
+                "note": m.get("note") or "",
+                "marked_at": (m.get("marked_at") or "").replace("T", " ").replace("+00:00", " UTC"),
+            }
+            for m in latest
+        ]
+        with self.hold_sync():
+            self.n_marks = len(marks)
+            self.items = items
+
+    def _on_msg(self, widget: Any, content: Any, buffers: Any) -> None:
+        if not isinstance(content, dict):
+            return
+        action = content.get("action")
+        try:
+            if action == "mark":
+                scope = content.get("scope")
+                rows = self.state.rows if scope == "selection" else self.state.focus
+                if rows is None or (isinstance(rows, np.ndarray) and rows.size == 0):
+                    self.status = "nothing to mark: select samples or click one in the gallery first"
+                    return
+                self.mark(rows, suggested=content.get("suggested") or None, note=str(content.get("note") or ""))
+            elif action == "unmark":
+                self.unmark([content.get("id")])
+            elif action == "export":
+                self.export_csv()
+            elif action == "focus":
+                row = content.get("row")
+                if isinstance(row, int) and 0 <= row < self.frame.n_samples:
+                    self.state.focus = row
+        except (LogitscopeError, OSError) as exc:
+            self.status = f"not done: {exc}"
+
+
+class LabelIssuePicker(anywidget.AnyWidget):
+    """Select the samples whose given label is most likely wrong.
+
+    Ranks the frame with :func:`logitscope.analysis.rank_label_issues` (method
+    ``confident_learning``, ``self_confidence`` or ``normalized_margin``, at
+    the shared temperature) and selects the top ``n`` in the state, so the
+    gallery shows them. With ``queue`` given, the pick's suggested labels
+    become that queue's defaults for these samples.
+
+    Parameters
+    ----------
+    frame : LogitFrame
+        Needs labels.
+    state : SharedState, optional
+    method : str, default "confident_learning"
+    n : int, default 24
+    queue : RelabelQueue, optional
+
+    Examples
+    --------
+    >>> import logitscope
+    >>> frame = logitscope.load_demo("mailroom")
+    >>> picker = LabelIssuePicker(frame, n=10)
+    >>> picker.pick()
+    >>> picker.state.rows.size, picker.state.origin
+    (10, 'label issue picker')
+    """
+
+    _esm = esm("relabel.js")
+
+    _kind = traitlets.Unicode("picker").tag(sync=True)
+    methods = traitlets.List(traitlets.Unicode(), list(METHODS)).tag(sync=True)
+    method = traitlets.Unicode("confident_learning").tag(sync=True)
+    n = traitlets.Int(24).tag(sync=True)
+    status = traitlets.Unicode("").tag(sync=True)
+    enabled = traitlets.Bool(True).tag(sync=True)
+
+    def __init__(
+        self,
+        frame: LogitFrame,
+        state: SharedState | None = None,
+        method: str = "confident_learning",
+        n: int = 24,
+        queue: RelabelQueue | None = None,
+        **kwargs: Any,
+    ) -> None:
+        st = check_frame(frame, state)
+        self.frame = frame
+        self.state = st
+        self.queue = queue
+        self.ranking: an.LabelIssueRanking | None = None
+        self._cache: dict[tuple[str, float], an.LabelIssueRanking] = {}
+        super().__init__(method=method, n=n, enabled=frame.has_labels, **kwargs)
+        self.status = (
+            "choose a method and how many, then select"
+            if frame.has_labels
+            else "this frame has no labels: label issues cannot be ranked"
+        )
+        self.on_msg(self._on_msg)
+
+    @traitlets.validate("method")
+    def _valid_method(self, proposal: Any) -> str:
+        if proposal["value"] not in METHODS:
+            raise ParameterError(f"method must be one of {', '.join(METHODS)}; got {proposal['value']!r}")
+        return proposal["value"]
+
+    @traitlets.validate("n")
+    def _valid_n(self, proposal: Any) -> int:
+        if int(proposal["value"]) < 1:
+            raise ParameterError(f"n must be at least 1, got {proposal['value']}")
+        return int(proposal["value"])
+
+    def rank(self) -> an.LabelIssueRanking:
+        """The full ranking for the current method at the shared temperature (cached)."""
+        if self.frame.labels is None:
+            raise LabelError("ranking label issues needs labels; this frame has none (use with_labels)")
+        key = (self.method, float(self.state.temperature))
+        hit = self._cache.get(key)
+        if hit is None:
+            method: Any = self.method
+            with an.assume_valid():
+                hit = an.rank_label_issues(self.frame.logits, self.frame.labels, method=method, temperature=key[1])
+            self._cache = {key: hit}
+        return hit
+
+    def pick(self) -> None:
+        """Select the top ``n`` candidates in the state (origin ``"label issue picker"``)."""
+        ranking = self.rank()
+        top = ranking.top(self.n)
+        self.ranking = top
+        if self.queue is not None:
+            self.queue.set_suggestions(top.index, top.suggested)
+        self.state.select(top.index, origin=PICKER_NAME)
+        flagged = (
+            f" of {len(ranking):,} flagged" if self.method == "confident_learning" else f" of {len(ranking):,} ranked"
+        )
+        t = self.state.temperature
+        self.status = f"selected {len(top):,}{flagged} ({self.method.replace('_', ' ')}, T = {t:.3g})"
+
+    def _on_msg(self, widget: Any, content: Any, buffers: Any) -> None:
+        if isinstance(content, dict) and content.get("action") == "pick":
+            try:
+                self.pick()
+            except LogitscopeError as exc:
+                self.status = f"not done: {exc}"
