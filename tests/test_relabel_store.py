@@ -1,0 +1,237 @@
+"""RelabelStore: marks survive a restart, writes are atomic, bad files are refused and kept."""
+
+from __future__ import annotations
+
+import json
+import warnings
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+import pytest
+
+import logitscope
+from logitscope import ClassNameError, FileFormatError, LogitFrame, ParameterError
+from logitscope.relabel_store import FIELDS, RelabelStore, RelabelStoreWarning, default_path, fingerprint
+
+
+@pytest.fixture(scope="module")
+def mailroom() -> LogitFrame:
+    return logitscope.load_demo("mailroom")
+
+
+@pytest.fixture
+def path(tmp_path: Path) -> Path:
+    return tmp_path / "marks.json"
+
+
+def test_round_trip_after_restart(mailroom: LogitFrame, path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    assert not path.exists()  # created on the first change, not before
+    store.add("card-00005", "three", note="top loop open")
+    store.add_many([{"id": "card-00100", "suggested_label": 7}, {"id": "card-00002", "suggested_label": "one"}])
+    assert path.exists()
+    before = store.to_frame()
+
+    # a kernel restart: a new store object on the same file
+    again = RelabelStore(path, mailroom)
+    pd.testing.assert_frame_equal(again.to_frame(), before)
+    assert again.ids == ["card-00005", "card-00100", "card-00002"]
+    rec = again.get("card-00005")
+    assert rec is not None
+    # the row and the given label come from the frame itself
+    assert rec["row"] == int(np.flatnonzero(mailroom.ids == "card-00005")[0])
+    assert rec["given_label"] == mailroom.classes[int(mailroom.labels[rec["row"]])]
+    assert rec["suggested_label"] == "three" and rec["note"] == "top loop open"
+    assert again.get("card-00100")["suggested_label"] == "seven"  # class index 7 stored by name
+
+
+def test_file_layout(mailroom: LogitFrame, path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    store.add("card-00042", "one")
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    assert doc["format"] == "logitscope-relabel" and doc["version"] == 1
+    assert doc["classes"] == list(mailroom.classes)
+    assert doc["n_samples"] == mailroom.n_samples
+    assert [set(m) for m in doc["marks"]] == [set(FIELDS)]
+    # marked_at is an ISO 8601 time with a zone
+    assert pd.Timestamp(doc["marks"][0]["marked_at"]).tzinfo is not None
+
+
+def test_update_remove_and_every_change_saved(mailroom: LogitFrame, path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    store.add_many([{"id": f"card-{i:05d}", "suggested_label": "zero"} for i in (1, 2, 3)])
+
+    def on_disk() -> dict:
+        return {m["id"]: m for m in json.loads(path.read_text(encoding="utf-8"))["marks"]}
+
+    store.update("card-00002", suggested_label="eight", note="checked twice")
+    assert on_disk()["card-00002"]["suggested_label"] == "eight"
+    assert on_disk()["card-00002"]["note"] == "checked twice"
+    store.remove("card-00001")
+    assert set(on_disk()) == {"card-00002", "card-00003"}
+    assert store.remove_many(["card-00003", "card-09999"], missing_ok=True) == 1
+    assert set(on_disk()) == {"card-00002"}
+    # marking an id again replaces its mark and moves it to the end
+    store.add("card-00007", "one")
+    store.add("card-00002", "nine")
+    assert store.ids == ["card-00007", "card-00002"] and store.get("card-00002")["suggested_label"] == "nine"
+    store.clear()
+    assert on_disk() == {} and len(store) == 0
+
+
+def test_failed_write_keeps_old_file_and_memory(mailroom: LogitFrame, path: Path, monkeypatch) -> None:
+    store = RelabelStore(path, mailroom)
+    store.add("card-00010", "one")
+    old_bytes = path.read_bytes()
+
+    real_dump = json.dump
+
+    def dump_then_fail(obj, fh, **kw):
+        text = json.dumps(obj, **kw)
+        fh.write(text[: len(text) // 2])  # half a document reaches the temporary file
+        raise OSError("disk full (simulated)")
+
+    monkeypatch.setattr(json, "dump", dump_then_fail)
+    with pytest.raises(OSError, match="disk full"):
+        store.add("card-00011", "two")
+    with pytest.raises(OSError, match="disk full"):
+        store.remove("card-00010")
+    monkeypatch.setattr(json, "dump", real_dump)
+
+    assert path.read_bytes() == old_bytes  # the old list, whole
+    assert [p.name for p in path.parent.iterdir()] == [path.name]  # no temporary file left behind
+    assert store.ids == ["card-00010"]  # memory agrees with the file
+    assert RelabelStore(path, mailroom).ids == ["card-00010"]
+
+
+@pytest.mark.parametrize(
+    ("content", "why"),
+    [
+        ('{"format": "logitscope-relabel", "version": 1, "marks": [', "invalid JSON"),
+        ("", "invalid JSON"),
+        ('{"format": "something else", "version": 1, "marks": []}', "does not say format"),
+        ('{"format": "logitscope-relabel", "version": 99, "marks": []}', "version 99"),
+        ('{"format": "logitscope-relabel", "version": 1, "marks": {}}', "must be lists"),
+        ('{"format": "logitscope-relabel", "version": 1, "marks": [{"note": "x"}]}', "lacks an id"),
+        ("[1, 2, 3]", "does not say format"),
+    ],
+)
+def test_unreadable_file_is_refused_and_kept(mailroom: LogitFrame, path: Path, content: str, why: str) -> None:
+    path.write_text(content, encoding="utf-8")
+    with pytest.raises(FileFormatError, match=why) as info:
+        RelabelStore(path, mailroom)
+    assert str(path) in str(info.value) and "left untouched" in str(info.value)
+    assert path.read_text(encoding="utf-8") == content
+
+
+def test_file_corrupted_while_open_is_not_overwritten(mailroom: LogitFrame, path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    store.add("card-00001", "one")
+    path.write_text("{ broken", encoding="utf-8")
+    with pytest.raises(FileFormatError):
+        store.add("card-00002", "two")
+    assert path.read_text(encoding="utf-8") == "{ broken"
+
+
+def test_unknown_ids_warn_and_are_kept(mailroom: LogitFrame, path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    store.add("card-00003", "eight")
+    doc = json.loads(path.read_text(encoding="utf-8"))
+    doc["marks"].append({**doc["marks"][0], "id": "card-99999", "row": 99999})
+    path.write_text(json.dumps(doc), encoding="utf-8")
+
+    with pytest.warns(RelabelStoreWarning, match=r"1 of 2 marks name sample ids .*'card-99999'"):
+        again = RelabelStore(path, mailroom)
+    assert again.unmatched == ["card-99999"]
+    assert "card-99999" in again
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RelabelStoreWarning)
+        again.add("card-00004", "nine")  # a later save keeps the foreign mark
+        assert {m["id"] for m in json.loads(path.read_text())["marks"]} == {"card-00003", "card-99999", "card-00004"}
+        assert RelabelStore(path, mailroom).get("card-99999")["row"] == 99999
+
+
+def test_unknown_class_names_warn_and_are_kept(mailroom: LogitFrame, path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    store.add("card-00003", "eight")
+    renamed = mailroom.subset(np.arange(mailroom.n_samples))  # same ids ...
+    other = LogitFrame(renamed.logits, renamed.labels, [f"digit {c}" for c in renamed.classes], renamed.ids)
+    with pytest.warns(RelabelStoreWarning, match="class names this frame does not have: 'eight', 'three'"):
+        again = RelabelStore(path, other)
+    assert again.get("card-00003")["suggested_label"] == "eight"
+
+
+def test_class_order_change_warns(mailroom: LogitFrame, path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    store.add("card-00003", "eight")
+    doc = json.loads(path.read_text())
+    doc["classes"] = [*doc["classes"], "ten"]
+    path.write_text(json.dumps(doc))
+    with pytest.warns(RelabelStoreWarning, match="written for other class names"):
+        RelabelStore(path, mailroom)
+
+
+def test_bad_marks_are_rejected(mailroom: LogitFrame, path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    with pytest.raises(ClassNameError, match="'eleven' is not one of the 10 classes"):
+        store.add("card-00003", "eleven")
+    with pytest.raises(ClassNameError, match="not a class index"):
+        store.add("card-00003", 10)
+    with pytest.raises(ParameterError, match="'card-77777' is not in the frame"):
+        store.add("card-77777", "one")
+    with pytest.raises(ParameterError, match="is at row 3, not row 4"):
+        store.add("card-00003", "one", row=4)
+    with pytest.raises(ParameterError, match="is not marked"):
+        store.remove("card-00003")
+    with pytest.raises(ParameterError, match="is not marked"):
+        store.update("card-00003", note="x")
+    assert not path.exists()  # nothing was written for refused changes
+
+
+def test_csv_export_reads_back(mailroom: LogitFrame, path: Path, tmp_path: Path) -> None:
+    store = RelabelStore(path, mailroom)
+    tricky = 'a "quoted", comma\nnew line; naïve – ü'
+    store.add("card-00012", "four", note=tricky)
+    store.add("card-00013", "five")
+    out = store.export_csv(tmp_path / "export" / "marks.csv")
+    back = pd.read_csv(out, keep_default_na=False)  # read with pandas, outside our code
+    assert list(back.columns) == list(FIELDS)
+    assert back["id"].tolist() == ["card-00012", "card-00013"]
+    assert back["note"].tolist() == [tricky, ""]
+    assert back["row"].tolist() == [12, 13]
+    assert back["given_label"].tolist() == [mailroom.classes[int(mailroom.labels[r])] for r in (12, 13)]
+
+
+def test_integer_ids_and_no_frame(tmp_path: Path) -> None:
+    frame = LogitFrame(np.array([[2.0, 0.0], [0.0, 2.0], [1.0, 1.5]]), labels=[0, 0, 1], classes=["ok", "late"])
+    p = tmp_path / "ints.json"
+    store = RelabelStore(p, frame)
+    store.add(np.int64(1), "late")
+    assert 1 in store and RelabelStore(p, frame).get(1)["given_label"] == "ok"
+    # without a frame the store takes the class names from the file
+    bare = RelabelStore(p)
+    assert bare.classes == ("ok", "late")
+    with pytest.raises(ClassNameError):
+        bare.add(2, "early")
+    bare.add(2, "ok", row=2, given_label="late")
+    assert bare.to_frame()["row"].tolist() == [1, 2]
+
+
+def test_two_stores_on_one_file_do_not_lose_marks(mailroom: LogitFrame, path: Path) -> None:
+    first = RelabelStore(path, mailroom)
+    second = RelabelStore(path, mailroom)  # e.g. the dashboard opened twice
+    first.add("card-00001", "one")
+    second.add("card-00002", "two")  # reads the first store's change before writing
+    first.add("card-00003", "three")
+    assert RelabelStore(path, mailroom).ids == ["card-00001", "card-00002", "card-00003"]
+
+
+def test_default_path_and_fingerprint(mailroom: LogitFrame, tmp_path: Path) -> None:
+    p = default_path(mailroom, tmp_path)
+    assert p.parent == tmp_path and p.name == f"logitscope-relabel-{fingerprint(mailroom)}.json"
+    # other ids give another file; other numbers with the same ids and classes give the same file
+    shifted = LogitFrame(mailroom.logits * 2, mailroom.labels, mailroom.classes, mailroom.ids)
+    assert fingerprint(shifted) == fingerprint(mailroom)
+    fewer = mailroom.subset(np.arange(100))
+    assert fingerprint(fewer) != fingerprint(mailroom)
