@@ -1,0 +1,384 @@
+"""Confusion heat map: counts or row shares, click a cell, a row or a column to select its samples.
+
+With many classes only the ``max_classes`` classes with the most errors
+(as true class plus as predicted class) get their own row and column; the
+rest are summed into one "other" row and column, so a 1,000-class frame
+still draws a small grid. A list of the most confused pairs, also within
+the top k, sits beside the grid; each entry selects its samples.
+
+The predicted class (the arg max of the logits) does not depend on the
+temperature, so neither does this view.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import bqplot as bq
+import ipywidgets as widgets
+import numpy as np
+import traitlets
+
+from .. import analysis as an
+from ..errors import ClassNameError, ParameterError
+from ..frame import LogitFrame
+from .scatter import view_state
+from .state import SharedState
+
+__all__ = ["ConfusionHeatmap", "short_label"]
+
+_LABEL_CHARS = 28
+_ZERO_COLOR = "#f7fbff"
+_FULL_COLOR = "#08306b"
+
+
+def short_label(name: str, limit: int = _LABEL_CHARS) -> str:
+    """A class name cut to ``limit`` characters (with an ellipsis) for axis ticks.
+
+    Examples
+    --------
+    >>> short_label("parcel")
+    'parcel'
+    >>> short_label("a" * 40, limit=10)
+    'aaaaaaaaa…'
+    """
+    return name if len(name) <= limit else name[: limit - 1] + "…"
+
+
+class ConfusionHeatmap(widgets.VBox):
+    """Heat map of the confusion matrix (rows true class, columns predicted class).
+
+    Parameters
+    ----------
+    frame : LogitFrame
+        The data; it needs labels.
+    state : SharedState, optional
+        Shared state; a new one is made when None.
+    max_classes : int, default 30
+        Classes drawn individually; with more classes the ones with the most
+        errors are drawn and the rest summed into "other".
+    normalize : bool, default False
+        Colour by row share (recall per true class) instead of counts.
+    n_pairs : int, default 8
+        Entries in the most-confused list.
+    k : int, default 1
+        Most-confused pairs counted within the top ``k`` (1 = the confusion matrix).
+    name : str, default "confusion"
+        Origin written to the shared state.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from logitscope import LogitFrame
+    >>> z = np.array([[2.0, 0.0, 0.0], [0.0, 2.0, 0.0], [2.0, 0.0, 1.0], [0.0, 0.0, 2.0]])
+    >>> view = ConfusionHeatmap(LogitFrame(z, labels=[0, 1, 2, 2], classes=["north", "south", "east"]))
+    >>> view.matrix().tolist()
+    [[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [1.0, 0.0, 1.0]]
+    >>> view.select_cell("east", "north").tolist()  # true east, predicted north
+    [2]
+    >>> [(p.true, p.other, p.count) for p in view.pairs]
+    [(2, 0, 1)]
+    """
+
+    normalize = traitlets.Bool(False, help="colour by row share instead of counts")
+    hide_diagonal = traitlets.Bool(False, help="draw the diagonal (correct samples) as zero")
+    k = traitlets.Int(1, help="most-confused pairs within the top k")
+
+    def __init__(
+        self,
+        frame: LogitFrame,
+        state: SharedState | None = None,
+        *,
+        max_classes: int = 30,
+        normalize: bool = False,
+        n_pairs: int = 8,
+        k: int = 1,
+        name: str = "confusion",
+        **kwargs: Any,
+    ) -> None:
+        self.frame = frame
+        self.state = view_state(frame, state)
+        self.name = name
+        if int(max_classes) < 1:
+            raise ParameterError(f"max_classes must be at least 1, got {max_classes}")
+        self.n_pairs = int(n_pairs)
+        self.pairs: list[an.ConfusedPair] = []
+        self.clicked: tuple[int, int] | None = None
+        if not frame.has_labels:
+            super().__init__(children=[widgets.Label("The confusion matrix needs labels; this frame has none.")])
+            self._ready = False
+            return
+        self._ready = True
+        kk = frame.n_classes
+        self._labels = np.asarray(frame.labels)
+        self._predicted = np.asarray(frame.sample_scores(self.state.temperature).predicted)
+        self.counts = an.confusion_matrix(self._labels, self._predicted, kk)
+        self._topk: dict[int, np.ndarray] = {1: self.counts}
+        self._class_sizes = self.counts.sum(axis=1)
+
+        # classes drawn individually and the aggregate
+        if kk <= max_classes:
+            self.shown_classes = np.arange(kk)
+        else:
+            off = self.counts.copy()
+            np.fill_diagonal(off, 0)
+            errors = off.sum(axis=0) + off.sum(axis=1)
+            top = np.lexsort((np.arange(kk), -errors))[: int(max_classes)]
+            self.shown_classes = np.sort(top)
+        self.has_other = self.shown_classes.size < kk
+        n_pos = self.shown_classes.size + int(self.has_other)
+        self.position = np.full(kk, n_pos - 1, dtype=np.int64)  # "other" unless shown
+        self.position[self.shown_classes] = np.arange(self.shown_classes.size)
+        self.n_positions = n_pos
+        self.aggregated = np.zeros((n_pos, n_pos), dtype=np.int64)
+        np.add.at(self.aggregated, (self.position[:, None], self.position[None, :]), self.counts)
+        names = frame.classes
+        self.position_names = [names[i] for i in self.shown_classes]
+        if self.has_other:
+            self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
+        self._true_pos = self.position[self._labels]
+        self._pred_pos = self.position[self._predicted]
+
+        ticks = {str(i): short_label(n) for i, n in enumerate(self.position_names)}
+        self._s_row = bq.OrdinalScale(reverse=True)
+        self._s_col = bq.OrdinalScale()
+        self._s_color = bq.ColorScale(colors=[_ZERO_COLOR, _FULL_COLOR], min=0.0)
+        self._grid = bq.GridHeatMap(
+            row=np.arange(n_pos),
+            column=np.arange(n_pos),
+            color=np.zeros((n_pos, n_pos)),
+            scales={"row": self._s_row, "column": self._s_col, "color": self._s_color},
+            stroke="white",
+            selected_style={"opacity": 1.0},
+            unselected_style={"opacity": 0.3},
+            display_format=None,
+            font_style={"font-size": "10px"},
+        )
+        self._grid.on_element_click(self._on_cell_click)
+        font = {"font-size": "10px" if n_pos > 12 else "12px"}
+        self._ax_col = bq.Axis(
+            scale=self._s_col,
+            label="predicted class",
+            tick_labels=ticks,
+            tick_rotate=-45 if n_pos > 6 else 0,
+            tick_style={**font, "text-anchor": "end"} if n_pos > 6 else font,
+            grid_lines="none",
+        )
+        self._ax_row = bq.Axis(
+            scale=self._s_row, side="left", label="true class", tick_labels=ticks, tick_style=font, grid_lines="none"
+        )
+        longest = max(len(short_label(n)) for n in self.position_names)
+        margin = min(20 + 6 * longest, 190)
+        self.figure = bq.Figure(
+            marks=[self._grid],
+            axes=[self._ax_col, self._ax_row],
+            fig_margin={"top": 10, "bottom": margin if n_pos > 6 else 45, "left": margin, "right": 10},
+            padding_x=0.0,
+            padding_y=0.0,
+            layout=widgets.Layout(width="100%", height="430px"),
+        )
+
+        self._color_buttons = widgets.ToggleButtons(
+            options=["counts", "row share"],
+            value="row share" if normalize else "counts",
+            style={"button_width": "80px"},
+        )
+        self._diag_box = widgets.Checkbox(
+            value=False, description="hide diagonal", indent=False, layout={"width": "auto"}
+        )
+        self._row_button = widgets.Button(description="whole row", disabled=True, layout={"width": "auto"})
+        self._col_button = widgets.Button(description="whole column", disabled=True, layout={"width": "auto"})
+        self._row_button.on_click(lambda b: self._select_clicked("row"))
+        self._col_button.on_click(lambda b: self._select_clicked("column"))
+        self._k_menu = widgets.Dropdown(
+            options=[(f"top-{i}" if i > 1 else "top-1 (errors)", i) for i in range(1, min(5, kk) + 1)],
+            value=max(1, min(int(k), 5, kk)),
+            description="within",
+            layout={"width": "170px"},
+        )
+        self._pair_box = widgets.VBox(layout={"width": "100%"})
+        self._note = widgets.Label()
+        pair_panel = widgets.VBox(
+            [widgets.HTML("<b>Most confused pairs</b>"), self._k_menu, self._pair_box],
+            layout={"width": "250px", "min_width": "220px"},
+        )
+        controls = widgets.HBox([self._color_buttons, self._diag_box], layout={"flex_flow": "row wrap"})
+        click_row = widgets.HBox([self._row_button, self._col_button], layout={"flex_flow": "row wrap"})
+        grid_panel = widgets.VBox([controls, self.figure, click_row, self._note], layout={"flex": "1 1 auto"})
+        super().__init__(children=[widgets.HBox([grid_panel, pair_panel])], **kwargs)
+        self.add_class("logitscope-confusion")
+
+        self.normalize, self.k = bool(normalize), int(self._k_menu.value)
+        widgets.link((self._diag_box, "value"), (self, "hide_diagonal"))
+        widgets.link((self._k_menu, "value"), (self, "k"))
+        self._color_buttons.observe(lambda c: setattr(self, "normalize", c["new"] == "row share"), "value")
+        self.observe(self._recolor, ["normalize", "hide_diagonal"])
+        self.observe(self._on_k, "k")
+        self.state.observe(self._on_rows, "rows")
+        self._recolor()
+        self._on_k()
+        self._on_rows()
+
+    # ------------------------------------------------------------------ numbers
+
+    def matrix(self) -> np.ndarray:
+        """The drawn matrix: aggregated counts, or row shares with ``normalize``, as float64."""
+        m = an.normalize_rows(self.aggregated) if self.normalize else self.aggregated.astype(np.float64)
+        if self.hide_diagonal:
+            m = m.copy()
+            np.fill_diagonal(m, 0.0)
+        return m
+
+    def top_k_matrix(self, k: int) -> np.ndarray:
+        """``logitscope.analysis.top_k_confusion`` of the frame (cached per k; k = 1 is the confusion matrix)."""
+        hit = self._topk.get(k)
+        if hit is None:
+            hit = an.top_k_confusion(self.frame.logits, self._labels, k)
+            self._topk[k] = hit
+        return hit
+
+    def _recolor(self, change: Any = None) -> None:
+        m = self.matrix()
+        n = self.n_positions
+        with self._grid.hold_sync():
+            self._s_color.max = float(m.max()) if m.max() > 0 else 1.0
+            self._grid.color = m
+            if n <= 12:
+                self._grid.display_format = ".2f" if self.normalize else ".0f"
+
+    def _on_k(self, change: Any = None) -> None:
+        m = self.top_k_matrix(self.k)
+        self.pairs = an.most_confused_pairs(m, n=self.n_pairs, class_counts=self._class_sizes)
+        names = self.frame.classes
+        buttons = []
+        for pair in self.pairs:
+            text = f"{short_label(names[pair.true], 18)} → {short_label(names[pair.other], 18)}: {pair.count:,}"
+            b = widgets.Button(
+                description=text,
+                tooltip=f"{names[pair.true]} → {names[pair.other]}: {pair.rate:.1%} of the true class",
+                layout={"width": "100%"},
+            )
+            b.add_class("logitscope-pair")
+            b.on_click(lambda _b, p=pair: self.select_pair(p.true, p.other))
+            buttons.append(b)
+        if not buttons:
+            buttons = [widgets.Label("no confused pairs")]
+        self._pair_box.children = buttons
+
+    # ------------------------------------------------------------------ selection in
+
+    def _on_rows(self, change: Any = None) -> None:
+        rows = self.state.rows
+        if rows.size == 0:
+            self._grid.selected = None
+            self._note.value = ""
+            return
+        n = self.n_positions
+        cells = np.unique(self._true_pos[rows] * n + self._pred_pos[rows])
+        self._grid.selected = np.stack([cells // n, cells % n], axis=1).astype(np.int32)
+        self._note.value = f"{rows.size:,} selected rows fall in {cells.size:,} cells"
+
+    # ------------------------------------------------------------------ selection out
+
+    def _class_index(self, value: int | str) -> int:
+        if isinstance(value, str):
+            try:
+                return self.frame.classes.index(value)
+            except ValueError:
+                raise ClassNameError(f"unknown class name {value!r}") from None
+        i = int(value)
+        if not 0 <= i < self.frame.n_classes:
+            raise ParameterError(f"class index must lie in [0, {self.frame.n_classes}), got {i}")
+        return i
+
+    def _pos(self, value: int | str | None) -> int:
+        """Drawn position of a class (index or name); None means the "other" aggregate."""
+        if value is None:
+            if not self.has_other:
+                raise ParameterError("this heat map has no 'other' row; every class is drawn")
+            return self.n_positions - 1
+        return int(self.position[self._class_index(value)])
+
+    def select_cell(self, true: int | str | None, predicted: int | str | None) -> np.ndarray:
+        """Select samples of true class ``true`` predicted as ``predicted``; return the rows.
+
+        Classes are given by index or name; None means the "other" aggregate.
+        A class that is not drawn on its own selects exactly its own samples.
+        """
+        mask_t = self._true_mask(true)
+        mask_p = self._pred_mask(predicted)
+        self.state.select(np.flatnonzero(mask_t & mask_p), origin=self.name)
+        return self.state.rows
+
+    def select_row(self, true: int | str | None) -> np.ndarray:
+        """Select every sample of true class ``true`` (None: the "other" classes)."""
+        self.state.select(np.flatnonzero(self._true_mask(true)), origin=self.name)
+        return self.state.rows
+
+    def select_column(self, predicted: int | str | None) -> np.ndarray:
+        """Select every sample predicted as ``predicted`` (None: the "other" classes)."""
+        self.state.select(np.flatnonzero(self._pred_mask(predicted)), origin=self.name)
+        return self.state.rows
+
+    def _true_mask(self, value: int | str | None) -> np.ndarray:
+        if value is None:
+            return self._true_pos == self._pos(None)
+        return self._labels == self._class_index(value)
+
+    def _pred_mask(self, value: int | str | None) -> np.ndarray:
+        if value is None:
+            return self._pred_pos == self._pos(None)
+        return self._predicted == self._class_index(value)
+
+    def select_position(self, row: int, column: int) -> np.ndarray:
+        """Select the samples of a drawn cell (positions as on the axes; the last may be "other")."""
+        n = self.n_positions
+        if not (0 <= row < n and 0 <= column < n):
+            raise ParameterError(f"cell positions must lie in [0, {n}), got ({row}, {column})")
+        self.clicked = (int(row), int(column))
+        self._update_click_buttons()
+        self.state.select(np.flatnonzero((self._true_pos == row) & (self._pred_pos == column)), origin=self.name)
+        return self.state.rows
+
+    def select_pair(self, true: int, other: int) -> np.ndarray:
+        """Select samples of class ``true`` with ``other`` among their top ``k`` logits (k = 1: predicted)."""
+        i, j = self._class_index(true), self._class_index(other)
+        if self.k == 1:
+            return self.select_cell(i, j)
+        idx = np.flatnonzero(self._labels == i)
+        kk = self.frame.n_classes
+        if self.k >= kk:
+            hit = np.ones(idx.size, dtype=bool)
+        else:
+            block = np.asarray(self.frame.logits[idx])
+            # the same top-k rule as logitscope.analysis.top_k_confusion
+            top = np.argpartition(-block, self.k - 1, axis=1)[:, : self.k]
+            hit = (top == j).any(axis=1)
+        self.state.select(idx[hit], origin=self.name)
+        return self.state.rows
+
+    def _on_cell_click(self, mark: Any, content: dict[str, Any]) -> None:
+        data = content.get("data") if isinstance(content, dict) else None
+        if not isinstance(data, dict) or "rowNum" not in data or "columnNum" not in data:
+            return
+        self.select_position(int(data["rowNum"]), int(data["columnNum"]))
+
+    def _update_click_buttons(self) -> None:
+        if self.clicked is None:
+            return
+        r, c = self.clicked
+        nr = int(self.aggregated[r].sum())
+        nc = int(self.aggregated[:, c].sum())
+        self._row_button.description = f"whole row: true {short_label(self.position_names[r], 20)} ({nr:,})"
+        self._col_button.description = f"whole column: predicted {short_label(self.position_names[c], 20)} ({nc:,})"
+        self._row_button.disabled = self._col_button.disabled = False
+
+    def _select_clicked(self, which: str) -> None:
+        if self.clicked is None:
+            return
+        r, c = self.clicked
+        if which == "row":
+            rows = np.flatnonzero(self._true_pos == r)
+        else:
+            rows = np.flatnonzero(self._pred_pos == c)
+        self.state.select(rows, origin=self.name)

@@ -1,0 +1,188 @@
+"""The linked dashboard: every view on one frame and one shared state, in two tabs.
+
+"Explore" holds the score scatter, the confidence histogram, the confusion
+heat map, the sample gallery and card, the temperature dial, the relabel
+queue and the label-issue picker. "Calibrate and decide" holds the
+calibration panel; it is built the first time the tab is opened (or
+:attr:`Dashboard.calibration` is read), so the first view appears sooner.
+"""
+
+from __future__ import annotations
+
+import html
+import os
+from typing import Any
+
+import ipywidgets as widgets
+import numpy as np
+
+from ..frame import LogitFrame
+from .card import SampleCard
+from .confusion import ConfusionHeatmap
+from .dial import TemperatureDial
+from .gallery import SampleGallery
+from .histogram import ConfidenceHistogram
+from .relabel import LabelIssuePicker, RelabelQueue
+from .scatter import ScoreScatter, view_state
+from .state import SharedState
+
+__all__ = ["Dashboard"]
+
+TAB_TITLES = ("Explore", "Calibrate and decide")
+
+
+def _panel(title: str, child: widgets.Widget, **layout: str) -> widgets.VBox:
+    head = widgets.HTML(f"<b>{html.escape(title)}</b>")
+    box = widgets.VBox([head, child], layout=widgets.Layout(padding="4px 6px", min_width="0", **layout))
+    box.add_class("logitscope-panel")
+    return box
+
+
+class Dashboard(widgets.VBox):
+    """All linked views on one frame: brush, click or set ``selected`` and every view follows.
+
+    Parameters
+    ----------
+    frame : LogitFrame
+        The data.
+    state : SharedState, optional
+        Shared state; a new one is made when None.
+    relabel_path : str or path-like, optional
+        JSON file of the relabel queue (see :class:`RelabelQueue`); the
+        queue's default file name when None.
+    max_points : int, default 10_000
+        Most points the scatter draws (selections still cover all rows).
+    max_classes : int, default 30
+        Classes the confusion heat map draws on their own (the rest are "other").
+
+    Examples
+    --------
+    >>> import tempfile, pathlib, logitscope
+    >>> frame = logitscope.load_demo("mailroom")
+    >>> dash = Dashboard(frame, relabel_path=pathlib.Path(tempfile.mkdtemp()) / "marks.json")
+    >>> dash.selected = [4, 8, 15]
+    >>> dash.state.origin, sorted(dash.gallery.page_rows.tolist())
+    ('python', [4, 8, 15])
+    >>> int(dash.confusion.select_cell("four", "nine").size) == int(dash.confusion.counts[4, 9])
+    True
+    """
+
+    def __init__(
+        self,
+        frame: LogitFrame,
+        state: SharedState | None = None,
+        relabel_path: str | os.PathLike[str] | None = None,
+        *,
+        max_points: int = 10_000,
+        max_classes: int = 30,
+        **kwargs: Any,
+    ) -> None:
+        self.frame = frame
+        self.state = view_state(frame, state)
+        st = self.state
+        self.scatter = ScoreScatter(frame, st, max_points=max_points)
+        self.histogram = ConfidenceHistogram(frame, st)
+        self.confusion = ConfusionHeatmap(frame, st, max_classes=max_classes)
+        self.gallery = SampleGallery(frame, st)
+        self.card = SampleCard(frame, st)
+        self.dial = TemperatureDial(frame, st)
+        self.queue = RelabelQueue(frame, st, path=relabel_path)
+        self.issues = LabelIssuePicker(frame, st, queue=self.queue)
+        self._calibration: widgets.Widget | None = None
+
+        self._summary = widgets.Label()
+        self._selection = widgets.Label()
+        self._selection.add_class("logitscope-selection")
+        self._clear = widgets.Button(description="clear selection", icon="times", layout={"width": "auto"})
+        self._clear.on_click(lambda b: self.state.clear(origin="dashboard"))
+        title = widgets.HTML("<b>logitscope</b>")
+        header = widgets.HBox(
+            [title, self._summary, self.dial],
+            layout=widgets.Layout(align_items="center", justify_content="space-between", flex_flow="row wrap"),
+        )
+        selection_bar = widgets.HBox([self._selection, self._clear], layout=widgets.Layout(align_items="center"))
+
+        row1 = widgets.HBox(
+            [
+                _panel("Scores, one point per sample", self.scatter, flex="1 1 44%"),
+                _panel("Confidence, correct and wrong apart", self.histogram, flex="1 1 30%"),
+                _panel("Sample", self.card, flex="1 1 26%"),
+            ],
+            layout=widgets.Layout(width="100%"),
+        )
+        row2 = widgets.HBox(
+            [
+                _panel("Confusion (rows true, columns predicted)", self.confusion, flex="1 1 50%"),
+                _panel("Samples in the selection", self.gallery, flex="1 1 50%"),
+            ],
+            layout=widgets.Layout(width="100%"),
+        )
+        row3 = widgets.HBox(
+            [
+                _panel("Marked for relabeling", self.queue, flex="1 1 50%"),
+                _panel("Label-issue candidates", self.issues, flex="1 1 50%"),
+            ],
+            layout=widgets.Layout(width="100%"),
+        )
+        self.explore = widgets.VBox([row1, row2, row3], layout=widgets.Layout(width="100%"))
+        self._calibrate_box = widgets.VBox([widgets.Label("building the calibration views…")])
+        self.tabs = widgets.Tab(children=[self.explore, self._calibrate_box], titles=list(TAB_TITLES))
+        self.tabs.observe(self._on_tab, "selected_index")
+        super().__init__(children=[header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"), **kwargs)
+        self.add_class("logitscope-dashboard")
+        st.observe(self._on_rows, "rows")
+        st.observe(self._on_temperature, "temperature")
+        self._on_rows()
+        self._on_temperature()
+
+    # ------------------------------------------------------------------ public
+
+    @property
+    def selected(self) -> np.ndarray:
+        """Row positions of the current selection (sorted, unique); assign to select from Python."""
+        return self.state.rows
+
+    @selected.setter
+    def selected(self, rows: Any) -> None:
+        self.state.select(rows, origin="python")
+
+    @property
+    def calibration(self) -> widgets.Widget:
+        """The calibration panel of the second tab (built on first use)."""
+        if self._calibration is None:
+            from .calibration_panel import CalibrationPanel
+
+            self._calibration = CalibrationPanel(self.frame, self.state)
+            self._calibrate_box.children = [self._calibration]
+        return self._calibration
+
+    # ------------------------------------------------------------------ callbacks
+
+    def _on_tab(self, change: Any) -> None:
+        if change["new"] == 1:
+            _ = self.calibration
+
+    def _on_rows(self, change: Any = None) -> None:
+        rows = self.state.rows
+        n = self.frame.n_samples
+        if rows.size == 0:
+            self._selection.value = f"nothing selected: views show all {n:,} samples"
+            self._clear.disabled = True
+            return
+        text = f"{rows.size:,} of {n:,} samples selected"
+        if self.state.origin:
+            text += f" by {self.state.origin}"
+        if self.frame.has_labels:
+            wrong = int((~self.frame.sample_scores(self.state.temperature).correct[rows]).sum())
+            text += f"; {wrong:,} of them misclassified ({wrong / rows.size:.0%})"
+        self._selection.value = text
+        self._clear.disabled = False
+
+    def _on_temperature(self, change: Any = None) -> None:
+        f = self.frame
+        text = f"{f.n_samples:,} samples × {f.n_classes:,} classes"
+        if f.has_labels:
+            acc = float(f.sample_scores(self.state.temperature).correct.mean())
+            text += f", accuracy {acc:.1%}"
+        self._summary.value = text
+        self._on_rows()

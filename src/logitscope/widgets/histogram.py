@@ -1,0 +1,253 @@
+"""Confidence histogram: correct and wrong samples apart, interval brushing selects samples.
+
+Bin counts are computed in Python over all rows; the browser receives the
+counts only. An interval brush sends back its two ends, and the selected
+rows are those whose score lies in the closed interval.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+import bqplot as bq
+import ipywidgets as widgets
+import numpy as np
+import traitlets
+from bqplot.interacts import BrushIntervalSelector
+
+from ..errors import ParameterError
+from ..frame import LogitFrame
+from .scatter import COLOR_RIGHT, COLOR_WRONG, SCATTER_SCORES, view_state
+from .state import SharedState
+
+__all__ = ["ConfidenceHistogram"]
+
+_LABEL_SCORES = {"true_probability", "true_log_probability", "true_rank", "brier"}
+_FADED = 0.3
+
+
+class ConfidenceHistogram(widgets.VBox):
+    """Histogram of a per-sample score with correct and wrong samples apart.
+
+    Parameters
+    ----------
+    frame : LogitFrame
+        The data.
+    state : SharedState, optional
+        Shared state; a new one is made when None.
+    score : str, default "confidence"
+        The score binned (any of :data:`logitscope.widgets.scatter.SCATTER_SCORES`).
+    bins : int, default 30
+        Number of equal-width bins between the smallest and largest value.
+    layout_mode : {"stacked", "side by side"}
+        How the correct and wrong counts are drawn.
+    name : str, default "histogram"
+        Origin written to the shared state.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from logitscope import LogitFrame
+    >>> frame = LogitFrame(np.array([[2.0, 0.0], [0.0, 1.0], [1.0, 0.9]]), labels=[0, 1, 1])
+    >>> view = ConfidenceHistogram(frame, bins=4)
+    >>> view.select_interval(0.0, 0.6).tolist()  # the one sample with confidence <= 0.6
+    [2]
+    >>> [int(c) for c in view.counts()[0]], [int(c) for c in view.counts()[1]]
+    ([0, 0, 1, 1], [1, 0, 0, 0])
+    """
+
+    score = traitlets.Unicode("confidence", help="the score binned")
+    layout_mode = traitlets.Enum(["stacked", "side by side"], default_value="stacked")
+
+    def __init__(
+        self,
+        frame: LogitFrame,
+        state: SharedState | None = None,
+        *,
+        score: str = "confidence",
+        bins: int = 30,
+        layout_mode: str = "stacked",
+        name: str = "histogram",
+        **kwargs: Any,
+    ) -> None:
+        self.frame = frame
+        self.state = view_state(frame, state)
+        self.name = name
+        self.scores_offered = tuple(s for s in SCATTER_SCORES if frame.has_labels or s not in _LABEL_SCORES)
+        if score not in self.scores_offered:
+            raise ParameterError(f"score={score!r} is not offered; choose from {self.scores_offered}")
+        if int(bins) < 1:
+            raise ParameterError(f"bins must be at least 1, got {bins}")
+        self.n_bins = int(bins)
+        self._interval: tuple[float, float] | None = None
+        self.edges = np.zeros(0)
+
+        self._sx = bq.LinearScale()
+        self._sy = bq.LinearScale(min=0.0)
+        labelled = frame.has_labels
+        series = ["correct", "wrong"] if labelled else ["all samples"]
+        colors = [COLOR_RIGHT, COLOR_WRONG] if labelled else [COLOR_RIGHT]
+        self._bars = bq.Bars(
+            x=np.zeros(1),
+            y=np.zeros((len(series), 1)),
+            scales={"x": self._sx, "y": self._sy},
+            colors=colors,
+            labels=series,
+            display_legend=labelled,
+            padding=0.05,
+            type="stacked",
+            stroke="white",
+        )
+        self._sel_bars = bq.Bars(
+            x=np.zeros(1),
+            y=np.zeros((len(series), 1)),
+            scales={"x": self._sx, "y": self._sy},
+            colors=["#1f3f66", "#9e1b1b"] if labelled else ["#1f3f66"],
+            labels=[f"{s}, selected" for s in series],
+            padding=0.05,
+            type="stacked",
+            opacities=[1.0] * len(series),
+            visible=False,
+        )
+        self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none")
+        self._ay = bq.Axis(scale=self._sy, side="left", label="samples", grid_lines="none", tick_format="~s")
+        self._brush = BrushIntervalSelector(scale=self._sx, marks=[], color="#333333")
+        self._brush.observe(self._on_brush, ["brushing", "selected"])
+        self.figure = bq.Figure(
+            marks=[self._bars, self._sel_bars],
+            axes=[self._ax, self._ay],
+            interaction=self._brush,
+            fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
+            legend_location="top-left",
+            legend_style={"stroke-width": 0},
+            layout=widgets.Layout(width="100%", height="300px"),
+        )
+        self._menu = widgets.Dropdown(
+            options=self.scores_offered, value=score, description="score", layout={"width": "210px"}
+        )
+        self._mode_buttons = widgets.ToggleButtons(
+            options=["stacked", "side by side"], value=layout_mode, style={"button_width": "90px"}
+        )
+        self._note = widgets.Label()
+        super().__init__(
+            children=[
+                widgets.HBox([self._menu, self._mode_buttons], layout={"flex_flow": "row wrap"}),
+                self.figure,
+                self._note,
+            ],
+            **kwargs,
+        )
+        self.add_class("logitscope-histogram")
+        self.score, self.layout_mode = score, layout_mode
+        widgets.link((self._menu, "value"), (self, "score"))
+        widgets.link((self._mode_buttons, "value"), (self, "layout_mode"))
+        self.observe(self._on_score, "score")
+        self.observe(self._on_layout_mode, "layout_mode")
+        self.state.observe(self._on_temperature, "temperature")
+        self.state.observe(self._on_rows, "rows")
+        self._on_layout_mode()
+        self._redraw()
+
+    # ------------------------------------------------------------------ numbers
+
+    def values(self) -> np.ndarray:
+        """The binned score of every row at the shared temperature."""
+        value = getattr(self.frame.sample_scores(self.state.temperature), self.score, None)
+        if value is None:
+            raise ParameterError(f"score {self.score!r} is not available for this frame")
+        return np.asarray(value, dtype=np.float64)
+
+    def _groups(self) -> list[np.ndarray]:
+        """Boolean masks of the drawn series: correct and wrong, or all samples."""
+        if not self.frame.has_labels:
+            return [np.ones(self.frame.n_samples, dtype=bool)]
+        correct = self.frame.sample_scores(self.state.temperature).correct
+        return [correct, ~correct]
+
+    def counts(self, rows: np.ndarray | None = None) -> np.ndarray:
+        """Counts per series and bin (shape ``(series, bins)``), of all rows or of ``rows``."""
+        v = self.values()
+        out = np.zeros((len(self._groups()), self.n_bins), dtype=np.int64)
+        for i, mask in enumerate(self._groups()):
+            m = mask if rows is None else mask[rows]
+            vv = v[m] if rows is None else v[rows][m]
+            out[i] = np.histogram(vv, bins=self.edges)[0]
+        return out
+
+    def _redraw(self) -> None:
+        v = self.values()
+        finite = v[np.isfinite(v)]
+        lo, hi = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
+        if hi <= lo:
+            lo, hi = lo - 0.5, hi + 0.5
+        self.edges = np.histogram_bin_edges(finite, bins=self.n_bins, range=(lo, hi))
+        centres = (self.edges[:-1] + self.edges[1:]) / 2
+        width = self.edges[1] - self.edges[0]
+        with self.figure.hold_sync():
+            self._sx.min, self._sx.max = lo - width / 2, hi + width / 2
+            with self._bars.hold_sync():
+                self._bars.x = centres
+                self._bars.y = self.counts()
+            self._ax.label = self.score.replace("_", " ")
+            self._sel_bars.x = centres
+        self._on_rows()
+
+    # ------------------------------------------------------------------ selection in
+
+    def _on_rows(self, change: Any = None) -> None:
+        rows = self.state.rows
+        if self.state.origin != self.name and self._interval is not None:
+            self._interval = None
+            self._brush.reset()
+        n_series = len(self._groups())
+        with self.figure.hold_sync():
+            if rows.size == 0:
+                self._sel_bars.visible = False
+                self._bars.opacities = [1.0] * n_series
+                self._note.value = ""
+                return
+            self._sel_bars.y = self.counts(rows)
+            self._sel_bars.visible = True
+            self._bars.opacities = [_FADED] * n_series
+        where = f"by {self.state.origin}" if self.state.origin else ""
+        self._note.value = f"{rows.size:,} rows selected {where}".strip()
+
+    def _on_temperature(self, change: Any) -> None:
+        self._interval = None
+        self._brush.reset()
+        self._redraw()
+
+    def _on_score(self, change: Any) -> None:
+        self._interval = None
+        self._brush.reset()
+        self._redraw()
+
+    def _on_layout_mode(self, change: Any = None) -> None:
+        kind = "stacked" if self.layout_mode == "stacked" else "grouped"
+        self._bars.type = kind
+        self._sel_bars.type = kind
+
+    # ------------------------------------------------------------------ selection out
+
+    def select_interval(self, low: float, high: float) -> np.ndarray:
+        """Select every row whose score lies in ``[low, high]``; return the rows."""
+        lo, hi = sorted((float(low), float(high)))
+        v = self.values()
+        self._interval = (lo, hi)
+        self.state.select(np.flatnonzero((v >= lo) & (v <= hi)), origin=self.name)
+        return self.state.rows
+
+    def _on_brush(self, change: Any) -> None:
+        b = self._brush
+        if b.brushing:
+            return
+        sel = b.selected
+        if sel is None or len(sel) < 2:
+            if self._interval is not None and self.state.origin == self.name:
+                self._interval = None
+                self.state.clear(origin=self.name)
+            return
+        interval = tuple(sorted((float(sel[0]), float(sel[1]))))
+        if interval == self._interval:
+            return
+        self.select_interval(*interval)
