@@ -46,9 +46,10 @@ def accuracy(logits: ArrayLike, labels: ArrayLike) -> float:
 def top_k_accuracy(logits: ArrayLike, labels: ArrayLike, k: int = 5) -> float:
     """Fraction of rows whose label is among the ``k`` largest logits.
 
-    Ties at the k-th place count in the label's favour, as in scikit-learn's
-    ``top_k_accuracy_score``: the label is a hit when fewer than ``k`` classes
-    have a strictly larger logit.
+    Ties at the k-th place count in the label's favour: the label is a hit
+    when fewer than ``k`` classes have a strictly larger logit. Without ties
+    this equals scikit-learn's ``top_k_accuracy_score``, which instead breaks
+    ties by taking the higher class index first.
 
     Examples
     --------

@@ -150,6 +150,14 @@ def fit_temperature(
                 beta, fgh = b_sub, candidate
         beta, f, evaluations, converged = _newton(on_all, beta, fgh, rtol, max_iter)
         passes += evaluations
+        if 1.0 < beta < 1.0 / T_MIN:
+            # If no row has a class strictly above its label, the NLL falls for every T -> 0, but Newton
+            # can stall early where the NLL and its derivatives underflow: the infimum is at the bound.
+            passes += 1
+            if bool(np.all(sample_scores(z, y).true_rank == 1)):
+                beta, converged = 1.0 / T_MIN, True
+                f = on_all(beta)[0]
+                passes += 1
     t = 1.0 / beta
     at_bound = t <= T_MIN * (1 + 1e-9) or t >= T_MAX * (1 - 1e-9)
     if f > f0:  # the line search prevents it; the promise is kept explicitly
