@@ -200,7 +200,7 @@ class LogitFrame:
             dup = uniq[counts > 1]
             rows = np.flatnonzero(np.isin(arr, dup[:1]))
             raise DuplicateError(
-                f"ids must be unique; {dup.size} ids repeat, first {dup[0]!r} at {describe_rows(rows)}"
+                f"ids must be unique; {dup.size} ids repeat, first {dup[0].item()!r} at {describe_rows(rows)}"
             )
         return arr
 
@@ -283,6 +283,11 @@ class LogitFrame:
             d = np.asarray(estimator.decision_function(X))
             return cls(d, labels, names, ids, meta, binary=d.ndim == 1, **payload)
         if method == "predict_proba":
+            if not hasattr(estimator, "predict_proba"):
+                raise InputTypeError(
+                    f"{type(estimator).__name__} has no predict_proba and its decision_function is not a logit; "
+                    "pass logits or probabilities to LogitFrame directly"
+                )
             return cls.from_probabilities(np.asarray(estimator.predict_proba(X)), labels, names, ids, meta, **payload)
         raise InputTypeError(f"method must be 'auto', 'decision_function' or 'predict_proba', got {method!r}")
 

@@ -98,8 +98,11 @@ def write_frame(frame: LogitFrame, path: str | os.PathLike[str]) -> None:
     if clash:
         raise FileFormatError(f"metadata columns clash with reserved names: {clash}")
     out = pd.concat([pd.DataFrame(data), table], axis=1)
-    with atomic_write(target, "wb") as fh:
-        out.to_parquet(fh, index=False)
+    try:
+        with atomic_write(target, "wb") as fh:
+            out.to_parquet(fh, index=False)
+    except (TypeError, ValueError) as exc:  # pyarrow's conversion errors subclass these
+        raise FileFormatError(f"{target}: the frame cannot be stored as Parquet ({exc})") from exc
 
 
 def read_frame(path: str | os.PathLike[str]) -> LogitFrame:
