@@ -3,7 +3,7 @@
 const CSS = `
 .lsc-root { font-family: var(--jp-ui-font-family, system-ui, sans-serif); font-size: 12px;
   color: var(--jp-ui-font-color1, #1f2328); border: 1px solid var(--jp-border-color2, #dde1e5);
-  border-radius: 8px; padding: 10px 12px; background: var(--jp-layout-color1, #fff); }
+  border-radius: 8px; padding: 10px 12px; background: var(--jp-layout-color1, #fff); min-width: 400px; }
 .lsc-empty { color: var(--jp-ui-font-color2, #59636e); padding: 8px 2px; }
 .lsc-body { display: flex; flex-wrap: wrap; gap: 14px; align-items: flex-start; }
 .lsc-view { flex: 0 0 auto; display: flex; align-items: center; justify-content: center;
@@ -35,7 +35,7 @@ const CSS = `
 .lsc-fill.lsc-is-label { background: var(--jp-success-color1, #1a7f37); }
 .lsc-pct { text-align: right; font-variant-numeric: tabular-nums; color: var(--jp-ui-font-color2, #59636e); }
 .lsc-note { color: var(--jp-ui-font-color2, #59636e); font-size: 11px; }
-.lsc-meta { border-collapse: collapse; font-size: 12px; }
+.lsc-meta { border-collapse: collapse; font-size: 12px; align-self: flex-start; }
 .lsc-meta td { padding: 2px 10px 2px 0; vertical-align: top; overflow-wrap: anywhere; }
 .lsc-meta td:first-child { color: var(--jp-ui-font-color2, #59636e); white-space: nowrap; }
 `;

@@ -27,11 +27,13 @@ const CSS = `
 .lsr-table th { position: sticky; top: 0; background: var(--jp-layout-color2, #f3f4f6); text-align: left;
   font-weight: 600; padding: 3px 6px; color: var(--jp-ui-font-color2, #59636e); }
 .lsr-table td { padding: 3px 6px; border-top: 1px solid var(--jp-border-color3, #eceef1); vertical-align: top;
-  overflow-wrap: anywhere; }
+  overflow-wrap: break-word; }
+.lsr-table td.lsr-notecell { min-width: 120px; }
+.lsr-table td:last-child { width: 1%; }
 .lsr-table td.lsr-id { font-family: var(--jp-code-font-family, ui-monospace, monospace); white-space: nowrap; }
 .lsr-link { color: var(--jp-content-link-color, #1f6fd1); cursor: pointer; text-decoration: underline dotted; }
 .lsr-table td.lsr-time { white-space: nowrap; color: var(--jp-ui-font-color2, #59636e); }
-.lsr-table button { padding: 0 6px; font-size: 11px; }
+.lsr-table button { padding: 0 6px; font-size: 11px; white-space: nowrap; }
 .lsr-empty { color: var(--jp-ui-font-color2, #59636e); padding: 6px; }
 .lsr-n { width: 64px; }
 `;
