@@ -150,14 +150,14 @@ def fit_temperature(
                 beta, fgh = b_sub, candidate
         beta, f, evaluations, converged = _newton(on_all, beta, fgh, rtol, max_iter)
         passes += evaluations
-        if 1.0 < beta < 1.0 / T_MIN:
-            # If no row has a class strictly above its label, the NLL falls for every T -> 0, but Newton
-            # can stall early where the NLL and its derivatives underflow: the infimum is at the bound.
+        if 1.0 < beta < 1.0 / T_MIN and f < math.log(2.0) / n:
+            # A sample whose label is tied with or beaten by another class costs at least log 2 at every T,
+            # so a mean NLL below log(2) / N means every label wins outright: the NLL then falls for all
+            # T -> 0, but Newton can stall early where it and its derivatives underflow. The infimum is at
+            # the bound. (The test costs no pass over the data.)
+            beta, converged = 1.0 / T_MIN, True
+            f = on_all(beta)[0]
             passes += 1
-            if bool(np.all(sample_scores(z, y).true_rank == 1)):
-                beta, converged = 1.0 / T_MIN, True
-                f = on_all(beta)[0]
-                passes += 1
     t = 1.0 / beta
     at_bound = t <= T_MIN * (1 + 1e-9) or t >= T_MAX * (1 - 1e-9)
     if f > f0:  # the line search prevents it; the promise is kept explicitly
