@@ -267,8 +267,6 @@ def _server_env(home: Path) -> dict[str, str]:
         value.mkdir(parents=True, exist_ok=True)
         env[key] = str(value)
     _write_user_settings(dirs["JUPYTERLAB_SETTINGS_DIR"])
-    env.pop("JUPYTER_PATH", None)
-    env.pop("JUPYTER_CONFIG_PATH", None)
     env["PYDEVD_DISABLE_FILE_VALIDATION"] = "1"  # quiet debugger warning in kernel stderr
     env["PYTHONUNBUFFERED"] = "1"
     return env
