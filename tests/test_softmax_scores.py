@@ -209,6 +209,18 @@ def test_ties(backend):
     assert not s.correct[0]
 
 
+def test_argmax_and_rank_survive_rounding_of_z_over_t(backend):
+    # Two adjacent float64 logits whose quotients by T round to the same number (found by a search
+    # with numpy): the prediction is argmax z whatever T (numpy.argmax), and so is the rank.
+    x, t = 62.65404784005449, 5.508314224825282
+    z = np.array([[x, np.nextafter(x, np.inf)]])
+    assert z[0, 0] / t == z[0, 1] / t or z[0, 0] * (1 / t) == z[0, 1] * (1 / t)
+    s = sample_scores(z, [1], temperature=t, backend=backend)
+    assert int(s.predicted[0]) == int(np.argmax(z[0])) == 1
+    assert bool(s.correct[0]) and int(s.true_rank[0]) == 1
+    assert int(sample_scores(z, [0], temperature=t, backend=backend).true_rank[0]) == 2
+
+
 def test_float16_is_accepted_without_copy(backend, rng):
     z = (rng.normal(size=(64, 5)) * 3).astype(np.float16)
     assert check_logits(z) is z  # kept as given, no float64 copy
