@@ -23,6 +23,7 @@ import logitscope
 from logitscope import LabelError, LogitFrame, ParameterError
 from logitscope.analysis import rank_label_issues
 from logitscope.widgets import LabelIssuePicker, RelabelQueue, SampleCard, SampleGallery, SharedState
+from logitscope.widgets import relabel as relabel_widgets
 from logitscope.widgets._assets import esm
 from logitscope.widgets.thumbnails import ThumbnailCache, encode_png, snippet
 
@@ -182,6 +183,14 @@ def test_image_kinds_and_cache(tmp_path: Path) -> None:
         Image.fromarray((rgb[i] * 255).astype(np.uint8)).save(p)
         paths.append(p)
     paths[2] = tmp_path / "gone.png"  # a missing file must not break the gallery
+    deep = tmp_path / "deep.png"  # 16-bit greyscale, stretched to 0..255
+    Image.fromarray(np.array([[0, 1000], [3000, 4000]], dtype=np.uint16)).save(deep)
+    assert decode(
+        ThumbnailCache(LogitFrame(np.zeros((1, 2)), image_paths=[deep]).payload, size=2).get(0).png
+    ).tolist() == [
+        [0, 64],
+        [191, 255],
+    ]  # (v - 0) * 255 / 4000, rounded: numpy arithmetic on the same values
     frame = LogitFrame(rng.normal(size=(3, 4)), labels=[0, 1, 2], image_paths=paths)
     gallery = SampleGallery(frame, sort_by="row")
     assert gallery.tiles[0]["png"] is not None and gallery.tiles[0]["error"] is None
@@ -297,7 +306,7 @@ def test_queue_marks_selection_and_focus(mailroom: LogitFrame, tmp_path: Path) -
     assert "reopened 4 marks" in again.status
 
 
-def test_queue_python_api_and_errors(mailroom: LogitFrame, tmp_path: Path) -> None:
+def test_queue_python_api_and_errors(mailroom: LogitFrame, tmp_path: Path, monkeypatch) -> None:
     queue = RelabelQueue(mailroom, path=tmp_path / "api.json")
     queue.mark(5, suggested="three", note="open loop")
     queue.mark(np.array([7, 8]), suggested=1)
@@ -315,6 +324,11 @@ def test_queue_python_api_and_errors(mailroom: LogitFrame, tmp_path: Path) -> No
     assert queue.status.startswith("nothing to mark")
     msg(queue, action="unmark", id="card-01234")  # not marked: reported, not raised
     assert queue.status.startswith("not done:")
+    monkeypatch.setattr(relabel_widgets, "UI_MARK_LIMIT", 1000)
+    queue.state.select(np.arange(1001), origin="python")  # a click on "selection" this large is refused
+    msg(queue, action="mark", scope="selection", suggested="", note="")
+    assert queue.status.startswith("not marked: the selection holds 1,001 samples, more than 1,000")
+    assert queue.marks["id"].tolist() == ["card-00005"]
 
 
 def test_queue_default_path_in_current_folder(mailroom: LogitFrame, tmp_path: Path, monkeypatch) -> None:

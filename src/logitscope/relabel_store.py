@@ -203,9 +203,11 @@ class RelabelStore:
         return marks
 
     def _rows_of(self, ids: list[Any]) -> np.ndarray:
+        """Row positions of sample ids in the frame (-1 where absent), one vectorised look-up."""
         assert self.frame is not None
         if self._index is None:
-            self._index = pd.Index(np.asarray(self.frame.ids))
+            # object dtype with plain Python values: look-ups of any id type stay on the fast path
+            self._index = pd.Index(np.asarray(self.frame.ids).tolist(), dtype=object)
         if not ids:
             return np.zeros(0, dtype=np.int64)
         return np.asarray(self._index.get_indexer(pd.Index(ids, dtype=object)), dtype=np.int64)
@@ -304,14 +306,11 @@ class RelabelStore:
             )
         return name
 
-    def _record(self, spec: dict[str, Any]) -> dict[str, Any]:
-        if "id" not in spec:
-            raise ParameterError("a mark needs the sample id")
-        sid = _plain(spec["id"])
+    def _record(self, spec: dict[str, Any], found: int) -> dict[str, Any]:
+        sid = spec["id"]
         row = spec.get("row")
         given = spec.get("given_label")
         if self.frame is not None:
-            found = int(self._rows_of([sid])[0])
             if found < 0:
                 raise ParameterError(f"sample id {sid!r} is not in the frame")
             if row is not None and int(row) != found:
@@ -353,7 +352,13 @@ class RelabelStore:
 
     def add_many(self, specs: Iterable[dict[str, Any]]) -> list[dict[str, Any]]:
         """Mark several samples with one save; each spec is a dict with the fields of :meth:`add`."""
-        records = [self._record(dict(s)) for s in specs]
+        items = [dict(s) for s in specs]
+        for spec in items:
+            if "id" not in spec:
+                raise ParameterError("a mark needs the sample id")
+            spec["id"] = _plain(spec["id"])
+        found = self._rows_of([s["id"] for s in items]) if self.frame is not None else np.full(len(items), -1)
+        records = [self._record(spec, int(r)) for spec, r in zip(items, found.tolist(), strict=True)]
 
         def change(marks: dict[Any, dict[str, Any]]) -> list[dict[str, Any]]:
             for rec in records:

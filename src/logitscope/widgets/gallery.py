@@ -35,13 +35,26 @@ def page_probabilities(frame: LogitFrame, rows: np.ndarray, temperature: float) 
 
 
 def top_classes(probs: np.ndarray, k: int) -> np.ndarray:
-    """Column indices of the ``k`` largest probabilities of each row, largest first (ties: lower index first)."""
+    """Column indices of the ``k`` largest probabilities of each row, largest first (ties: lower index first).
+
+    Examples
+    --------
+    >>> top_classes(np.array([[0.1, 0.6, 0.3], [0.5, 0.0, 0.5]]), 2).tolist()
+    [[1, 2], [0, 2]]
+    """
     order = np.argsort(-probs, axis=1, kind="stable")
     return order[:, : min(k, probs.shape[1])]
 
 
 def check_frame(frame: Any, state: SharedState | None) -> SharedState:
-    """Check a view's arguments; return the state to use (a new one when ``state`` is None)."""
+    """Check a view's arguments; return the state to use (a new one when ``state`` is None).
+
+    Examples
+    --------
+    >>> import logitscope
+    >>> check_frame(logitscope.load_demo("helpdesk"), None).n_samples
+    1200
+    """
     if not isinstance(frame, LogitFrame):
         raise InputTypeError(f"frame must be a LogitFrame, got {type(frame).__name__}")
     if state is None:

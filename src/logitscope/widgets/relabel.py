@@ -25,6 +25,8 @@ __all__ = ["LabelIssuePicker", "RelabelQueue"]
 QUEUE_NAME = "relabel queue"
 PICKER_NAME = "label issue picker"
 METHODS = ("confident_learning", "self_confidence", "normalized_margin")
+#: Most samples one click on "mark selection" marks; more is likely a slip (Python's mark() has no limit).
+UI_MARK_LIMIT = 5000
 
 
 class RelabelQueue(anywidget.AnyWidget):
@@ -247,6 +249,12 @@ class RelabelQueue(anywidget.AnyWidget):
                 rows = self.state.rows if scope == "selection" else self.state.focus
                 if rows is None or (isinstance(rows, np.ndarray) and rows.size == 0):
                     self.status = "nothing to mark: select samples or click one in the gallery first"
+                    return
+                if isinstance(rows, np.ndarray) and rows.size > UI_MARK_LIMIT:
+                    self.status = (
+                        f"not marked: the selection holds {rows.size:,} samples, more than {UI_MARK_LIMIT:,} "
+                        "at once from here; narrow it, or call queue.mark(rows) in Python"
+                    )
                     return
                 self.mark(rows, suggested=content.get("suggested") or None, note=str(content.get("note") or ""))
             elif action == "unmark":

@@ -111,10 +111,10 @@ def _open_file(path: str, size: int) -> Thumbnail:
     from PIL import Image, ImageOps, UnidentifiedImageError
 
     try:
-        with Image.open(path) as im:
-            if im.format == "JPEG":
-                im.draft("RGB", (size * 2, size * 2))  # decode at a reduced scale: faster for photos
-            im = ImageOps.exif_transpose(im)
+        with Image.open(path) as src:
+            if src.format == "JPEG":
+                src.draft("RGB", (size * 2, size * 2))  # decode at a reduced scale: faster for photos
+            im: Any = ImageOps.exif_transpose(src)
             if im.mode in ("I", "I;16", "I;16B", "I;16L", "F"):
                 im = Image.fromarray(to_uint8(np.asarray(im)))
             elif im.mode == "P":
