@@ -151,8 +151,10 @@ def _numba_blocks(z: np.ndarray) -> Iterator[tuple[slice, np.ndarray]]:
 
 
 def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[str, np.ndarray]) -> None:
+    # order statistics come from the unscaled logits, so rounding in z / T can never move the arg-max or a rank;
+    # the arithmetic mirrors the numba kernel step by step
     for rows in block_slices(*z.shape):
-        b = as_float64_block(z, rows, beta)
+        b = as_float64_block(z, rows, 1.0)
         r = np.arange(b.shape[0])
         top = b.argmax(axis=1)
         m1 = b[r, top]
@@ -163,20 +165,22 @@ def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[st
         m2 = b.max(axis=1)
         b[r, top] = m1
         b -= m1[:, None]
+        b *= beta
         e = np.exp(b)
         s = e.sum(axis=1)
         t = np.einsum("ij,ij->i", e, b)
         log_s = np.log(s)
         if y is not None:
             u = np.einsum("ij,ij->i", e, e)
+        g = (m2 - m1) * beta
         out["predicted"][rows] = top
         out["confidence"][rows] = 1.0 / s
         out["entropy"][rows] = np.clip(log_s - t / s, 0.0, None)
-        out["margin"][rows] = (1.0 - np.exp(m2 - m1)) / s
-        out["logit_margin"][rows] = m1 - m2
-        out["energy"][rows] = -(m1 + log_s) / beta
+        out["margin"][rows] = (1.0 - np.exp(g)) / s
+        out["logit_margin"][rows] = -g
+        out["energy"][rows] = -(m1 * beta + log_s) / beta
         if y is not None:
-            lp = zy - m1 - log_s
+            lp = (zy - m1) * beta - log_s
             out["true_log_probability"][rows] = lp
             out["brier"][rows] = u / (s * s) - 2.0 * np.exp(lp) + 1.0
 
@@ -298,6 +302,6 @@ def temperature_moments(
         ez = np.einsum("ij,ij->i", e, c) / s
         ez2 = np.einsum("ij,ij->i", e, c * c) / s
         nll += float(np.sum(m + np.log(s) - beta * zy))
-        d1 += float(np.sum(ez + zm - zy))
+        d1 += float(np.sum(ez + (zm - zy)))  # zm - zy first: exact when the label is the top class
         d2 += float(np.sum(np.clip(ez2 - ez * ez, 0.0, None)))
     return nll / n, d1 / n, d2 / n
