@@ -24,7 +24,6 @@ import json
 import os
 import re
 import secrets
-import shutil
 import signal
 import socket
 import subprocess
@@ -492,10 +491,12 @@ def dismiss_dialogs(page: Page) -> int:
     """Accept a kernel-selection (or any) dialog and close notification toasts; return how many."""
     handled = 0
     dialog_accept = page.locator(".jp-Dialog .jp-mod-accept")
-    while dialog_accept.count() > 0 and dialog_accept.first.is_visible():
+    for _ in range(5):  # bounded: a dialog that stays open after "accept" is the test's problem
+        if dialog_accept.count() == 0 or not dialog_accept.first.is_visible():
+            break
         dialog_accept.first.click()
         handled += 1
-        page.wait_for_timeout(0)
+        page.wait_for_timeout(100)
     toasts = page.locator(".Toastify__toast .jp-toast-button, .Toastify__close-button")
     for i in range(toasts.count()):
         try:
@@ -514,8 +515,19 @@ def kernel_status(page: Page) -> str:
     return indicator.get_attribute("data-status") or ""
 
 
-def wait_for_kernel_idle(page: Page, server: JupyterServer | None = None, timeout_ms: int = PAGE_TIMEOUT_MS) -> None:
-    """Wait until the visible notebook's kernel is idle (and, with ``server``, the REST API agrees)."""
+def wait_for_kernel_idle(
+    page: Page,
+    server: JupyterServer | None = None,
+    timeout_ms: int = PAGE_TIMEOUT_MS,
+    *,
+    path: str | os.PathLike[str] | None = None,
+) -> None:
+    """Wait until the visible notebook's kernel is idle.
+
+    With ``server``, the REST API must agree: the kernel of the session for ``path`` is idle, or,
+    without ``path``, every running kernel is. Dialogs and toasts are dismissed meanwhile.
+    """
+    rel = server.relpath(path) if (server is not None and path is not None) else None
     deadline = time.monotonic() + timeout_ms / 1000
     while time.monotonic() < deadline:
         if dismiss_dialogs(page):
@@ -523,7 +535,10 @@ def wait_for_kernel_idle(page: Page, server: JupyterServer | None = None, timeou
         if kernel_status(page) == "idle":
             if server is None:
                 return
-            kernels = server.kernels()
+            if rel is None:
+                kernels = server.kernels()
+            else:
+                kernels = [s["kernel"] for s in server.sessions() if s.get("path") == rel and s.get("kernel")]
             if kernels and all(k.get("execution_state") == "idle" for k in kernels):
                 return
         page.wait_for_timeout(100)
@@ -540,7 +555,7 @@ def open_notebook(page: Page, server: JupyterServer, path: str | os.PathLike[str
     url = server.lab_url(path) if app == "lab" else server.notebook7_url(path)
     page.goto(url, wait_until="domcontentloaded", timeout=PAGE_TIMEOUT_MS)
     page.locator(".jp-NotebookPanel .jp-Notebook .jp-Cell").first.wait_for(state="visible", timeout=PAGE_TIMEOUT_MS)
-    wait_for_kernel_idle(page, server)
+    wait_for_kernel_idle(page, server, path=path)
     return time.monotonic() - t0
 
 
@@ -709,8 +724,3 @@ def record_timing(name: str, seconds: float) -> None:
     tmp = path.with_name(path.name + ".tmp")
     tmp.write_text(json.dumps(data, indent=2, sort_keys=True))
     os.replace(tmp, path)
-
-
-def remove_tree(path: str | os.PathLike[str]) -> None:
-    """Remove a directory tree, ignoring errors (server home after the session)."""
-    shutil.rmtree(path, ignore_errors=True)
