@@ -283,6 +283,7 @@ def reliability_svg(bins: an.ReliabilityBins, title: str, key: str) -> str:
         margin=(32, 14, 22, 56),
     )
     ch.line([0, 1], [0, 1], cls="diagonal")
+    hatch = ch.hatch("hatch-line")
     for b in range(bins.count.size):
         c = int(bins.count[b])
         if c == 0:
@@ -301,12 +302,20 @@ def reliability_svg(bins: an.ReliabilityBins, title: str, key: str) -> str:
         tip = f"confidence {lo:.3f} – {hi:.3f}: {c:,} samples, accuracy {acc:.3f}, mean confidence {conf:.3f}"
         pad = (hi - lo) * 0.06
         ch.rect(lo + pad, hi - pad, 0.0, acc, cls="bar accuracy", data=data, tooltip=tip)
-        ch.rect(lo + pad, hi - pad, min(acc, conf), max(acc, conf), cls="gap", tooltip=f"gap {acc - conf:+.3f}")
+        ch.rect(
+            lo + pad,
+            hi - pad,
+            min(acc, conf),
+            max(acc, conf),
+            cls="gap",
+            data={"fill": hatch},
+            tooltip=f"gap {acc - conf:+.3f}",
+        )
         ch.line([lo + pad, hi - pad], [conf, conf], cls="mean-confidence")
     ch.legend(
         [
             ("bar accuracy", "accuracy per bin"),
-            ("gap", "gap to the diagonal"),
+            ("gap", "gap to the diagonal", "box", hatch),
             ("mean-confidence", "mean confidence", "line"),
         ]
     )
@@ -405,7 +414,11 @@ def coverage_svg(
 def confidence_histogram_svg(
     confidence: np.ndarray, correct: np.ndarray | None, n_classes: int, threshold: float | None
 ) -> str:
-    """Histogram of confidence (right and wrong predictions stacked when labels exist), threshold marked."""
+    """Histogram of confidence (right and wrong predictions side by side when labels exist), threshold marked.
+
+    When one bin dwarfs the others the count axis is logarithmic, so the few wrong
+    predictions stay visible next to the many right ones.
+    """
     lo = 1.0 / n_classes
     edges = np.linspace(lo, 1.0, 21)
     if correct is None:
@@ -415,10 +428,11 @@ def confidence_histogram_svg(
             ("bar right", np.histogram(confidence[correct], edges)[0], "right"),
             ("bar wrong", np.histogram(confidence[~correct], edges)[0], "wrong"),
         ]
-    total = sum(p[1] for p in parts)
-    top = float(max(1, int(np.max(total))))
-    use_log = top > 50 * max(1.0, float(np.median(total[total > 0])) if np.any(total > 0) else 1.0)
-    y_domain = (0.8, top * 1.6) if use_log else (0.0, top * 1.08)
+    counts = np.concatenate([p[1] for p in parts])
+    top = float(max(1, int(counts.max())))
+    nonzero = counts[counts > 0]
+    use_log = nonzero.size > 0 and top > 20 * float(np.median(nonzero))
+    y_domain = (0.7, top * 1.8) if use_log else (0.0, top * 1.08)
     ch = Chart(
         x_domain=(lo, 1.0),
         y_domain=y_domain,
@@ -427,17 +441,22 @@ def confidence_histogram_svg(
         height=320,
         title="Confidence of the predictions",
         x_label="confidence",
-        y_label="samples" + (" (log)" if use_log else ""),
+        y_label="samples" + (" (log scale)" if use_log else ""),
         css_class="confidence-histogram",
     )
-    base = np.zeros(edges.size - 1)
-    floor = y_domain[0]
-    for cls, counts, _ in parts:
-        for b in range(counts.size):
-            if counts[b]:
-                y_low = max(base[b], floor)
-                ch.rect(edges[b], edges[b + 1], y_low, base[b] + counts[b], cls=cls, tooltip=f"{int(counts[b]):,}")
-        base = base + counts
+    width = (edges[1] - edges[0]) / len(parts)
+    for j, (cls, c, label) in enumerate(parts):
+        for b in range(c.size):
+            if c[b]:
+                x0 = edges[b] + j * width
+                ch.rect(
+                    x0 + width * 0.08,
+                    x0 + width * 0.92,
+                    y_domain[0],
+                    float(c[b]),
+                    cls=cls,
+                    tooltip=f"{label}: {int(c[b]):,}",
+                )
     if threshold is not None and math.isfinite(threshold):
         ch.vline(min(max(threshold, lo), 1.0), cls="chosen", label=f"threshold {threshold:.4g}")
     ch.legend([(cls, label) for cls, _, label in parts])

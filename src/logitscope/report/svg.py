@@ -179,6 +179,7 @@ class Chart:
     _marks: list[str] = field(default_factory=list, repr=False)
     _overlay: list[str] = field(default_factory=list, repr=False)
     _n_rule_labels: int = field(default=0, repr=False)
+    _defs: list[str] = field(default_factory=list, repr=False)
 
     def __post_init__(self) -> None:
         top, right, bottom, left = self.margin
@@ -290,10 +291,25 @@ class Chart:
         where = {"x": f"{self.sx(x):.2f}", "y": f"{self.sy(y) + dy:.2f}", "text-anchor": anchor}
         self._overlay.append(element("text", {"class": cls, **where}, s))
 
-    def legend(self, items: Sequence[tuple[str, str] | tuple[str, str, str]], corner: str = "top-left") -> None:
-        """A small legend of ``(css class, label)`` or ``(css class, label, "line")`` items.
+    def hatch(self, cls: str = "hatch", spacing: float = 5.0) -> str:
+        """Define a diagonal hatching pattern (lines styled by ``cls``); return a ``fill`` value using it."""
+        pid = f"hatch{next(_CLIP_IDS)}"
+        size = f"{spacing:g}"
+        pattern = {"id": pid, "patternUnits": "userSpaceOnUse", "width": size, "height": size}
+        pattern["patternTransform"] = "rotate(45)"
+        stripe = attrs({"class": cls, "x1": 0, "y1": 0, "x2": 0, "y2": size})
+        self._defs.append(f"<pattern {attrs(pattern)}><line {stripe}/></pattern>")
+        return f"url(#{pid})"
 
-        A plain item gets a filled box as its swatch, a ``"line"`` item a short line.
+    def legend(
+        self,
+        items: Sequence[tuple[str, str] | tuple[str, str, str] | tuple[str, str, str, str]],
+        corner: str = "top-left",
+    ) -> None:
+        """A small legend of ``(css class, label[, kind[, fill]])`` items.
+
+        A ``"box"`` item (the default) gets a filled box as its swatch, a ``"line"`` item a short
+        line; ``fill`` (for example a :meth:`hatch` pattern) fills the box.
         """
         x = self.left + 8 if corner.endswith("left") else self.right - 150
         y = self.top + 8 if corner.startswith("top") else self.bottom - 8 - 15 * len(items)
@@ -304,7 +320,7 @@ class Chart:
                 box = {"x1": float(x), "x2": float(x + 14), "y1": yy + 4.5, "y2": yy + 4.5}
                 self._overlay.append(element("line", {"class": cls + " swatch-line", **box}))
             else:
-                box = {"x": x, "y": yy, "width": 14, "height": 9}
+                box = {"x": x, "y": yy, "width": 14, "height": 9, "fill": item[3] if len(item) > 3 else None}
                 self._overlay.append(element("rect", {"class": cls + " swatch", **box}))
             self._overlay.append(element("text", {"class": "legend", "x": x + 19, "y": yy + 8}, label))
 
@@ -361,7 +377,7 @@ class Chart:
         box = {"x": self.left, "y": self.top, "width": self.right - self.left, "height": self.bottom - self.top}
         axes, frame, titles = self._axes()
         body = [
-            f"<defs><clipPath {attrs({'id': clip_id})}>{element('rect', box)}</clipPath></defs>",
+            f"<defs><clipPath {attrs({'id': clip_id})}>{element('rect', box)}</clipPath>{''.join(self._defs)}</defs>",
             *axes,
             f"<g {attrs({'clip-path': f'url(#{clip_id})'})}>",
             *self._marks,
