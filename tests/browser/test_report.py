@@ -1,0 +1,85 @@
+"""The HTML report in chromium: it loads from file:// with no request leaving the page and no error.
+
+Every request the page makes must be the report file itself or a data: URL (the inline
+thumbnails). The browser is set offline first, so a network fetch could not succeed anyway; a
+Content-Security-Policy violation or a script would show up as a console error or a dialog.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+import logitscope
+from logitscope.report import write_report
+from test_report import HOSTILE, hostile_frame
+
+from .harness import ARTIFACTS_DIR
+
+pytestmark = pytest.mark.browser
+
+
+def _open(page, path: Path) -> tuple[list[str], list[str]]:
+    """Open ``path`` offline; return (requests, dialogs)."""
+    requests: list[str] = []
+    dialogs: list[str] = []
+    page.on("request", lambda r: requests.append(r.url))
+    page.on("dialog", lambda d: (dialogs.append(d.message), d.dismiss()))
+    page.context.set_offline(True)
+    page.goto(path.resolve().as_uri(), wait_until="load")
+    return requests, dialogs
+
+
+def _only_the_file_and_data(requests: list[str], path: Path) -> list[str]:
+    url = path.resolve().as_uri()
+    return [r for r in requests if r != url and not r.startswith("data:")]
+
+
+def test_demo_report_loads_offline_with_no_request_and_no_error(browser_page, browser_log, tmp_path: Path) -> None:
+    path = tmp_path / "mailroom-report.html"
+    write_report(
+        logitscope.load_demo("mailroom"),
+        path,
+        fit_temperature=True,
+        target_accuracy=0.98,
+        title="Mail room digits, postcode reader",
+    )
+    requests, dialogs = _open(browser_page, path)
+    assert _only_the_file_and_data(requests, path) == []
+    assert requests[0] == path.resolve().as_uri()
+    assert browser_log.errors() == [] and browser_log.failed_requests == [] and dialogs == []
+    # every plot rendered with a size, every inline thumbnail decoded
+    sizes = browser_page.eval_on_selector_all(
+        "svg.chart", "els => els.map(e => [e.getBoundingClientRect().width, e.getBoundingClientRect().height])"
+    )
+    assert len(sizes) >= 9 and all(w > 100 and h > 50 for w, h in sizes)
+    images = browser_page.eval_on_selector_all("img", "els => els.map(e => [e.complete, e.naturalWidth])")
+    assert images and all(done and width > 0 for done, width in images)
+    # the numbers are on the page as text
+    assert browser_page.locator("#threshold-value").inner_text() != ""
+    assert "Caution." in browser_page.locator("#caution").inner_text()
+    ARTIFACTS_DIR.mkdir(parents=True, exist_ok=True)
+    browser_page.screenshot(path=str(ARTIFACTS_DIR / "report-mailroom.png"), full_page=True)
+    browser_page.locator("#calibration").screenshot(path=str(ARTIFACTS_DIR / "report-mailroom-reliability.png"))
+    browser_page.locator("#threshold").screenshot(path=str(ARTIFACTS_DIR / "report-mailroom-threshold.png"))
+
+
+@pytest.mark.parametrize("labels", [True, False])
+def test_hostile_names_are_shown_as_text_and_never_run(browser_page, browser_log, tmp_path: Path, labels: bool):
+    path = tmp_path / f"hostile-{labels}.html"
+    options = {"fit_temperature": True, "target_accuracy": 0.9} if labels else {}
+    write_report(hostile_frame(labels), path, title=HOSTILE[0], **options)
+    requests, dialogs = _open(browser_page, path)
+    assert dialogs == []  # no alert(1) ran
+    assert _only_the_file_and_data(requests, path) == []  # the <img src=x> never became a request
+    assert browser_log.errors() == []
+    assert browser_page.eval_on_selector_all("script", "els => els.length") == 0
+    text = browser_page.locator("main").inner_text()
+    for name in HOSTILE:
+        assert name in text  # shown literally
+    assert HOSTILE[0] in browser_page.title()
+    if not labels:
+        assert "needs labels" not in text or "What needs labels" in text
+        ARTIFACTS_DIR.mkdir(parents=True, exist_ok=True)
+        browser_page.screenshot(path=str(ARTIFACTS_DIR / "report-unlabelled-hostile.png"), full_page=True)
