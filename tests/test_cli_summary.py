@@ -162,10 +162,25 @@ def test_json_stdout_stays_pure_while_progress_prints(capsys, batch, monkeypatch
             return super().run(lambda: (time.sleep(0.05), fn())[1])
 
     monkeypatch.setattr(cli, "_Progress", EagerProgress)
+    monkeypatch.setenv("LOGITSCOPE_PROGRESS", "1")  # progress is for terminals; force it under capsys
     code, out, err = _run(capsys, "summary", path, "--json")
     assert code == 0
     assert "logitscope: reading" in err and "logitscope: computing scores" in err
     assert json.loads(out)["n_samples"] == 1500  # stdout is one JSON document, nothing else
+
+
+def test_no_progress_lines_off_a_terminal(capsys, batch, monkeypatch):
+    # stderr captured (not a terminal): even a slow step prints nothing but errors
+    path, _, _ = batch
+    monkeypatch.delenv("LOGITSCOPE_PROGRESS", raising=False)
+
+    class SlowProgress(cli._Progress):
+        def __init__(self, label: str, delay: float = 1.0, stream: object = None) -> None:
+            super().__init__(label, delay=0.0, stream=stream)
+
+    monkeypatch.setattr(cli, "_Progress", SlowProgress)
+    code, _, err = _run(capsys, "summary", path, "--json")
+    assert code == 0 and err == ""
 
 
 def test_demo_data_command(capsys, tmp_path):

@@ -1,7 +1,9 @@
 """Every example notebook runs top to bottom, and is committed without outputs.
 
 Each ``example_notebooks/*.ipynb`` is executed with nbclient in a python3 kernel whose working
-directory is the notebook's folder; any cell error fails the test. Widgets render nothing here
+directory is a fresh temporary folder (the notebooks write a relabel list and a report beside
+themselves; a leftover file from an earlier run must not change what a run sees); any cell error
+fails the test. Widgets render nothing here
 (no frontend), but their Python side runs. The committed files must carry no outputs and no
 execution counts, so diffs stay reviewable and no data leaks into git.
 """
@@ -36,7 +38,7 @@ def test_notebook_is_stripped(path: Path) -> None:
 
 
 @pytest.mark.parametrize("path", NOTEBOOKS, ids=_ids(NOTEBOOKS))
-def test_notebook_runs(path: Path) -> None:
+def test_notebook_runs(path: Path, tmp_path: Path) -> None:
     from nbclient import NotebookClient
     from nbclient.exceptions import CellExecutionError
 
@@ -46,7 +48,7 @@ def test_notebook_runs(path: Path) -> None:
         timeout=CELL_TIMEOUT_S,
         kernel_name="python3",
         allow_errors=False,
-        resources={"metadata": {"path": str(path.parent)}},
+        resources={"metadata": {"path": str(tmp_path)}},
     )
     try:
         client.execute()

@@ -9,6 +9,7 @@ from __future__ import annotations
 import argparse
 import json
 import math
+import os
 import sys
 import threading
 import time
@@ -23,13 +24,26 @@ T = TypeVar("T")
 __all__ = ["format_summary", "main"]
 
 
+def _progress_wanted(stream: Any) -> bool:
+    """Progress lines go to a terminal, or anywhere when ``LOGITSCOPE_PROGRESS=1``."""
+    forced = os.environ.get("LOGITSCOPE_PROGRESS")
+    if forced is not None:
+        return forced == "1"
+    return bool(getattr(stream, "isatty", lambda: False)())
+
+
 class _Progress:
-    """Prints ``label ...`` on stderr if a step takes longer than ``delay`` seconds."""
+    """Prints ``label ...`` on stderr if a step takes longer than ``delay`` seconds.
+
+    Only when stderr is a terminal (or ``LOGITSCOPE_PROGRESS=1``), so logs and
+    error output stay one line per problem; a failed step prints no "done" line.
+    """
 
     def __init__(self, label: str, delay: float = 1.0, stream: Any = None) -> None:
         self.label = label
         self.delay = delay
         self.stream = stream or sys.stderr
+        self.enabled = _progress_wanted(self.stream)
         self._done = threading.Event()
         self._shown = False
         self._start = 0.0
@@ -40,17 +54,20 @@ class _Progress:
             print(f"logitscope: {self.label} ...", file=self.stream, flush=True)
 
     def run(self, fn: Callable[[], T]) -> T:
+        if not self.enabled:
+            return fn()
         self._start = time.perf_counter()
         watcher = threading.Thread(target=self._watch, daemon=True)
         watcher.start()
         try:
-            return fn()
+            result = fn()
         finally:
             self._done.set()
             watcher.join()
-            if self._shown:
-                took = time.perf_counter() - self._start
-                print(f"logitscope: {self.label} done in {took:.1f} s", file=self.stream, flush=True)
+        if self._shown:
+            took = time.perf_counter() - self._start
+            print(f"logitscope: {self.label} done in {took:.1f} s", file=self.stream, flush=True)
+        return result
 
 
 def _fmt(v: Any) -> str:
