@@ -108,7 +108,9 @@ def main() -> None:
         torch.set_num_threads(2)
         zt, yt = torch.from_numpy(z), torch.from_numpy(y)
         torch_scores(zt[:1000], yt[:1000])
-        rows.append((f"torch {torch.__version__} log_softmax + entropy + topk", best_of(lambda: torch_scores(zt, yt), 2)))
+        rows.append(
+            (f"torch {torch.__version__} log_softmax + entropy + topk", best_of(lambda: torch_scores(zt, yt), 2))
+        )
     except ImportError:
         print("torch not installed: its baseline is skipped")
 
