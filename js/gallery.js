@@ -6,7 +6,7 @@ const CSS = `
   color: var(--jp-ui-font-color1, #1f2328); }
 .lsg-head { display: flex; flex-wrap: wrap; align-items: center; gap: 8px; margin: 0 0 8px 0; }
 .lsg-title { font-weight: 600; font-size: 13px; }
-.lsg-scope { color: var(--jp-ui-font-color2, #59636e); }
+.lsg-scope, .lsg-sortlabel { color: var(--jp-ui-font-color2, #59636e); }
 .lsg-spacer { flex: 1 1 auto; }
 .lsg-head select, .lsg-head button { font: inherit; padding: 2px 6px; border-radius: 4px;
   border: 1px solid var(--jp-border-color1, #c8ccd0); background: var(--jp-layout-color1, #fff);
@@ -79,7 +79,7 @@ function render({ model, el }) {
   const title = make("span", "lsg-title", "Samples");
   const scope = make("span", "lsg-scope");
   const spacer = make("span", "lsg-spacer");
-  const sortLabel = make("label", "lsg-scope", "sort by ");
+  const sortLabel = make("label", "lsg-sortlabel", "sort by ");
   const sortSel = make("select", "lsg-sort");
   sortLabel.appendChild(sortSel);
   const dirBtn = make("button", "lsg-dir");

@@ -51,15 +51,15 @@ function option(value, text) {
   return o;
 }
 
-function setup(el) {
-  el.classList.add("lsr-root");
+function setup(el, kind) {
+  el.classList.add("lsr-root", kind);
   const style = document.createElement("style");
   style.textContent = CSS; // our own CSS, no data in it
   el.appendChild(style);
 }
 
 function renderQueue({ model, el }) {
-  setup(el);
+  setup(el, "lsr-queue");
   const head = make("div", "lsr-head");
   const count = make("span", "lsr-count");
   const path = make("span", "lsr-path");
@@ -171,7 +171,7 @@ function renderQueue({ model, el }) {
 }
 
 function renderPicker({ model, el }) {
-  setup(el);
+  setup(el, "lsr-picker");
   const row = make("div", "lsr-row");
   const method = make("select", "lsr-method");
   const n = make("input", "lsr-n");

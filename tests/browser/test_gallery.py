@@ -39,7 +39,7 @@ import numpy as np
 import ipywidgets as widgets
 import logitscope
 from logitscope import LogitFrame
-from logitscope.widgets import RelabelQueue, SampleCard, SampleGallery, SharedState
+from logitscope.widgets import LabelIssuePicker, RelabelQueue, SampleCard, SampleGallery, SharedState
 
 HOSTILE = {hostile!r}
 MARKS = pathlib.Path({marks!r})
@@ -52,7 +52,8 @@ state.select(np.flatnonzero(frame.labels == 7), origin="python")
 gallery = SampleGallery(frame, state, page_size=12)
 card = SampleCard(frame, state)
 queue = RelabelQueue(frame, state, path=MARKS)
-widgets.VBox([gallery, widgets.HBox([card, queue])])"""
+picker = LabelIssuePicker(frame, state, n=10, queue=queue)
+widgets.VBox([picker, gallery, widgets.HBox([card, queue])])"""
 
 TEXTS = """\
 desk = logitscope.load_demo("helpdesk")
@@ -154,6 +155,16 @@ def test_gallery_card_queue_in_lab(jupyter_server, notebook_dir, browser_page, b
     tout.scroll_into_view_if_needed()
     screenshot(page, "gallery-helpdesk")
 
+    # the label-issue picker selects its top 10; the gallery shows them
+    out.locator(".lsr-pick").scroll_into_view_if_needed()
+    out.locator(".lsr-pick").click()
+    page.wait_for_function(
+        "el => el.textContent === '10 selected (label issue picker)'", arg=out.locator(".lsg-scope").element_handle()
+    )
+    assert out.locator(".lsg-tile").count() == 10
+    assert out.locator(".lsr-picker .lsr-status").inner_text().startswith("selected 10 of ")
+    screenshot(page, "gallery-label-issues")
+
     # nothing was parsed as markup: no <img src="x">, no dialog
     assert page.locator('img[src="x"]').count() == 0
     assert dialogs == []
@@ -164,7 +175,7 @@ def test_gallery_card_queue_in_lab(jupyter_server, notebook_dir, browser_page, b
     run_cell(page, 0)
     wait_for_output(page, 0, ".lsr-table")
     assert cell(page, 0).locator(".lsr-table tbody tr", has_text=tile_id).count() == 1
-    assert "reopened 1 marks" in cell(page, 0).locator(".lsr-status").inner_text()
+    assert "reopened 1 mark from the file" in cell(page, 0).locator(".lsr-queue .lsr-status").inner_text()
 
     assert dialogs == []
     assert browser_log.errors() == []

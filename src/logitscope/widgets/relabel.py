@@ -100,7 +100,7 @@ class RelabelQueue(anywidget.AnyWidget):
         if notes:
             self.status = " ".join(notes)
         elif loaded:
-            self.status = f"reopened {loaded:,} marks from the file"
+            self.status = f"reopened {loaded:,} mark{'s' if loaded != 1 else ''} from the file"
         else:
             self.status = "no marks yet; the list is saved to the file on every change"
         st.observe(self._on_state, ["rows", "focus", "temperature"])
