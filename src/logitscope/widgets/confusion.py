@@ -29,7 +29,7 @@ __all__ = ["ConfusionHeatmap", "short_label"]
 
 _LABEL_CHARS = 28
 _ZERO_COLOR = "#f7fbff"
-_FULL_COLOR = "#08306b"
+_FULL_COLOR = "#3d85c6"  # light enough for the black cell numbers
 
 
 def short_label(name: str, limit: int = _LABEL_CHARS) -> str:
@@ -138,6 +138,7 @@ class ConfusionHeatmap(widgets.VBox):
             self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
         self._true_pos = self.position[self._labels]
         self._pred_pos = self.position[self._predicted]
+        self._cell = self._true_pos * n_pos + self._pred_pos
 
         ticks = {str(i): short_label(n) for i, n in enumerate(self.position_names)}
         self._s_row = bq.OrdinalScale(reverse=True)
@@ -156,23 +157,33 @@ class ConfusionHeatmap(widgets.VBox):
         )
         self._grid.on_element_click(self._on_cell_click)
         font = {"font-size": "10px" if n_pos > 12 else "12px"}
+        longest = max(len(short_label(n)) for n in self.position_names)
+        text_px = 6.5 if n_pos > 12 else 7.5  # width of one tick-label character
+        left = int(min(40 + text_px * longest, 220))
+        bottom = int(min(45 + 0.72 * text_px * longest, 200)) if n_pos > 6 else 45
         self._ax_col = bq.Axis(
             scale=self._s_col,
             label="predicted class",
+            label_offset=f"{bottom - 12}px",
             tick_labels=ticks,
             tick_rotate=-45 if n_pos > 6 else 0,
             tick_style={**font, "text-anchor": "end"} if n_pos > 6 else font,
             grid_lines="none",
         )
         self._ax_row = bq.Axis(
-            scale=self._s_row, side="left", label="true class", tick_labels=ticks, tick_style=font, grid_lines="none"
+            scale=self._s_row,
+            side="left",
+            label="true class",
+            label_offset=f"{left - 14}px",
+            tick_labels=ticks,
+            tick_style=font,
+            grid_lines="none",
         )
-        longest = max(len(short_label(n)) for n in self.position_names)
-        margin = min(20 + 6 * longest, 190)
         self.figure = bq.Figure(
+            display_toolbar=False,
             marks=[self._grid],
             axes=[self._ax_col, self._ax_row],
-            fig_margin={"top": 10, "bottom": margin if n_pos > 6 else 45, "left": margin, "right": 10},
+            fig_margin={"top": 10, "bottom": bottom, "left": left, "right": 10},
             padding_x=0.0,
             padding_y=0.0,
             layout=widgets.Layout(width="100%", height="430px"),
@@ -181,7 +192,7 @@ class ConfusionHeatmap(widgets.VBox):
         self._color_buttons = widgets.ToggleButtons(
             options=["counts", "row share"],
             value="row share" if normalize else "counts",
-            style={"button_width": "80px"},
+            style={"button_width": "86px"},
         )
         self._diag_box = widgets.Checkbox(
             value=False, description="hide diagonal", indent=False, layout={"width": "auto"}
@@ -198,6 +209,7 @@ class ConfusionHeatmap(widgets.VBox):
         )
         self._pair_box = widgets.VBox(layout={"width": "100%"})
         self._note = widgets.Label()
+        self._note.add_class("logitscope-note")
         pair_panel = widgets.VBox(
             [widgets.HTML("<b>Most confused pairs</b>"), self._k_menu, self._pair_box],
             layout={"width": "250px", "min_width": "220px"},
@@ -274,7 +286,7 @@ class ConfusionHeatmap(widgets.VBox):
             self._note.value = ""
             return
         n = self.n_positions
-        cells = np.unique(self._true_pos[rows] * n + self._pred_pos[rows])
+        cells = np.flatnonzero(np.bincount(self._cell[rows], minlength=n * n))
         self._grid.selected = np.stack([cells // n, cells % n], axis=1).astype(np.int32)
         self._note.value = f"{rows.size:,} selected rows fall in {cells.size:,} cells"
 
@@ -369,8 +381,8 @@ class ConfusionHeatmap(widgets.VBox):
         r, c = self.clicked
         nr = int(self.aggregated[r].sum())
         nc = int(self.aggregated[:, c].sum())
-        self._row_button.description = f"whole row: true {short_label(self.position_names[r], 20)} ({nr:,})"
-        self._col_button.description = f"whole column: predicted {short_label(self.position_names[c], 20)} ({nc:,})"
+        self._row_button.description = f"whole row: true {short_label(self.position_names[r])} ({nr:,})"
+        self._col_button.description = f"whole column: predicted {short_label(self.position_names[c])} ({nc:,})"
         self._row_button.disabled = self._col_button.disabled = False
 
     def _select_clicked(self, which: str) -> None:

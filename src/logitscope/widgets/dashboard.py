@@ -33,9 +33,13 @@ TAB_TITLES = ("Explore", "Calibrate and decide")
 
 def _panel(title: str, child: widgets.Widget, **layout: str) -> widgets.VBox:
     head = widgets.HTML(f"<b>{html.escape(title)}</b>")
-    box = widgets.VBox([head, child], layout=widgets.Layout(padding="4px 6px", min_width="0", **layout))
+    box = widgets.VBox([head, child], layout=widgets.Layout(**{"padding": "4px 6px", "min_width": "0", **layout}))
     box.add_class("logitscope-panel")
     return box
+
+
+def _row(*panels: widgets.Widget) -> widgets.HBox:
+    return widgets.HBox(list(panels), layout=widgets.Layout(width="100%", flex_flow="row wrap", align_items="stretch"))
 
 
 class Dashboard(widgets.VBox):
@@ -102,28 +106,17 @@ class Dashboard(widgets.VBox):
         )
         selection_bar = widgets.HBox([self._selection, self._clear], layout=widgets.Layout(align_items="center"))
 
-        row1 = widgets.HBox(
-            [
-                _panel("Scores, one point per sample", self.scatter, flex="1 1 44%"),
-                _panel("Confidence, correct and wrong apart", self.histogram, flex="1 1 30%"),
-                _panel("Sample", self.card, flex="1 1 26%"),
-            ],
-            layout=widgets.Layout(width="100%"),
+        row1 = _row(
+            _panel("Score scatter", self.scatter, flex="1.3 1 440px", min_width="380px"),
+            _panel("Confidence histogram", self.histogram, flex="1 1 320px", min_width="300px"),
+            _panel("Sample card", self.card, flex="0.9 1 280px", min_width="260px"),
         )
-        row2 = widgets.HBox(
-            [
-                _panel("Confusion (rows true, columns predicted)", self.confusion, flex="1 1 50%"),
-                _panel("Samples in the selection", self.gallery, flex="1 1 50%"),
-            ],
-            layout=widgets.Layout(width="100%"),
+        row2 = _row(_panel("Samples", self.gallery, flex="1 1 100%"))
+        side = widgets.VBox(
+            [_panel("Relabel queue", self.queue), _panel("Label-issue candidates", self.issues)],
+            layout=widgets.Layout(flex="1 1 380px", min_width="340px"),
         )
-        row3 = widgets.HBox(
-            [
-                _panel("Marked for relabeling", self.queue, flex="1 1 50%"),
-                _panel("Label-issue candidates", self.issues, flex="1 1 50%"),
-            ],
-            layout=widgets.Layout(width="100%"),
-        )
+        row3 = _row(_panel("Confusion matrix", self.confusion, flex="1.4 1 640px"), side)
         self.explore = widgets.VBox([row1, row2, row3], layout=widgets.Layout(width="100%"))
         self._calibrate_box = widgets.VBox([widgets.Label("building the calibration views…")])
         self.tabs = widgets.Tab(children=[self.explore, self._calibrate_box], titles=list(TAB_TITLES))

@@ -73,7 +73,7 @@ class TemperatureDial(widgets.HBox):
             disabled=not frame.has_labels,
             layout={"width": "70px"},
         )
-        self.reset_button = widgets.Button(description="T = 1", layout={"width": "60px"})
+        self.reset_button = widgets.Button(description="reset", tooltip="set T = 1", layout={"width": "64px"})
         self.readout = widgets.Label()
         self.readout.add_class("logitscope-dial-readout")
         super().__init__(

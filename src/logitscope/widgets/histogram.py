@@ -81,6 +81,7 @@ class ConfidenceHistogram(widgets.VBox):
         self.n_bins = int(bins)
         self._interval: tuple[float, float] | None = None
         self.edges = np.zeros(0)
+        self._codes = np.zeros(0, dtype=np.int64)
 
         self._sx = bq.LinearScale()
         self._sy = bq.LinearScale(min=0.0)
@@ -93,7 +94,6 @@ class ConfidenceHistogram(widgets.VBox):
             scales={"x": self._sx, "y": self._sy},
             colors=colors,
             labels=series,
-            display_legend=labelled,
             padding=0.05,
             type="stacked",
             stroke="white",
@@ -111,27 +111,33 @@ class ConfidenceHistogram(widgets.VBox):
         )
         self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none")
         self._ay = bq.Axis(scale=self._sy, side="left", label="samples", grid_lines="none", tick_format="~s")
-        self._brush = BrushIntervalSelector(scale=self._sx, marks=[], color="#333333")
+        self._brush = BrushIntervalSelector(scale=self._sx, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected"])
         self.figure = bq.Figure(
+            display_toolbar=False,
             marks=[self._bars, self._sel_bars],
             axes=[self._ax, self._ay],
             interaction=self._brush,
             fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
-            legend_location="top-left",
-            legend_style={"stroke-width": 0},
             layout=widgets.Layout(width="100%", height="300px"),
         )
         self._menu = widgets.Dropdown(
             options=self.scores_offered, value=score, description="score", layout={"width": "210px"}
         )
         self._mode_buttons = widgets.ToggleButtons(
-            options=["stacked", "side by side"], value=layout_mode, style={"button_width": "90px"}
+            options=["stacked", "side by side"], value=layout_mode, style={"button_width": "106px"}
         )
         self._note = widgets.Label()
+        self._note.add_class("logitscope-note")
+        key = "".join(
+            f'<span style="display:inline-block;width:10px;height:10px;background:{c};margin:0 4px 0 10px"></span>{s}'
+            for c, s in zip(colors, series, strict=True)
+        )
+        self._key = widgets.HTML(f'<span style="font-size:12px">{key} (darker: selected)</span>')
         super().__init__(
             children=[
                 widgets.HBox([self._menu, self._mode_buttons], layout={"flex_flow": "row wrap"}),
+                self._key,
                 self.figure,
                 self._note,
             ],
@@ -165,14 +171,14 @@ class ConfidenceHistogram(widgets.VBox):
         return [correct, ~correct]
 
     def counts(self, rows: np.ndarray | None = None) -> np.ndarray:
-        """Counts per series and bin (shape ``(series, bins)``), of all rows or of ``rows``."""
-        v = self.values()
-        out = np.zeros((len(self._groups()), self.n_bins), dtype=np.int64)
-        for i, mask in enumerate(self._groups()):
-            m = mask if rows is None else mask[rows]
-            vv = v[m] if rows is None else v[rows][m]
-            out[i] = np.histogram(vv, bins=self.edges)[0]
-        return out
+        """Counts per series and bin (shape ``(series, bins)``), of all rows or of ``rows``.
+
+        Bins are closed on the left and open on the right, the last bin closed
+        on both sides (as :func:`numpy.histogram`).
+        """
+        codes = self._codes if rows is None else self._codes[rows]
+        n_series = len(self._groups())
+        return np.bincount(codes, minlength=n_series * self.n_bins).reshape(n_series, self.n_bins)
 
     def _redraw(self) -> None:
         v = self.values()
@@ -181,6 +187,12 @@ class ConfidenceHistogram(widgets.VBox):
         if hi <= lo:
             lo, hi = lo - 0.5, hi + 0.5
         self.edges = np.histogram_bin_edges(finite, bins=self.n_bins, range=(lo, hi))
+        # bin of every row, once per score and temperature; a selection then costs one bincount
+        bins = np.clip(np.searchsorted(self.edges, v, side="right") - 1, 0, self.n_bins - 1)
+        series = (
+            np.zeros(v.shape[0], dtype=np.int64) if not self.frame.has_labels else (~self._groups()[0]).astype(np.int64)
+        )
+        self._codes = series * self.n_bins + bins
         centres = (self.edges[:-1] + self.edges[1:]) / 2
         width = self.edges[1] - self.edges[0]
         with self.figure.hold_sync():
@@ -189,7 +201,9 @@ class ConfidenceHistogram(widgets.VBox):
                 self._bars.x = centres
                 self._bars.y = self.counts()
             self._ax.label = self.score.replace("_", " ")
-            self._sel_bars.x = centres
+            with self._sel_bars.hold_sync():
+                self._sel_bars.x = centres
+                self._sel_bars.y = np.zeros((len(self._groups()), self.n_bins))
         self._on_rows()
 
     # ------------------------------------------------------------------ selection in

@@ -188,11 +188,12 @@ class ScoreScatter(widgets.VBox):
         self._mark.on_element_click(self._on_point_click)
         self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none")
         self._ay = bq.Axis(scale=self._sy, label=y, side="left", grid_lines="none")
-        self._brush = BrushSelector(x_scale=self._sx, y_scale=self._sy, marks=[], color="#333333")
+        self._brush = BrushSelector(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected_x", "selected_y"])
         self._probe: bq.Lines | None = None
         self._lasso: LassoSelector | None = None
         self.figure = bq.Figure(
+            display_toolbar=False,
             marks=[self._mark],
             axes=[self._ax, self._ay],
             interaction=self._brush,
@@ -213,12 +214,10 @@ class ScoreScatter(widgets.VBox):
             options=["rectangle", "lasso"],
             value="rectangle",
             tooltips=["drag a rectangle", "draw a free shape"],
-            style={"button_width": "78px"},
+            style={"button_width": "84px"},
         )
         self._note = widgets.Label()
-        shown = len(self.display_rows)
-        if shown < frame.n_samples:
-            self._note.value = f"showing {shown:,} of {frame.n_samples:,} points; selections cover all rows"
+        self._note.add_class("logitscope-note")
         controls = widgets.HBox(
             [self._x_menu, self._y_menu, self._c_menu, self._mode_buttons],
             layout=widgets.Layout(flex_flow="row wrap", align_items="center"),
@@ -298,11 +297,16 @@ class ScoreScatter(widgets.VBox):
         rows = self.state.rows
         if self.state.origin != self.name:
             self._clear_tools()
+        n, shown = self.frame.n_samples, len(self.display_rows)
+        text = f"showing {shown:,} of {n:,} points (selections cover all rows)" if shown < n else ""
         if rows.size == 0:
             self._mark.selected = None
-            return
-        shown = np.flatnonzero(np.isin(self.display_rows, rows, assume_unique=True)).astype(np.uint32)
-        self._mark.selected = shown
+        else:
+            mask = np.zeros(n, dtype=bool)
+            mask[rows] = True
+            self._mark.selected = np.flatnonzero(mask[self.display_rows]).astype(np.uint32)
+            text = f"{rows.size:,} selected" + (f"; {text}" if text else "")
+        self._note.value = text
 
     def _clear_tools(self) -> None:
         """Remove a stale brush rectangle or lasso when another view made the selection."""
@@ -371,7 +375,7 @@ class ScoreScatter(widgets.VBox):
                 interactions={},
             )
             self._probe.observe(self._on_lasso, "selected")
-            self._lasso = LassoSelector(x_scale=self._sx, y_scale=self._sy, marks=[self._probe], color="#333333")
+            self._lasso = LassoSelector(x_scale=self._sx, y_scale=self._sy, marks=[self._probe], color="#3d5f8f")
             self.figure.marks = [self._probe, self._mark]
         return self._lasso
 

@@ -45,7 +45,9 @@ def as_rows(rows: Any, n_samples: int) -> np.ndarray:
             r = r.astype(np.int64)
         else:
             raise ShapeError(f"a selection must hold row positions (integers), got dtype {r.dtype}")
-    r = np.unique(r.astype(np.int64).ravel())
+    r = np.array(r, dtype=np.int64).ravel()  # a copy: the caller may reuse its array
+    if r.size > 1 and not bool(np.all(r[1:] > r[:-1])):  # already sorted and unique: skip the sort
+        r = np.unique(r)
     if r[0] < 0 or r[-1] >= n_samples:
         raise ShapeError(f"selected rows must lie in [0, {n_samples}); got {r[0]} .. {r[-1]}")
     return r

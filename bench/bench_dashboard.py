@@ -1,0 +1,300 @@
+"""Dashboard at scale, measured in a real browser.
+
+Scenario (invented): a parcel-sorting hall where a camera reads the
+destination depot code printed on each parcel. ``N`` parcels, ``K`` depots;
+codes that differ in one digit look alike, so the camera mixes them up, and
+a small share of the keyed labels is wrong. The logits are seeded synthetic
+numbers, not a real model.
+
+The script starts JupyterLab with the browser-test harness
+(``tests/browser/harness.py``), opens a notebook in Debian's chromium and
+measures, in the page (``performance.now()``):
+
+- render: from pressing Shift+Enter on ``logitscope.explore(frame)`` until
+  every view of the Explore tab is drawn (scatter points, histogram bars,
+  heat-map cells, gallery tiles with their images, sample card, queue);
+- brush: from the mouse-up of a rectangle brush on the scatter until every
+  linked view shows the new selection (scatter note, histogram, heat map,
+  gallery, selection bar), median over ``--brushes`` brushes;
+- render with ``--k-large`` classes (heat map shows the top classes plus "other").
+
+Targets: render < 3 s and brush median < 150 ms at N = 100,000, K = 100.
+
+Run: ``python bench/bench_dashboard.py`` (about two minutes; needs
+/usr/bin/chromium and playwright). ``--n``, ``--k``, ``--k-large``,
+``--brushes`` change the sizes.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import shutil
+import statistics
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+REPO = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(REPO))
+
+TARGET_RENDER_S = 3.0
+TARGET_BRUSH_MS = 150.0
+
+
+def parcel_camera_frame(n: int = 100_000, k: int = 100, seed: int = 2024):  # type: ignore[no-untyped-def]
+    """Seeded synthetic logits of the parcel-camera scenario (see the module docstring)."""
+    import logitscope
+
+    rng = np.random.default_rng(seed)
+    weights = 1.0 / (np.arange(k) + 5.0)  # a few busy depots, many quiet ones
+    truth = rng.choice(k, size=n, p=weights / weights.sum())
+    lookalike = (truth + 10) % k  # one digit of the code differs
+    quality = rng.beta(5.0, 2.0, size=n)  # blur, glare, creases
+    z = rng.normal(0.0, 1.0, size=(n, k)).astype(np.float32)
+    rows = np.arange(n)
+    z[rows, truth] += (1.5 + 6.0 * quality).astype(np.float32)
+    mixed = rng.random(n) < 0.2
+    z[rows[mixed], lookalike[mixed]] += (rng.uniform(0.4, 1.1, mixed.sum()) * (1.5 + 6.0 * quality[mixed])).astype(
+        np.float32
+    )
+    labels = truth.copy()
+    keyed_wrong = rng.random(n) < 0.01
+    labels[keyed_wrong] = lookalike[keyed_wrong]
+    classes = [f"depot-{i:03d}" for i in range(k)]
+    ids = np.array([f"parcel-{i:06d}" for i in range(n)])
+    return logitscope.LogitFrame(z, labels=labels, classes=classes, ids=ids)
+
+
+# JS: which views of the dashboard in output ``cell`` are drawn (a dict of booleans).
+VIEWS_JS = """
+([cell, points, cells]) => {
+  const root = document.querySelectorAll('.jp-Notebook .jp-Cell')[cell];
+  if (!root) return {cell: false};
+  const q = (s) => root.querySelectorAll(s);
+  const imgs = Array.from(q('.lsg-grid img, .lsc-root img'));
+  return {
+    scatter: q('.logitscope-scatter .dot').length >= points,
+    histogram: q('.logitscope-histogram .bargroup .bar').length >= 1,
+    heatmap: q('.logitscope-confusion .heatmapcell').length === cells,
+    gallery: q('.lsg-grid').length >= 1 && q('.lsg-grid')[0].children.length >= 1,
+    images: imgs.every((img) => img.complete),
+    card: q('.lsc-root').length >= 1,
+    queue: q('.lsr-root').length >= 2,
+    dial: q('.logitscope-dial .widget-slider').length >= 1,
+  };
+}
+"""
+
+# JS: every view is drawn; returns performance.now() when so.
+RENDERED_JS = (
+    "(args) => { const s = (" + VIEWS_JS.strip() + ")(args);"
+    " return Object.values(s).every(Boolean) ? performance.now() : false; }"
+)
+
+# JS: the texts that report the selection, per view (scatter, histogram, heat map, gallery, bar).
+SELECTION_TEXTS_JS = """
+(cell) => {
+  const root = document.querySelectorAll('.jp-Notebook .jp-Cell')[cell];
+  const t = (s) => { const e = root.querySelector(s); return e ? e.textContent.trim() : ''; };
+  return [
+    t('.logitscope-scatter .logitscope-note'),
+    t('.logitscope-histogram .logitscope-note'),
+    t('.logitscope-confusion .logitscope-note'),
+    t('.lsg-head .lsg-scope'),
+    t('.logitscope-selection'),
+  ];
+}
+"""
+
+# JS: all views show the same selection count and the bar text changed; returns the elapsed ms.
+UPDATED_JS = """
+([cell, before]) => {
+  const root = document.querySelectorAll('.jp-Notebook .jp-Cell')[cell];
+  const t = (s) => { const e = root.querySelector(s); return e ? e.textContent.trim() : ''; };
+  const texts = [
+    t('.logitscope-scatter .logitscope-note'),
+    t('.logitscope-histogram .logitscope-note'),
+    t('.logitscope-confusion .logitscope-note'),
+    t('.lsg-head .lsg-scope'),
+    t('.logitscope-selection'),
+  ];
+  if (texts[4] === before) return false;
+  const lead = (s) => (s.match(/^[0-9,]+/) || [''])[0];
+  const n = lead(texts[4]);
+  if (!n || !texts.every((s) => lead(s) === n)) return false;
+  const imgs = Array.from(root.querySelectorAll('.lsg-grid img, .lsc-root img'));
+  if (!imgs.every((img) => img.complete)) return false;
+  return performance.now() - window.__lsMouseUp;
+}
+"""
+
+MOUSEUP_JS = "() => { window.addEventListener('mouseup', () => { window.__lsMouseUp = performance.now(); }, true); }"
+
+
+def _render(page, index: int, points: int, cells: int, timeout_ms: int = 120_000) -> float:  # type: ignore[no-untyped-def]
+    from tests.browser.harness import cell
+
+    editor = cell(page, index).locator(".jp-InputArea-editor").first
+    editor.scroll_into_view_if_needed()
+    editor.click()
+    t0 = page.evaluate("performance.now()")
+    page.keyboard.press("Shift+Enter")
+    try:
+        t1 = page.wait_for_function(RENDERED_JS, arg=[index, points, cells], polling="raf", timeout=timeout_ms)
+    except Exception:
+        print(f"not all views drawn after {timeout_ms / 1000:.0f} s: {page.evaluate(VIEWS_JS, [index, points, cells])}")
+        raise
+    return (float(t1.json_value()) - float(t0)) / 1000.0
+
+
+def _drag(page, x0: float, y0: float, x1: float, y1: float, steps: int = 12) -> None:  # type: ignore[no-untyped-def]
+    """A mouse drag at a hand's pace: one move every 20 ms (a 50 Hz mouse), then mouse-up."""
+    page.mouse.move(x0, y0)
+    page.mouse.down()
+    for s in range(1, steps + 1):
+        page.mouse.move(x0 + (x1 - x0) * s / steps, y0 + (y1 - y0) * s / steps)
+        page.wait_for_timeout(20)
+    page.mouse.up()
+
+
+def _brushes(page, index: int, count: int) -> list[float]:  # type: ignore[no-untyped-def]
+    from tests.browser.harness import cell
+
+    page.evaluate(MOUSEUP_JS)
+    area = cell(page, index).locator(".logitscope-scatter .plotarea_background").first
+    area.scroll_into_view_if_needed()
+    times = []
+    for i in range(count):
+        box = area.bounding_box()
+        assert box is not None
+        # rectangles of different sizes, always starting outside the previous one
+        x0 = box["x"] + (0.05 + 0.04 * (i % 3)) * box["width"]
+        y0 = box["y"] + (0.05 + 0.03 * (i % 4)) * box["height"]
+        x1 = box["x"] + (0.35 + 0.06 * i) * box["width"] if i < 10 else box["x"] + 0.9 * box["width"]
+        y1 = box["y"] + (0.55 + 0.04 * (i % 5)) * box["height"]
+        if i % 2:  # every other brush: first clear by a click outside the plot's data
+            page.mouse.click(box["x"] + box["width"] - 3, box["y"] + box["height"] - 3)
+            page.wait_for_timeout(300)
+        before = page.evaluate(SELECTION_TEXTS_JS, index)[4]
+        _drag(page, x0, y0, x1, y1)
+        try:
+            ms = page.wait_for_function(UPDATED_JS, arg=[index, before], polling="raf", timeout=20_000)
+        except Exception:
+            print(f"  brush {i + 1}: no update seen within 20 s (texts {page.evaluate(SELECTION_TEXTS_JS, index)})")
+            continue
+        times.append(float(ms.json_value()))
+        page.wait_for_timeout(200)
+    return times
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--n", type=int, default=100_000)
+    parser.add_argument("--k", type=int, default=100)
+    parser.add_argument("--k-large", type=int, default=1000)
+    parser.add_argument("--brushes", type=int, default=10)
+    parser.add_argument("--screenshots", default=str(REPO / "test-artifacts"))
+    args = parser.parse_args(argv)
+
+    from playwright.sync_api import sync_playwright
+    from tests.browser.harness import (
+        launch_chromium,
+        missing_browser_requirements,
+        open_notebook,
+        read_cell_text,
+        run_cell,
+        start_jupyter_server,
+        stop_jupyter_server,
+        write_notebook,
+    )
+
+    missing = missing_browser_requirements()
+    if missing:
+        print("cannot run: missing " + ", ".join(missing))
+        return 2
+    shots = Path(args.screenshots)
+    shots.mkdir(parents=True, exist_ok=True)
+    base = Path(tempfile.mkdtemp(prefix="bench-dashboard-"))
+    cells = [
+        "import sys, time, json\n"
+        f"sys.path.insert(0, {str(REPO / 'bench')!r})\n"
+        "import logitscope\n"
+        "from bench_dashboard import parcel_camera_frame\n"
+        f"frame = parcel_camera_frame({args.n}, {args.k})",
+        "t0 = time.perf_counter()\n"
+        "dash = logitscope.explore(frame, relabel_path='marks.json')\n"
+        "python_s = time.perf_counter() - t0\n"
+        "dash",
+        "print(json.dumps({'python_s': python_s, 'shown': len(dash.scatter.display_rows),"
+        " 'cells': dash.confusion.n_positions ** 2, 'selected': int(dash.selected.size)}))",
+        f"big = parcel_camera_frame({args.n}, {args.k_large}, seed=7)",
+        "t0 = time.perf_counter()\n"
+        "dash_big = logitscope.explore(big, relabel_path='marks-big.json')\n"
+        "python_big_s = time.perf_counter() - t0\n"
+        "dash_big",
+        "print(json.dumps({'python_s': python_big_s, 'shown': len(dash_big.scatter.display_rows),"
+        " 'cells': dash_big.confusion.n_positions ** 2}))",
+    ]
+    from logitscope.widgets.scatter import display_subsample
+
+    shown = len(display_subsample(args.n, 10_000))
+    server = start_jupyter_server(base / "root", base / "home")
+    try:
+        path = write_notebook(base / "root", "bench.ipynb", cells)
+        with sync_playwright() as pw:
+            browser = launch_chromium(pw)
+            try:
+                page = browser.new_context(viewport={"width": 1400, "height": 1000}).new_page()
+                open_notebook(page, server, path)
+                t = time.monotonic()
+                run_cell(page, 0, timeout_ms=600_000)
+                print(f"frame {args.n:,} x {args.k}: built in the kernel in {time.monotonic() - t:.1f} s")
+                cells_small = min(args.k, 30) + (1 if args.k > 30 else 0)
+                render_s = _render(page, 1, shown, cells_small**2)
+                run_cell(page, 2)
+                info = json.loads(read_cell_text(page, 2))
+                page.screenshot(path=str(shots / "bench-dashboard-render.png"))
+                brush_ms = _brushes(page, 1, args.brushes)
+                page.screenshot(path=str(shots / "bench-dashboard-brushed.png"))
+                run_cell(page, 2)
+                after = json.loads(read_cell_text(page, 2))
+
+                run_cell(page, 3, timeout_ms=600_000)
+                cells_big = min(args.k_large, 30) + (1 if args.k_large > 30 else 0)
+                render_big_s = _render(page, 4, shown, cells_big**2)
+                run_cell(page, 5)
+                info_big = json.loads(read_cell_text(page, 5))
+                page.screenshot(path=str(shots / "bench-dashboard-k-large.png"))
+            finally:
+                browser.close()
+    finally:
+        stop_jupyter_server(server)
+        shutil.rmtree(base, ignore_errors=True)
+
+    median = statistics.median(brush_ms) if brush_ms else float("nan")
+    print(f"\nN = {args.n:,}, K = {args.k}; scatter draws {info['shown']:,} points, heat map {info['cells']} cells")
+    print(f"{'measure':48s} {'value':>10s} {'target':>10s}  verdict")
+    rows = [
+        ("render, Shift+Enter to all views drawn (s)", render_s, TARGET_RENDER_S),
+        ("  of which Python builds the dashboard (s)", info["python_s"], None),
+        (f"brush to all views updated, median of {len(brush_ms)} (ms)", median, TARGET_BRUSH_MS),
+        ("  fastest brush (ms)", min(brush_ms) if brush_ms else float("nan"), None),
+        ("  slowest brush (ms)", max(brush_ms) if brush_ms else float("nan"), None),
+        (f"render with K = {args.k_large:,} (s)", render_big_s, TARGET_RENDER_S),
+        ("  of which Python builds the dashboard (s)", info_big["python_s"], None),
+    ]
+    for name, value, target in rows:
+        verdict = "" if target is None else ("meets" if value < target else "MISSES")
+        tgt = "" if target is None else f"< {target:g}"
+        print(f"{name:48s} {value:10.3f} {tgt:>10s}  {verdict}")
+    print(f"brush times (ms): {', '.join(f'{v:.0f}' for v in brush_ms)}")
+    print(f"last selection after the brushes: {after['selected']:,} rows")
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,433 @@
+"""Python-level tests of the bqplot views: ScoreScatter, ConfidenceHistogram, ConfusionHeatmap, TemperatureDial.
+
+Selections are checked against masks built from scipy's softmax (``scipy.special.softmax``) and
+against scikit-learn's ``confusion_matrix``; top-k pairs against ``torch.topk``; the fitted
+temperature against ``scipy.optimize.minimize_scalar`` on the NLL written out with scipy.
+Browser behaviour (a real mouse brush) is tested in tests/browser/test_dashboard.py.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+import torch
+from scipy import optimize, special
+from sklearn.metrics import confusion_matrix as sk_confusion_matrix
+
+import logitscope
+from logitscope import InputTypeError, LogitFrame, ParameterError
+from logitscope.errors import ClassNameError
+from logitscope.widgets import (
+    ConfidenceHistogram,
+    ConfusionHeatmap,
+    ScoreScatter,
+    SharedState,
+    TemperatureDial,
+)
+from logitscope.widgets.scatter import display_subsample
+
+XSS = "<img src=x onerror=alert(1)>"
+
+
+@pytest.fixture(scope="module")
+def mailroom() -> LogitFrame:
+    # sklearn's bundled digits data with out-of-fold logistic-regression logits
+    return logitscope.load_demo("mailroom")
+
+
+@pytest.fixture(scope="module")
+def parcels() -> LogitFrame:
+    """5,000 samples x 12 classes of seeded synthetic logits, with one hostile class name."""
+    rng = np.random.default_rng(11)
+    n, k = 5000, 12
+    y = rng.integers(0, k, n)
+    z = rng.normal(size=(n, k)).astype(np.float32)
+    z[np.arange(n), y] += rng.uniform(0.0, 4.0, n).astype(np.float32)
+    classes = [f"depot-{i:02d}" for i in range(k)]
+    classes[3] = XSS
+    return LogitFrame(z, labels=y, classes=classes)
+
+
+def _softmax(frame: LogitFrame, t: float = 1.0) -> np.ndarray:
+    return special.softmax(np.asarray(frame.logits, dtype=np.float64) / t, axis=1)
+
+
+def _confidence(frame: LogitFrame, t: float = 1.0) -> np.ndarray:
+    return _softmax(frame, t).max(axis=1)
+
+
+def _entropy(frame: LogitFrame, t: float = 1.0) -> np.ndarray:
+    p = _softmax(frame, t)
+    return -(special.xlogy(p, p)).sum(axis=1)
+
+
+class Recorder:
+    """Counts writes to a SharedState (every call of ``select``) by origin."""
+
+    def __init__(self, state: SharedState) -> None:
+        self.calls: list[str] = []
+        original = state.select
+
+        def select(rows, origin=""):  # type: ignore[no-untyped-def]
+            self.calls.append(origin)
+            original(rows, origin)
+
+        state.select = select  # type: ignore[method-assign]
+
+
+# --------------------------------------------------------------------------- scatter
+
+
+def test_display_subsample_is_deterministic_and_bounded():
+    a, b = display_subsample(100_000, 10_000), display_subsample(100_000, 10_000)
+    assert np.array_equal(a, b)
+    assert a.size == 10_000 and np.unique(a).size == 10_000 and a.min() >= 0 and a.max() < 100_000
+    assert np.array_equal(display_subsample(50, 100), np.arange(50))
+    with pytest.raises(ParameterError, match="max_points"):
+        display_subsample(10, 0)
+
+
+def test_scatter_box_selects_over_all_rows_not_only_drawn(parcels):
+    view = ScoreScatter(parcels, x="confidence", y="entropy", max_points=500)
+    assert len(view._mark.x) == 500  # only a subsample is drawn
+    conf, ent = _confidence(parcels), _entropy(parcels)  # scipy reference scores
+    np.testing.assert_allclose(view._mark.x, conf[view.display_rows], rtol=1e-6)
+    np.testing.assert_allclose(view._mark.y, ent[view.display_rows], rtol=1e-5, atol=1e-6)
+
+    # the browser brush sends only its extents; Python computes the rows over all 5,000
+    view._brush.brushing = True
+    view._brush.selected_x = np.array([0.3, 0.7])
+    view._brush.selected_y = np.array([0.5, 2.0])
+    assert view.state.rows.size == 0  # nothing happens while the mouse is still down
+    view._brush.brushing = False
+    expected = np.flatnonzero((conf >= 0.3) & (conf <= 0.7) & (ent >= 0.5) & (ent <= 2.0))
+    assert expected.size > 500  # more than the drawn points: rows outside the subsample count too
+    np.testing.assert_array_equal(view.state.rows, expected)
+    assert view.state.origin == "scatter"
+    # its own selection is highlighted among the drawn points
+    shown = np.flatnonzero(np.isin(view.display_rows, expected))
+    np.testing.assert_array_equal(view._mark.selected, shown)
+
+
+def test_scatter_lasso_rows_come_from_the_all_rows_probe(parcels):
+    view = ScoreScatter(parcels, max_points=300)
+    view.mode = "lasso"
+    assert view.figure.interaction is view._lasso
+    assert len(view._probe.x) == parcels.n_samples  # the invisible line carries every row
+    np.testing.assert_allclose(view._probe.x, _confidence(parcels), rtol=1e-6)
+    picked = np.array([4, 17, 4000, 4999])
+    view._probe.selected = picked.astype(np.uint32)  # what the browser's lasso sends back
+    np.testing.assert_array_equal(view.state.rows, picked)
+    assert view.state.origin == "scatter"
+    view._probe.selected = None  # lasso deleted in the browser
+    assert view.state.rows.size == 0
+    view.mode = "rectangle"
+    assert view.figure.interaction is view._brush
+
+
+def test_scatter_axes_and_colours(parcels):
+    view = ScoreScatter(parcels, x="margin", y="true_probability", color="true class")
+    p = _softmax(parcels)
+    top2 = np.sort(p, axis=1)[:, -2:]
+    np.testing.assert_allclose(view._mark.x, (top2[:, 1] - top2[:, 0])[view.display_rows], atol=1e-6)
+    y = np.asarray(parcels.labels)
+    np.testing.assert_allclose(view._mark.y, p[np.arange(len(y)), y][view.display_rows], atol=1e-6)
+    np.testing.assert_array_equal(view._mark.color, y[view.display_rows])
+    view.color_by = "correct / wrong"
+    correct = p.argmax(axis=1) == y
+    np.testing.assert_array_equal(view._mark.color, correct[view.display_rows].astype(np.float32))
+    view.x_score = "energy"
+    # energy = -logsumexp(z) at T = 1 (scipy.special.logsumexp)
+    energy = -special.logsumexp(np.asarray(parcels.logits, dtype=np.float64), axis=1)
+    np.testing.assert_allclose(view._mark.x, energy[view.display_rows], rtol=1e-5)
+    with pytest.raises(ParameterError, match="not a score"):
+        ScoreScatter(parcels, x="loudness")
+    with pytest.raises(ParameterError, match="not offered"):
+        ScoreScatter(parcels, color="by mood")
+
+
+def test_scatter_follows_temperature(parcels):
+    view = ScoreScatter(parcels)
+    view.state.temperature = 2.5
+    np.testing.assert_allclose(view._mark.x, _confidence(parcels, 2.5)[view.display_rows], rtol=1e-6)
+    np.testing.assert_allclose(view._mark.y, _entropy(parcels, 2.5)[view.display_rows], rtol=1e-5, atol=1e-6)
+    # the brush at the new temperature selects by the new scores
+    rows = view.select_box((0.2, 0.5), (0.0, 10.0))
+    conf = _confidence(parcels, 2.5)
+    np.testing.assert_array_equal(rows, np.flatnonzero((conf >= 0.2) & (conf <= 0.5)))
+
+
+def test_scatter_without_labels_offers_only_label_free_scores():
+    z = np.random.default_rng(3).normal(size=(40, 4))
+    view = ScoreScatter(LogitFrame(z))
+    assert "true_probability" not in view.scores_offered and "confidence" in view.scores_offered
+    assert view.colors_offered == ("predicted class",)
+    np.testing.assert_array_equal(view._mark.color, z.argmax(axis=1))
+
+
+def test_views_check_their_arguments(parcels):
+    with pytest.raises(InputTypeError, match="LogitFrame"):
+        ScoreScatter(np.zeros((3, 2)))
+    with pytest.raises(ParameterError, match="5000"):
+        ConfidenceHistogram(parcels, SharedState(10))
+    with pytest.raises(InputTypeError, match="SharedState"):
+        ConfusionHeatmap(parcels, state="everything")
+
+
+# --------------------------------------------------------------------------- linking
+
+
+def test_selection_from_another_view_is_highlighted_without_feedback(parcels):
+    state = SharedState(parcels.n_samples)
+    rec = Recorder(state)
+    scatter = ScoreScatter(parcels, state, max_points=1000)
+    hist = ConfidenceHistogram(parcels, state)
+    conf = _confidence(parcels)
+
+    hist.select_interval(0.2, 0.4)
+    assert rec.calls == ["histogram"]  # the scatter only redraws; it writes nothing back
+    expected = np.flatnonzero((conf >= 0.2) & (conf <= 0.4))
+    np.testing.assert_array_equal(state.rows, expected)
+    np.testing.assert_array_equal(scatter._mark.selected, np.flatnonzero(np.isin(scatter.display_rows, expected)))
+
+    # a scatter brush replaces the selection; the histogram's own interval is dropped, not re-applied
+    scatter.select_box((0.5, 1.0), (0.0, 5.0))
+    assert rec.calls == ["histogram", "scatter"]
+    assert hist._interval is None
+    # the browser answers the reset of the histogram brush with an empty interval: no write
+    hist._brush.selected = None
+    assert rec.calls == ["histogram", "scatter"]
+    assert state.origin == "scatter"
+    # the same for the scatter's brush after another view selects
+    scatter._brush.selected_x = np.array([0.5, 1.0])
+    scatter._brush.selected_y = np.array([0.0, 5.0])
+    n_calls = len(rec.calls)
+    hist.select_interval(0.6, 0.9)
+    scatter._brush.selected_x = None  # reset seen by the browser
+    assert len(rec.calls) == n_calls + 1 and state.origin == "histogram"
+
+
+def test_own_brush_removed_clears_own_selection(parcels):
+    view = ConfidenceHistogram(parcels)
+    view._brush.selected = np.array([0.3, 0.6])
+    assert view.state.rows.size > 0 and view.state.origin == "histogram"
+    view._brush.selected = None
+    assert view.state.rows.size == 0
+
+
+# --------------------------------------------------------------------------- histogram
+
+
+def test_histogram_interval_rows_equal_numpy_mask(parcels):
+    view = ConfidenceHistogram(parcels, bins=20)
+    conf = _confidence(parcels)  # scipy softmax
+    view._brush.brushing = True
+    view._brush.selected = np.array([0.55, 0.25])  # a brush dragged right to left
+    assert view.state.rows.size == 0
+    view._brush.brushing = False
+    np.testing.assert_array_equal(view.state.rows, np.flatnonzero((conf >= 0.25) & (conf <= 0.55)))
+
+
+def test_histogram_counts_match_numpy_histogram(parcels):
+    view = ConfidenceHistogram(parcels, bins=25)
+    conf = _confidence(parcels)
+    correct = _softmax(parcels).argmax(axis=1) == np.asarray(parcels.labels)
+    edges = np.histogram_bin_edges(conf, bins=25)
+    np.testing.assert_allclose(view.edges, edges, rtol=1e-9)
+    right, wrong = np.histogram(conf[correct], edges)[0], np.histogram(conf[~correct], edges)[0]
+    np.testing.assert_array_equal(view._bars.y, np.stack([right, wrong]))
+    assert view._bars.y.sum() == parcels.n_samples
+    # a selection elsewhere is drawn as its own counts
+    rows = np.arange(0, parcels.n_samples, 7)
+    view.state.select(rows, origin="test")
+    sel_right = np.histogram(conf[rows][correct[rows]], edges)[0]
+    sel_wrong = np.histogram(conf[rows][~correct[rows]], edges)[0]
+    np.testing.assert_array_equal(view._sel_bars.y, np.stack([sel_right, sel_wrong]))
+    assert view._sel_bars.visible and view._bars.opacities == [0.3, 0.3]
+    view.state.clear("test")
+    assert not view._sel_bars.visible
+
+
+def test_histogram_other_score_and_temperature(parcels):
+    view = ConfidenceHistogram(parcels, score="entropy", bins=10, layout_mode="side by side")
+    assert view._bars.type == "grouped"
+    ent = _entropy(parcels, 1.0)
+    rows = view.select_interval(1.0, 2.0)
+    np.testing.assert_array_equal(rows, np.flatnonzero((ent >= 1.0) & (ent <= 2.0)))
+    view.state.temperature = 0.5
+    ent_half = _entropy(parcels, 0.5)
+    np.testing.assert_allclose(view.edges, np.histogram_bin_edges(ent_half, bins=10), rtol=1e-6, atol=1e-9)
+    np.testing.assert_array_equal(view._bars.y.sum(axis=0), np.histogram(ent_half, view.edges)[0])
+    with pytest.raises(ParameterError, match="bins"):
+        ConfidenceHistogram(parcels, bins=0)
+
+
+# --------------------------------------------------------------------------- confusion
+
+
+def test_confusion_cell_row_column_against_sklearn(mailroom):
+    view = ConfusionHeatmap(mailroom)
+    y = np.asarray(mailroom.labels)
+    pred = _softmax(mailroom).argmax(axis=1)
+    ref = sk_confusion_matrix(y, pred, labels=range(10))  # scikit-learn
+    np.testing.assert_array_equal(view.aggregated, ref)
+    np.testing.assert_array_equal(view._grid.color, ref.astype(float))
+    for i, j in [(4, 9), (3, 8), (8, 1), (0, 0)]:
+        rows = view.select_cell(i, j)
+        assert rows.size == ref[i, j]
+        assert np.all(y[rows] == i) and np.all(pred[rows] == j)
+    # a click in the browser sends the cell's row and column numbers
+    view._on_cell_click(view._grid, {"event": "element_click", "data": {"rowNum": 4, "columnNum": 9}})
+    assert view.state.rows.size == ref[4, 9] and view.state.origin == "confusion"
+    assert view.clicked == (4, 9) and not view._row_button.disabled
+    view._row_button.click()
+    assert view.state.rows.size == ref[4].sum() and np.all(y[view.state.rows] == 4)
+    view._col_button.click()
+    assert view.state.rows.size == ref[:, 9].sum() and np.all(pred[view.state.rows] == 9)
+    assert view.select_row("seven").size == ref[7].sum()
+    assert view.select_column("eight").size == ref[:, 8].sum()
+    with pytest.raises(ClassNameError):
+        view.select_cell("eleven", 0)
+    with pytest.raises(ParameterError, match="other"):
+        view.select_cell(None, 0)
+
+
+def test_confusion_row_shares_against_sklearn(mailroom):
+    view = ConfusionHeatmap(mailroom, normalize=True)
+    y = np.asarray(mailroom.labels)
+    pred = np.asarray(mailroom.logits).argmax(axis=1)
+    ref = sk_confusion_matrix(y, pred, normalize="true")  # scikit-learn's row normalisation
+    np.testing.assert_allclose(view._grid.color, ref, rtol=1e-12)
+    view.hide_diagonal = True
+    np.testing.assert_allclose(np.diag(view._grid.color), 0.0)
+    np.testing.assert_allclose(view._grid.color[0, 1:], ref[0, 1:], rtol=1e-12)
+
+
+def test_confusion_highlights_cells_of_a_selection(mailroom):
+    view = ConfusionHeatmap(mailroom)
+    y = np.asarray(mailroom.labels)
+    pred = np.asarray(mailroom.logits).argmax(axis=1)
+    rows = np.array([0, 5, 10, 11, 300, 1796])
+    view.state.select(rows, origin="test")
+    expected = sorted({(int(y[r]), int(pred[r])) for r in rows})
+    assert sorted(map(tuple, view._grid.selected.tolist())) == expected
+    view.state.clear("test")
+    assert view._grid.selected is None
+
+
+def test_confusion_pairs_within_top_k_against_torch(parcels):
+    view = ConfusionHeatmap(parcels)
+    z = torch.from_numpy(np.asarray(parcels.logits))
+    y = torch.from_numpy(np.asarray(parcels.labels))
+    for k in (1, 2, 3):
+        view.k = k
+        assert len(view.pairs) == view.n_pairs
+        top = torch.topk(z, k, dim=1).indices  # torch.topk as the reference
+        counts = [p.count for p in view.pairs]
+        assert counts == sorted(counts, reverse=True)
+        for pair in view.pairs[:4]:
+            in_top = ((y == pair.true) & (top == pair.other).any(dim=1)).numpy()
+            assert pair.count == int(in_top.sum())
+            rows = view.select_pair(pair.true, pair.other)
+            np.testing.assert_array_equal(rows, np.flatnonzero(in_top))
+        # no off-diagonal pair outside the list has a larger count
+        full = torch.zeros(12, 12, dtype=torch.long)
+        full.index_put_((y.repeat_interleave(k), top.reshape(-1)), torch.ones(len(y) * k, dtype=torch.long), True)
+        full.fill_diagonal_(0)
+        assert int(full.max()) == counts[0]
+    # each pair is a clickable button whose text shows the class names literally
+    texts = [b.description for b in view._pair_box.children]
+    assert len(texts) == view.n_pairs
+
+
+def test_confusion_with_1000_classes_shows_top_30_and_other():
+    rng = np.random.default_rng(5)
+    n, k = 30_000, 1000
+    y = rng.integers(0, k, n)
+    z = rng.normal(size=(n, k)).astype(np.float32)
+    z[np.arange(n), y] += 3.5
+    frame = LogitFrame(z, labels=y, classes=[f"route {i}" for i in range(k)])
+    view = ConfusionHeatmap(frame, max_classes=30)
+    assert view.n_positions == 31 and view._grid.color.shape == (31, 31)
+    assert view.position_names[-1] == "other (970 classes)"
+    pred = z.argmax(axis=1)
+    ref = sk_confusion_matrix(y, pred, labels=range(k))  # scikit-learn
+    off = ref.copy()
+    np.fill_diagonal(off, 0)
+    errors = off.sum(axis=0) + off.sum(axis=1)
+    # the 30 drawn classes are those with the most errors (ties by class index)
+    order = sorted(range(k), key=lambda c: (-errors[c], c))[:30]
+    np.testing.assert_array_equal(view.shown_classes, sorted(order))
+    shown = np.asarray(sorted(order))
+    rest = np.setdiff1d(np.arange(k), shown)
+    agg = view.aggregated
+    np.testing.assert_array_equal(agg[:30, :30], ref[np.ix_(shown, shown)])
+    np.testing.assert_array_equal(agg[:30, 30], ref[np.ix_(shown, rest)].sum(axis=1))
+    np.testing.assert_array_equal(agg[30, :30], ref[np.ix_(rest, shown)].sum(axis=0))
+    assert agg[30, 30] == ref[np.ix_(rest, rest)].sum()
+    assert agg.sum() == n
+    # clicking the "other"/"other" cell selects exactly those samples
+    rows = view.select_position(30, 30)
+    assert rows.size == agg[30, 30]
+    assert np.all(np.isin(y[rows], rest)) and np.all(np.isin(pred[rows], rest))
+    # a class not drawn on its own still selects its own samples exactly
+    c = int(rest[0])
+    assert view.select_cell(c, c).size == ref[c, c]
+    assert view.select_row(None).size == ref[rest].sum()
+    # tick labels: 31 of them, never 1000
+    assert len(view._ax_row.tick_labels) == 31
+
+
+def test_confusion_class_names_reach_the_front_end_as_plain_text(parcels):
+    view = ConfusionHeatmap(parcels)
+    # bqplot draws tick labels as SVG text (d3 .text()); the name must arrive unchanged, not escaped twice
+    assert view._ax_row.tick_labels["3"] == XSS
+    assert view._ax_col.tick_labels["3"] == XSS
+    view._on_cell_click(view._grid, {"data": {"rowNum": 3, "columnNum": 0}})
+    assert XSS in view._row_button.description  # ipywidgets Button text is set as text, not HTML
+
+
+def test_confusion_without_labels_explains():
+    view = ConfusionHeatmap(LogitFrame(np.zeros((4, 3))))
+    assert "needs labels" in view.children[0].value
+
+
+# --------------------------------------------------------------------------- dial
+
+
+def test_dial_fit_matches_scipy_minimiser_and_sets_state(mailroom):
+    dial = TemperatureDial(mailroom)
+    fit = dial.fit()
+    z = np.asarray(mailroom.logits, dtype=np.float64)
+    y = np.asarray(mailroom.labels)
+
+    def nll(t: float) -> float:
+        return float(-special.log_softmax(z / t, axis=1)[np.arange(len(y)), y].mean())
+
+    ref = optimize.minimize_scalar(nll, bounds=(0.05, 20), method="bounded", options={"xatol": 1e-7})
+    assert fit.temperature == pytest.approx(ref.x, rel=1e-3)
+    assert dial.state.temperature == fit.temperature
+    assert dial.slider.value == pytest.approx(fit.temperature, rel=0.03)  # slider steps are 0.01 in log10
+    assert f"{fit.temperature:.3g}" in dial.readout.value
+
+
+def test_dial_slider_and_state_stay_in_step(mailroom):
+    state = SharedState(mailroom.n_samples)
+    dial = TemperatureDial(mailroom, state)
+    dial.slider.value = 2.0
+    assert state.temperature == pytest.approx(2.0)
+    state.temperature = 0.5
+    assert dial.slider.value == pytest.approx(0.5)
+    # a temperature beyond the slider's range is kept; the slider rests at its end
+    state.temperature = 100.0
+    assert state.temperature == 100.0 and dial.slider.value == pytest.approx(20.0)
+    assert "T = 100" in dial.readout.value
+    dial.reset_button.click()
+    assert state.temperature == 1.0
+    with pytest.raises(ParameterError):
+        TemperatureDial(mailroom, t_min=2.0, t_max=1.0)
+
+
+def test_dial_without_labels_cannot_fit():
+    dial = TemperatureDial(LogitFrame(np.zeros((3, 2))))
+    assert dial.fit_button.disabled
