@@ -370,7 +370,7 @@ def test_panel_random_split_fits_on_one_part_and_judges_on_the_other(mailroom: L
     split = random_split(mailroom.n_samples, 0.4, seed=5, stratify=mailroom.labels)
     assert np.array_equal(panel.split.fit, split.fit) and np.array_equal(panel.split.held_out, split.held_out)
     assert np.array_equal(panel.diagram.rows, split.fit) and np.array_equal(panel.held_diagram.rows, split.held_out)
-    assert panel.held_diagram.layout.display == ""
+    assert panel._diagrams.children == (panel.diagram, panel.held_diagram)
     z, y = np.asarray(mailroom.logits, dtype=np.float64), mailroom.labels
     t_fit = _scipy_temperature(z[split.fit], y[split.fit])
     assert panel.sweep.fitted.temperature == pytest.approx(t_fit, rel=1e-5)
@@ -394,7 +394,7 @@ def test_panel_random_split_fits_on_one_part_and_judges_on_the_other(mailroom: L
     assert f"{100 * acc.mean():.2f}%" in panel.held_numbers.value
     panel.split_mode = "no split"
     assert panel.split is None and panel.diagram.rows.size == mailroom.n_samples
-    assert panel.held_diagram.layout.display == "none" and panel.held_numbers.value == ""
+    assert panel._diagrams.children == (panel.diagram,) and panel.held_numbers.value == ""
 
 
 def test_panel_split_by_a_metadata_column(mailroom: LogitFrame) -> None:

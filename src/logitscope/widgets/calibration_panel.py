@@ -109,10 +109,15 @@ class CalibrationPanel(widgets.VBox):
         labelled = frame.has_labels
 
         self.diagram = ReliabilityDiagram(frame, self.state, title="All rows", name="reliability")
-        self.held_diagram = ReliabilityDiagram(frame, self.state, title="Held-out part", name="reliability (held out)")
-        self.held_diagram.layout.display = "none"
+        self.held_diagram = ReliabilityDiagram(
+            frame, self.state, title="Held-out part", name="reliability (held out)", show_controls=False
+        )
+        # the held-out diagram joins the row only with a split (a hidden bqplot figure draws with a
+        # negative size and fills the browser console with errors)
+        self._diagrams = widgets.HBox([self.diagram], layout={"flex_flow": "row wrap"})
+        self._diagrams.add_class("logitscope-diagrams")
         self.sweep = TemperatureSweepView(frame, self.state, name="temperature sweep")
-        self.picker = ThresholdPicker(frame, self.state, name="threshold")
+        self.picker = ThresholdPicker(frame, self.state, mode="target accuracy", name="threshold")
         self.diagram.observe(self._mirror_bins, ["n_bins", "strategy"])
         self.held_numbers = widgets.HTML()
 
@@ -120,7 +125,7 @@ class CalibrationPanel(widgets.VBox):
         self._split_mode = widgets.ToggleButtons(
             options=list(SPLIT_MODES),
             value="no split",
-            style={"button_width": "96px"},
+            style={"button_width": "112px"},
             tooltips=["judge on the rows fitted on", "seeded random split", "fit on rows with chosen values"],
             disabled=not labelled,
         )
@@ -186,7 +191,7 @@ class CalibrationPanel(widgets.VBox):
                 _head("Judge on held-out rows"),
                 self._split_box,
                 _head("Reliability"),
-                widgets.HBox([self.diagram, self.held_diagram], layout={"flex_flow": "row wrap"}),
+                self._diagrams,
                 self.held_numbers,
                 _head("Temperature"),
                 self.sweep,
@@ -259,14 +264,14 @@ class CalibrationPanel(widgets.VBox):
         self.split = split
         if split is None:
             self.diagram.set_rows(None, title="All rows")
-            self.held_diagram.layout.display = "none"
+            self._diagrams.children = [self.diagram]
             self.sweep.set_rows(None)
             self.picker.set_rows(None)
             self.split_note.value = ""
         else:
             self.diagram.set_rows(split.fit, title=f"Fit part ({len(split.fit):,} rows)")
             self.held_diagram.set_rows(split.held_out, title=f"Held-out part ({len(split.held_out):,} rows)")
-            self.held_diagram.layout.display = ""
+            self._diagrams.children = [self.diagram, self.held_diagram]
             self.sweep.set_rows(split.fit, split.held_out)
             self.picker.set_rows(split.fit)
             fitted = self.sweep.fitted.temperature if self.sweep.fitted else float("nan")

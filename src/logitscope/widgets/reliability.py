@@ -84,10 +84,14 @@ def numbers_table(numbers: dict, caption: str = "") -> str:
 
 
 _TABLE_CSS = (
-    "<style>.logitscope-numbers{border-collapse:collapse;font-size:12.5px;margin:28px 0 0 4px}"
-    ".logitscope-numbers caption{text-align:left;font-weight:600;padding-bottom:4px;color:#333}"
-    ".logitscope-numbers th{text-align:left;font-weight:normal;color:#5f6b7a;padding:2px 10px 2px 0}"
-    ".logitscope-numbers td{text-align:right;font-variant-numeric:tabular-nums;padding:2px 0}</style>"
+    "<style>.logitscope-numbers{border-collapse:collapse;font-size:12.5px;margin:34px 0 0 4px;"
+    "background:#f4f6f9;border-radius:4px}"
+    ".logitscope-numbers caption{text-align:left;font-weight:600;padding:0 0 4px;color:#333;white-space:nowrap;"
+    "line-height:1.3}"
+    ".logitscope-numbers th{text-align:left;font-weight:normal;color:#5f6b7a;padding:3px 12px 3px 10px;"
+    "line-height:1.3}"
+    ".logitscope-numbers td{text-align:right;font-variant-numeric:tabular-nums;padding:3px 10px 3px 0;"
+    "line-height:1.3}</style>"
 )
 
 
@@ -117,6 +121,8 @@ class ReliabilityDiagram(widgets.VBox):
         Shown above the plot (escaped).
     name : str, default "reliability"
         Origin written to the shared state.
+    show_controls : bool
+        Show the bin controls (a second diagram linked to a first one may leave them out).
 
     Examples
     --------
@@ -144,6 +150,7 @@ class ReliabilityDiagram(widgets.VBox):
         strategy: str = "uniform",
         title: str = "",
         name: str = "reliability",
+        show_controls: bool = True,
         **kwargs: Any,
     ) -> None:
         self.frame = frame
@@ -174,7 +181,7 @@ class ReliabilityDiagram(widgets.VBox):
             close_path=True,
             colors=[COLOR_RIGHT],
             fill_colors=[COLOR_RIGHT],
-            fill_opacities=[0.85],
+            fill_opacities=[0.8],
             stroke_width=1,
             labels=["accuracy"],
         )
@@ -186,7 +193,7 @@ class ReliabilityDiagram(widgets.VBox):
             close_path=True,
             colors=[COLOR_WRONG],
             fill_colors=[COLOR_WRONG],
-            fill_opacities=[0.3],
+            fill_opacities=[0.22],
             stroke_width=0.8,
             labels=["gap"],
         )
@@ -199,9 +206,11 @@ class ReliabilityDiagram(widgets.VBox):
                 bq.Axis(scale=self._sx, grid_lines="none", num_ticks=6, tick_format=".1f"),
                 bq.Axis(scale=self._sy, side="left", label="accuracy", grid_lines="dashed", tick_format=".1f"),
             ],
-            fig_margin={"top": 10, "bottom": 22, "left": 52, "right": 12},
+            fig_margin={"top": 30, "bottom": 22, "left": 48, "right": 12},
+            padding_x=0.0,
+            padding_y=0.0,
             display_toolbar=False,
-            layout=widgets.Layout(width="380px", height="300px"),
+            layout=widgets.Layout(width="330px", height="310px"),
             title=title,
             title_style={"font-size": "13px"},
         )
@@ -243,16 +252,18 @@ class ReliabilityDiagram(widgets.VBox):
             marks=[self.count_bars, self.selected_bars, self._count_labels],
             axes=[
                 bq.Axis(scale=self._sx, label="confidence (maximum probability)", num_ticks=6, tick_format=".1f"),
-                bq.Axis(scale=self._sc, side="left", label="samples", num_ticks=2, tick_format="~s"),
+                bq.Axis(scale=self._sc, side="left", label="samples", visible=False),
             ],
-            fig_margin={"top": 6, "bottom": 38, "left": 52, "right": 12},
+            fig_margin={"top": 6, "bottom": 38, "left": 48, "right": 12},
+            padding_x=0.0,
+            padding_y=0.0,
             display_toolbar=False,
-            layout=widgets.Layout(width="380px", height="110px"),
+            layout=widgets.Layout(width="330px", height="100px"),
         )
         self._strategy_buttons = widgets.ToggleButtons(
             options=list(_STRATEGIES),
             value="equal width" if strategy == "uniform" else "equal mass",
-            style={"button_width": "86px"},
+            style={"button_width": "104px"},
             tooltips=["bins of equal width", "bins holding equal numbers of samples"],
         )
         self._bins_slider = widgets.IntSlider(
@@ -267,9 +278,12 @@ class ReliabilityDiagram(widgets.VBox):
         self.numbers_html = widgets.HTML()
         self.note = widgets.HTML()
         plots = widgets.VBox([self.figure, self.count_figure])
+        controls = widgets.HBox([self._strategy_buttons, self._bins_slider], layout={"flex_flow": "row wrap"})
+        if not show_controls:
+            controls.layout.visibility = "hidden"
         super().__init__(
             children=[
-                widgets.HBox([self._strategy_buttons, self._bins_slider], layout={"flex_flow": "row wrap"}),
+                controls,
                 widgets.HBox([plots, self.numbers_html]),
                 self.note,
             ],
@@ -338,7 +352,7 @@ class ReliabilityDiagram(widgets.VBox):
                 self.gaps.x, self.gaps.y = gx, gy
                 self.gaps.colors = [COLOR_WRONG] * used.size
                 self.gaps.fill_colors = [COLOR_WRONG] * used.size
-                self.gaps.fill_opacities = [0.3] * used.size
+                self.gaps.fill_opacities = [0.22] * used.size
             with self._conf_ticks.hold_sync():
                 self._conf_ticks.x = np.stack([lo, hi], axis=1)
                 self._conf_ticks.y = np.stack([conf, conf], axis=1)
@@ -365,7 +379,7 @@ class ReliabilityDiagram(widgets.VBox):
         with self.bars.hold_sync():
             self.bars.colors = fills
             self.bars.fill_colors = fills
-            self.bars.fill_opacities = [0.85] * n
+            self.bars.fill_opacities = [0.8] * n
 
     # ------------------------------------------------------------------ selection out
 

@@ -24,6 +24,7 @@ import traitlets
 from .. import analysis as an
 from ..errors import ParameterError
 from ..frame import LogitFrame
+from ..report.svg import nice_ticks
 from .scatter import view_state
 from .state import SharedState, as_rows
 
@@ -159,12 +160,20 @@ class TemperatureSweepView(widgets.VBox):
             self.figures[key] = bq.Figure(
                 marks=marks,
                 axes=[
-                    bq.Axis(scale=self._sx, label="temperature T", tick_format=".2~f"),
-                    bq.Axis(scale=self._scales[key], side="left", label=label, tick_format=".2~f", grid_lines="dashed"),
+                    bq.Axis(scale=self._sx, label="temperature T", tick_format=".2~f", grid_lines="none"),
+                    bq.Axis(
+                        scale=self._scales[key],
+                        side="left",
+                        label=label,
+                        tick_format=".3~f",
+                        grid_lines="dashed",
+                    ),
                 ],
                 title=f"{label} against temperature" + (" (drag the dot)" if key == "nll" else ""),
                 title_style={"font-size": "12.5px"},
-                fig_margin={"top": 30, "bottom": 40, "left": 52, "right": 12},
+                fig_margin={"top": 30, "bottom": 44, "left": 52, "right": 12},
+                padding_x=0.0,
+                padding_y=0.0,
                 display_toolbar=False,
                 layout=widgets.Layout(width="300px", height="240px"),
             )
@@ -258,8 +267,10 @@ class TemperatureSweepView(widgets.VBox):
                 both = values if self.compare_sweep is None else np.r_[values, getattr(self.compare_sweep, key)]
                 span = float(np.max(both) - np.min(both)) or 1e-3
                 with self.figures[key].hold_sync():
-                    self._scales[key].min = max(0.0, float(np.min(both)) - 0.06 * span)
-                    self._scales[key].max = float(np.max(both)) + 0.06 * span
+                    y0 = max(0.0, float(np.min(both)) - 0.06 * span)
+                    y1 = float(np.max(both)) + 0.06 * span
+                    self._scales[key].min, self._scales[key].max = y0, y1
+                    self.figures[key].axes[1].tick_values = np.asarray(nice_ticks(y0, y1, n=5))
                     self.curves[key].x, self.curves[key].y = grid, values
                     comp = self.compare_curves[key]
                     if self.compare_sweep is not None:
@@ -270,8 +281,12 @@ class TemperatureSweepView(widgets.VBox):
         dashed = "" if self.compare_rows is None else f"; dashed: the {self.compare_rows.size:,} held-out rows"
         self.note.value = (
             f"<span style='color:#5f6b7a'>Fitted on {html.escape(part_name)}: T = {self.fitted.temperature:.4f} "
-            f"(red rule){dashed}.{bound}</span>"
+            f"(red rule); black rule and dot: the current T{dashed}; dash-dotted: NLL of the selected samples."
+            f"{bound}</span>"
         )
+        ticks = nice_ticks(lo, hi, log=True)
+        for fig in self.figures.values():
+            fig.axes[0].tick_values = np.asarray(ticks)
         self._on_rows()
         self._show_temperature()
 

@@ -46,15 +46,16 @@ _SELECTED = "#6b46c1"
 
 _CSS = (
     "<style>.logitscope-readout{border-collapse:collapse;font-size:12.5px}"
-    ".logitscope-readout th{text-align:left;font-weight:normal;color:#5f6b7a;padding:2px 12px 2px 0}"
-    ".logitscope-readout td{text-align:right;font-variant-numeric:tabular-nums;padding:2px 0}"
+    ".logitscope-readout th{text-align:left;font-weight:normal;color:#5f6b7a;padding:3px 14px 3px 0;line-height:1.3}"
+    ".logitscope-readout td{text-align:right;font-variant-numeric:tabular-nums;padding:3px 0;line-height:1.3}"
     ".logitscope-classes{border-collapse:collapse;font-size:12px;margin-top:4px}"
     ".logitscope-classes th{background:#f4f6f9;font-weight:600;padding:3px 8px;text-align:right}"
     ".logitscope-classes th:first-child,.logitscope-classes td:first-child{text-align:left}"
+    ".logitscope-classes th,.logitscope-classes td{line-height:1.3}"
     ".logitscope-classes td{padding:2px 8px;border-bottom:1px solid #e3e7ec;text-align:right;"
     "font-variant-numeric:tabular-nums}"
     ".logitscope-caution{border-left:4px solid #d9822b;background:#fff7ec;padding:8px 12px;font-size:12.5px;"
-    "max-width:360px;line-height:1.4}</style>"
+    "max-width:380px;line-height:1.4;margin-top:10px}</style>"
 )
 
 
@@ -194,7 +195,7 @@ class ThresholdPicker(widgets.VBox):
         self._mode_buttons = widgets.ToggleButtons(
             options=list(MODES),
             value=mode,
-            style={"button_width": "110px"},
+            style={"button_width": "124px"},
             tooltips=["move the slider", "lowest threshold reaching a target accuracy", "least expected cost"],
         )
         self._target = widgets.BoundedFloatText(
@@ -203,8 +204,8 @@ class ThresholdPicker(widgets.VBox):
             max=1.0,
             step=0.005,
             description="target accuracy",
-            style={"description_width": "100px"},
-            layout={"width": "200px"},
+            style={"description_width": "110px"},
+            layout={"width": "210px"},
         )
         self._lower = widgets.Checkbox(value=False, description="interval's lower bound must reach it", indent=False)
         self._per_class = widgets.Checkbox(value=False, description="one threshold per predicted class", indent=False)
@@ -239,7 +240,7 @@ class ThresholdPicker(widgets.VBox):
             layout={"width": "120px"},
         )
         self._y_kind = widgets.ToggleButtons(
-            options=["accuracy", "risk"], value="accuracy", style={"button_width": "72px"}
+            options=["accuracy", "risk"], value="accuracy", style={"button_width": "84px"}
         )
         self._target_box = widgets.HBox([self._target, self._lower, self._per_class], layout={"flex_flow": "row wrap"})
         self._cost_box = widgets.HBox([self._error_cost, self._review_cost])

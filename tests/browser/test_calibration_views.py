@@ -1,0 +1,188 @@
+"""CalibrationPanel in JupyterLab: a bin click, a drag of the temperature and a brush reach Python.
+
+After each browser action a later cell prints what the kernel saw, and the kernel checks it
+against numpy (the rows of the clicked bin from ``ReliabilityBins.bin_of``, the rows whose
+confidence lies in the brushed range) rather than against fixed numbers. Screenshots of the
+views and of the report written by the panel's button go to test-artifacts/.
+"""
+
+from __future__ import annotations
+
+import json
+import time
+from pathlib import Path
+
+import pytest
+
+from .harness import (
+    ARTIFACTS_DIR,
+    cell,
+    open_notebook,
+    read_cell_text,
+    record_timing,
+    run_cell,
+    wait_for_output,
+    write_notebook,
+)
+
+pytestmark = pytest.mark.browser
+
+PANEL_CELL = """\
+import json
+import numpy as np
+import logitscope
+from logitscope.widgets.calibration_panel import CalibrationPanel
+frame = logitscope.load_demo("mailroom")
+panel = CalibrationPanel(frame, report_path="panel-report.html")
+panel"""
+
+BIN_CELL = """\
+d = panel.diagram
+b = d.selected_bin
+ok = b is not None and np.array_equal(panel.state.rows, d.rows[d.bins.bin_of == b])
+print(json.dumps({"bin": b, "rows": int(panel.state.rows.size), "count": int(d.bins.count[b]) if b is not None else -1,
+                  "origin": panel.state.origin, "ok": bool(ok)}))"""
+
+TEMPERATURE_CELL = """\
+t = panel.state.temperature
+print(json.dumps({"t": t, "marker": float(panel.sweep.marker.x[0]), "diagram_t": panel.diagram.numbers["temperature"],
+                  "fitted": panel.sweep.fitted.temperature,
+                  "picker_t": float(panel.picker.frame.sample_scores(t).temperature),
+                  "nll": panel.diagram.numbers["nll"],
+                  "nll_ref": float(-np.mean(frame.sample_scores(t).true_log_probability))}))"""
+
+BRUSH_CELL = """\
+p = panel.picker
+sel = p.brush.selected
+out = {"origin": panel.state.origin, "selected": None if sel is None else [float(v) for v in sel]}
+if sel is not None and len(sel) == 2:
+    lo, hi = p.confidence_range_of_coverage(*sel)
+    conf = frame.sample_scores(panel.state.temperature).confidence
+    expected = np.flatnonzero((conf >= lo) & (conf <= hi))
+    out.update(rows=int(panel.state.rows.size), ok=bool(np.array_equal(panel.state.rows, expected)),
+               around=bool(lo <= p.threshold <= hi or panel.state.rows.size > 0))
+print(json.dumps(out))"""
+
+REPORT_CELL = """\
+import os
+print(json.dumps({"exists": os.path.exists("panel-report.html"), "path": os.path.abspath("panel-report.html"),
+                  "status": panel.report_status.value}))"""
+
+
+def _json(page, index: int) -> dict:
+    text = read_cell_text(page, index)
+    return json.loads(text.strip().splitlines()[-1])
+
+
+def _plot_box(figure) -> dict:
+    """Bounding box of a bqplot figure's SVG, scrolled into view first (mouse events need it on screen)."""
+    svg = figure.locator("svg").first
+    svg.scroll_into_view_if_needed()
+    return svg.bounding_box()
+
+
+def test_calibration_views_in_jupyterlab(jupyter_server, notebook_dir, browser_page, browser_log) -> None:
+    page = browser_page
+    path = write_notebook(
+        notebook_dir, "calibration.ipynb", [PANEL_CELL, BIN_CELL, TEMPERATURE_CELL, BRUSH_CELL, REPORT_CELL]
+    )
+    open_notebook(page, jupyter_server, path)
+    t0 = time.monotonic()
+    run_cell(page, 0)
+    wait_for_output(page, 0, ".logitscope-calibration .logitscope-threshold .bqplot")
+    out = cell(page, 0).locator(".jp-Cell-outputArea")
+    # wait until the bars of the diagram are drawn (filled paths in the first figure)
+    diagram_fig = out.locator(".logitscope-reliability").first.locator(".bqplot").first
+    diagram_fig.locator("path.area").first.wait_for(state="attached")
+    record_timing("calibration panel rendered", time.monotonic() - t0)
+
+    # 1. click the highest-confidence bin of the reliability diagram: 0.93 .. 1.0 at accuracy ~0.98
+    box = _plot_box(diagram_fig)
+    # fig_margin left 52, right 12, top 10, bottom 22 (reliability.py); x = 0.965, y = 0.5 is inside the last bar
+    px = box["x"] + 52 + 0.965 * (box["width"] - 64)
+    py = box["y"] + 10 + 0.5 * (box["height"] - 32)
+    page.mouse.click(px, py)
+    page.wait_for_timeout(300)
+    run_cell(page, 1)
+    got = _json(page, 1)
+    assert got["ok"] and got["origin"] == "reliability" and got["bin"] == 14, got
+    assert got["rows"] == got["count"] > 0
+
+    # 2. drag the temperature marker on the NLL curve to the right
+    sweep_fig = out.locator(".logitscope-sweep .bqplot").first
+    dot = sweep_fig.locator("path.dot").first
+    dot.wait_for(state="attached")
+    _plot_box(sweep_fig)
+    dbox = dot.bounding_box()
+    cx, cy = dbox["x"] + dbox["width"] / 2, dbox["y"] + dbox["height"] / 2
+    page.mouse.move(cx, cy)
+    page.mouse.down()
+    page.mouse.move(cx + 70, cy, steps=8)
+    page.mouse.up()
+    page.wait_for_timeout(500)
+    run_cell(page, 2)
+    got = _json(page, 2)
+    assert got["t"] > 1.05, got  # moved right on a log axis from T = 1
+    assert got["marker"] == pytest.approx(got["t"]) and got["diagram_t"] == pytest.approx(got["t"])
+    assert got["nll"] == pytest.approx(got["nll_ref"], rel=1e-12)
+
+    # 3. the "use fitted T" button sets the fitted temperature everywhere
+    out.locator(".logitscope-sweep button", has_text="use fitted T").first.click()
+    page.wait_for_timeout(500)
+    run_cell(page, 2)
+    got = _json(page, 2)
+    assert got["t"] == pytest.approx(got["fitted"]) and got["diagram_t"] == pytest.approx(got["fitted"]), got
+
+    # 4. brush an interval of coverage on the threshold curve
+    picker_fig = out.locator(".logitscope-threshold .bqplot").first
+    pbox = _plot_box(picker_fig)
+    # fig_margin left 60, right 14 (threshold.py); coverage 0.55 .. 0.80
+    x0 = pbox["x"] + 60 + 0.55 * (pbox["width"] - 74)
+    x1 = pbox["x"] + 60 + 0.80 * (pbox["width"] - 74)
+    y = pbox["y"] + pbox["height"] / 2
+    page.mouse.move(x0, y)
+    page.mouse.down()
+    page.mouse.move(x1, y, steps=8)
+    page.mouse.up()
+    page.wait_for_timeout(500)
+    run_cell(page, 3)
+    got = _json(page, 3)
+    assert got["origin"] == "threshold" and got["selected"] is not None, got
+    assert got["selected"][0] == pytest.approx(0.55, abs=0.03) and got["selected"][1] == pytest.approx(0.80, abs=0.03)
+    assert got["ok"] and got["rows"] > 0
+
+    # screenshots of the two views (and the diagram showing the brushed rows in its count strip)
+    ARTIFACTS_DIR.mkdir(parents=True, exist_ok=True)
+    out.locator(".logitscope-reliability").first.scroll_into_view_if_needed()
+    out.locator(".logitscope-reliability").first.screenshot(path=str(ARTIFACTS_DIR / "calibration-reliability.png"))
+    out.locator(".logitscope-sweep").first.screenshot(path=str(ARTIFACTS_DIR / "calibration-sweep.png"))
+    out.locator(".logitscope-threshold").first.screenshot(path=str(ARTIFACTS_DIR / "calibration-threshold.png"))
+
+    # 5. a random split: two diagrams, the held-out numbers
+    out.locator(".logitscope-calibration .widget-toggle-button", has_text="random split").first.click()
+    held = out.locator(".logitscope-reliability").nth(1)
+    held.locator("path.area").first.wait_for(state="attached")
+    page.wait_for_function("el => getComputedStyle(el).display !== 'none'", arg=held.element_handle(), timeout=30_000)
+    diagrams = out.locator(".logitscope-diagrams").first
+    diagrams.scroll_into_view_if_needed()
+    diagrams.screenshot(path=str(ARTIFACTS_DIR / "calibration-split-diagrams.png"))
+
+    # 6. the report button writes the report for these choices
+    out.locator(".logitscope-calibration button", has_text="write report").first.click()
+    page.wait_for_timeout(200)
+    deadline = time.monotonic() + 30
+    got = {}
+    while time.monotonic() < deadline:
+        run_cell(page, 4)
+        got = _json(page, 4)
+        if got["exists"]:
+            break
+    assert got["exists"] and "Wrote" in got["status"], got
+    report = page.context.new_page()
+    report.goto(Path(got["path"]).as_uri(), wait_until="load")
+    report.screenshot(path=str(ARTIFACTS_DIR / "calibration-panel-report.png"), full_page=True)
+    assert report.locator("#decision-temperature").inner_text().startswith("T = ")
+    report.close()
+    errors = browser_log.errors()
+    assert errors == [], errors[:5]
+    assert browser_log.external_requests() == []
