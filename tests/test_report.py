@@ -159,6 +159,7 @@ def test_fitted_temperature_matches_scipy(mailroom: LogitFrame, mailroom_page: P
     t_ref = _scipy_fitted_temperature(z, y)
     assert mailroom_page.value("fitted-temperature") == pytest.approx(t_ref, rel=1e-5)
     assert mailroom_page.value("decision-temperature") == pytest.approx(t_ref, rel=1e-5)
+    assert mailroom_page.text("decision-how") == "fitted: minimum NLL on all labelled rows"
 
 
 def test_summary_table_matches_sklearn_and_scipy(mailroom: LogitFrame, mailroom_page: Page) -> None:
@@ -547,6 +548,7 @@ def test_a_given_temperature_and_split_are_used(tmp_path: Path) -> None:
     write_report(helpdesk, path, temperature=0.5)
     page = read_report(path)
     assert page.value("decision-temperature") == 0.5
+    assert page.text("decision-how") == "set by hand"
     p = _probs(helpdesk, 0.5)
     assert page.value("summary-nll-after") == pytest.approx(log_loss(helpdesk.labels, p), rel=1e-7)  # sklearn
     # a split given by the caller replaces the default one

@@ -419,6 +419,7 @@ def test_write_report_button_uses_the_current_choices(mailroom: LogitFrame, tmp_
     panel.report_button.click()
     page = read_report(tmp_path / "team.html")
     assert page.value("decision-temperature") == panel.state.temperature
+    assert page.text("decision-how") == "fitted: minimum NLL on all labelled rows"
     assert page.value("threshold-value") == pytest.approx(panel.picker.threshold)
     assert page.value("threshold-cost") == pytest.approx(panel.picker.choice.expected_cost)
     assert "Wrote" in panel.report_status.value
@@ -432,6 +433,8 @@ def test_write_report_button_uses_the_current_choices(mailroom: LogitFrame, tmp_
     assert page.value("threshold-accepted") == np.sum(conf >= 0.9)  # the report reads all rows
     # the held-out check: the same threshold judged on the held-out part, as the panel shows it
     assert page.value("split-held-n") == len(panel.split.held_out)
+    # T fitted on all rows, while the split fits on its fit part: the report says what it is
+    assert page.text("decision-how") == "set by hand, equal to the fitted temperature"
     assert page.value("split-held-coverage") == pytest.approx(np.mean(conf[panel.split.held_out] >= 0.9))
     assert page.value("split-held-coverage") == pytest.approx(panel.held_out_numbers()["threshold"].coverage)
     panel.report_path.value = "  "

@@ -37,6 +37,7 @@ def write_report(
     n_bins: int = 15,
     strategy: str = "uniform",
     split: Split | None = None,
+    temperature_how: str | None = None,
 ) -> None:
     """Write one self-contained HTML report about ``frame`` to ``path`` (atomically).
 
@@ -78,6 +79,8 @@ def write_report(
         Equal-width or equal-mass bins.
     split : Split, optional
         Fit/held-out rows for the held-out check (default: a stratified random half split, seed 0).
+    temperature_how : str, optional
+        How the temperature was chosen, in words for the page (escaped); default from the options.
 
     Examples
     --------
@@ -106,6 +109,7 @@ def write_report(
         level=level,
         n_bins=n_bins,
         strategy=strategy,  # type: ignore[arg-type]
+        temperature_how=temperature_how,
     )
     page = build_report(frame, choices, title=title, split=split)
     with atomic_write(path, "w") as fh:

@@ -102,6 +102,7 @@ def resolve_choices(
     level: float = 0.95,
     n_bins: int = 15,
     strategy: an.calibration.Strategy = "uniform",
+    temperature_how: str | None = None,
 ) -> ReportChoices:
     """Check the report options and settle the temperatures and the threshold rule.
 
@@ -173,11 +174,15 @@ def resolve_choices(
     if temperature is not None:
         t = an.check_temperature(temperature)
         how = "set by hand"
+        if fitted is not None and math.isclose(t, fitted.temperature, rel_tol=1e-9):
+            how = "set by hand, equal to the fitted temperature"
     elif fit_temperature:
         assert fitted is not None
         t, how = fitted.temperature, "fitted: minimum NLL on all labelled rows"
     else:
         t, how = base, "as given"
+    if temperature_how:
+        how = str(temperature_how)
     if fitted is None:
         compare, compare_how = None, ""
     elif not math.isclose(t, base, rel_tol=1e-12):
@@ -400,7 +405,8 @@ def coverage_svg(
     )
     ch.line(np.r_[0.0, cov], np.r_[acc[0], acc], cls="series accuracy-curve")
     if target is not None:
-        ch.hline(target, cls="target", label=f"target {target:g}")
+        side = "left" if choice is not None and choice.coverage > 0.6 else "right"
+        ch.hline(target, cls="target", label=f"target {target:g}", label_side=side)
     if choice is not None and choice.n_accepted > 0:
         ch.vline(choice.coverage, cls="chosen", label=f"threshold {choice.threshold:.4g}")
         ch.point(choice.coverage, choice.accuracy, r=5, cls="chosen-point", data={"id": "coverage-chosen-point"})
@@ -569,7 +575,7 @@ def _summary_section(frame: LogitFrame, ch: ReportChoices) -> str:
     used = (
         f"<p class='decision-t'>Threshold and relabelling candidates below use "
         f"<span id='decision-temperature' class='num' data-value='{_raw(ch.temperature)}'>"
-        f"{_temp_label(ch.temperature)}</span> ({esc(ch.temperature_how)}).</p>"
+        f"{_temp_label(ch.temperature)}</span> (<span id='decision-how'>{esc(ch.temperature_how)}</span>).</p>"
     )
     return _section("summary", "Summary", counts + _table(head, rows, id="summary-table") + fit_note + used)
 

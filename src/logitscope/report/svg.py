@@ -276,14 +276,17 @@ class Chart:
             self._n_rule_labels += 1
             self._overlay.append(element("text", {"class": cls + "-label rule-label", **where}, label))
 
-    def hline(self, y: float, cls: str = "rule", label: str = "") -> None:
-        """A horizontal rule across the plot at data ``y``."""
+    def hline(self, y: float, cls: str = "rule", label: str = "", label_side: str = "right") -> None:
+        """A horizontal rule across the plot at data ``y``, its label at the ``label_side`` end."""
         py = self.sy(y)
         self._overlay.append(
             element("line", {"class": cls, "x1": self.left, "x2": self.right, "y1": f"{py:.2f}", "y2": f"{py:.2f}"})
         )
         if label:
-            where = {"x": self.right - 4, "y": f"{py - 4:.2f}", "text-anchor": "end"}
+            if label_side == "left":
+                where = {"x": self.left + 4, "y": f"{py - 4:.2f}", "text-anchor": "start"}
+            else:
+                where = {"x": self.right - 4, "y": f"{py - 4:.2f}", "text-anchor": "end"}
             self._overlay.append(element("text", {"class": cls + "-label", **where}, label))
 
     def text(self, x: float, y: float, s: str, cls: str = "note", anchor: str = "middle", dy: float = 0.0) -> None:

@@ -347,6 +347,10 @@ class CalibrationPanel(widgets.VBox):
         opts.update(interval=p.interval, level=p.level, n_bins=self.diagram.n_bins, strategy=self.diagram.strategy)
         if self.split is not None:
             opts["split"] = self.split
+        fitted = self.sweep.fitted
+        if fitted is not None and math.isclose(self.state.temperature, fitted.temperature, rel_tol=1e-9):
+            part = "all labelled rows" if self.split is None else "the fit part of the split"
+            opts["temperature_how"] = f"fitted: minimum NLL on {part}"
         return opts
 
     def write_report(self, path: str | os.PathLike[str] | None = None) -> str:
