@@ -34,7 +34,7 @@ _METRICS = (("nll", "NLL", "#3b6ea8"), ("ece", "ECE", "#d9822b"), ("brier", "Bri
 _FITTED = "#c23b3b"
 _CURRENT = "#1f2933"
 #: Largest selection whose own NLL curve is drawn (one pass over its rows per grid point).
-MAX_SELECTION_SWEEP = 200_000
+MAX_SELECTION_SWEEP = 100_000
 
 
 class TemperatureSweepView(widgets.VBox):
