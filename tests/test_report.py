@@ -44,6 +44,8 @@ class Page(HTMLParser):
         self.elements: list[dict] = []
         self._open: list[dict] = []
         self.feed(text)
+        ids = [e["attrs"]["id"] for e in self.elements if "id" in e["attrs"]]
+        self.duplicate_ids = sorted({i for i in ids if ids.count(i) > 1})
         self.by_id = {e["attrs"]["id"]: e for e in self.elements if "id" in e["attrs"]}
 
     _VOID: ClassVar[set[str]] = {"meta", "br", "img", "input", "link", "hr", "col", "area", "base", "wbr", "source"}
@@ -471,6 +473,7 @@ def test_report_is_self_contained(mailroom_page: Page, mailroom: LogitFrame, tmp
     assert "@import" not in text and "<link" not in text and "<script" not in text
     # the only http string is the SVG namespace name, which is never fetched
     assert set(__import__("re").findall(r"https?://[^\s\"'<>]+", text)) == {"http://www.w3.org/2000/svg"}
+    assert mailroom_page.duplicate_ids == []  # every id names one element (they are how the numbers are read)
     csp = [e for e in mailroom_page.elements if e["attrs"].get("http-equiv") == "Content-Security-Policy"]
     assert csp and "default-src 'none'" in csp[0]["attrs"]["content"]
     # thumbnails of the digits are inline PNGs
@@ -492,7 +495,8 @@ def test_unlabelled_frame_shows_what_needs_no_labels(tmp_path: Path) -> None:
     counts = np.bincount(p.argmax(axis=1), minlength=frame.n_classes)
     for k in range(frame.n_classes):
         assert page.value(f"predicted-{k}-count") == counts[k]
-    needs = page.text("needs-labels")
+    assert page.duplicate_ids == []
+    needs = page.text("needs-labels-list")
     for what in ("reliability diagram", "temperature", "threshold", "confused", "relabelling"):
         assert what in needs
     assert "threshold-value" not in page.by_id and "summary-accuracy-before" not in page.by_id

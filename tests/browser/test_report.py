@@ -80,6 +80,6 @@ def test_hostile_names_are_shown_as_text_and_never_run(browser_page, browser_log
         assert name in text  # shown literally
     assert HOSTILE[0] in browser_page.title()
     if not labels:
-        assert "What needs labels" in text and browser_page.locator("#needs-labels").is_visible()
+        assert "What needs labels" in text and browser_page.locator("#needs-labels-list").is_visible()
         ARTIFACTS_DIR.mkdir(parents=True, exist_ok=True)
         browser_page.screenshot(path=str(ARTIFACTS_DIR / "report-unlabelled-hostile.png"), full_page=True)

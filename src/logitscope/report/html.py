@@ -977,7 +977,7 @@ def _unlabelled_sections(frame: LogitFrame, ch: ReportChoices) -> str:
     needs = _section(
         "needs-labels",
         "What needs labels",
-        "<p id='needs-labels'>This file has no labels, so the report cannot show: accuracy, NLL, Brier score, "
+        "<p id='needs-labels-list'>This file has no labels, so the report cannot show: accuracy, NLL, Brier score, "
         "calibration errors and the reliability diagram; the temperature fit and sweep; the accuracy-coverage "
         "curve and a review threshold; the most confused pairs; the candidates for relabelling. Add labels "
         "(<code>frame.with_labels(...)</code>) to get them.</p>",

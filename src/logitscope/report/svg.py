@@ -284,7 +284,7 @@ class Chart:
         )
         if label:
             if label_side == "left":
-                where = {"x": self.left + 4, "y": f"{py - 4:.2f}", "text-anchor": "start"}
+                where = {"x": self.left + 4, "y": f"{py + 12:.2f}", "text-anchor": "start"}
             else:
                 where = {"x": self.right - 4, "y": f"{py - 4:.2f}", "text-anchor": "end"}
             self._overlay.append(element("text", {"class": cls + "-label", **where}, label))
