@@ -97,7 +97,7 @@ def main() -> None:
     t_frame = best_of(fresh_scores, args.repeat)
     rows.append(("LogitFrame.scores() (DataFrame)", t_frame))
     t_arrays = best_of(lambda: sample_scores(z, y), args.repeat)
-    rows.append((f"analysis.sample_scores ({scores_module.available_backends()[0]})", t_arrays))
+    rows.append((f"analysis.sample_scores ({scores_module.available_backends()[0]}, checks finiteness)", t_arrays))
     t_numpy = best_of(lambda: sample_scores(z, y, backend="numpy"), 1)
     rows.append(("analysis.sample_scores (numpy backend)", t_numpy))
     t_naive = best_of(lambda: naive(z, y), 1)
@@ -117,10 +117,10 @@ def main() -> None:
     calls = 0
     original = scores_module.temperature_moments
 
-    def counting(*a: object, **k: object) -> tuple[float, float, float]:
+    def counting(logits: np.ndarray, *a: object, **k: object) -> tuple[float, float, float]:
         nonlocal calls
-        calls += 1
-        return original(*a, **k)
+        calls += logits.shape[0] == args.n  # count passes over all rows, not the warm-start subsample
+        return original(logits, *a, **k)
 
     import logitscope.analysis.temperature as temp_module
 
@@ -131,7 +131,7 @@ def main() -> None:
         t_fit = time.perf_counter() - start
     finally:
         temp_module.temperature_moments = original  # type: ignore[assignment]
-    rows.append((f"fit_temperature ({calls} passes, T = {fit.temperature:.4f})", t_fit))
+    rows.append((f"fit_temperature ({calls} full passes, T = {fit.temperature:.4f})", t_fit))
 
     width = max(len(r[0]) for r in rows) + 2
     print(f"\n{'what':<{width}}{'seconds':>9}{'x floor':>9}")
