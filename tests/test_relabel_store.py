@@ -235,3 +235,21 @@ def test_default_path_and_fingerprint(mailroom: LogitFrame, tmp_path: Path) -> N
     assert fingerprint(shifted) == fingerprint(mailroom)
     fewer = mailroom.subset(np.arange(100))
     assert fingerprint(fewer) != fingerprint(mailroom)
+
+
+def test_csv_export_defuses_spreadsheet_formulas(tmp_path):
+    # OWASP "CSV Injection": cells starting with = + - @ are prefixed with ' so a spreadsheet shows them as text;
+    # plain numbers are left alone
+    import numpy as np
+    import pandas as pd
+
+    from logitscope import LogitFrame
+    from logitscope.relabel_store import RelabelStore
+
+    frame = LogitFrame(np.eye(3), labels=[0, 1, 2], classes=["a", "b", "c"], ids=["=cmd()", "-2", "ok"])
+    store = RelabelStore(tmp_path / "marks.json", frame=frame)
+    store.add("=cmd()", suggested_label="b", note="@SUM(A1)")
+    store.add("-2", suggested_label="c", note="fine")
+    out = pd.read_csv(store.export_csv(tmp_path / "marks.csv"), dtype=str)
+    assert set(out["id"]) == {"'=cmd()", "-2"}
+    assert "'@SUM(A1)" in set(out["note"])

@@ -447,10 +447,37 @@ class RelabelStore:
             df[col] = df[col].astype(object)
         return df
 
-    def export_csv(self, path: str | os.PathLike[str]) -> Path:
-        """Write the marks to a CSV file atomically and return its path."""
+    def export_csv(self, path: str | os.PathLike[str], spreadsheet_safe: bool = True) -> Path:
+        """Write the marks to a CSV file atomically and return its path.
+
+        With ``spreadsheet_safe`` (the default) a text cell that a spreadsheet
+        would run as a formula (starting with ``= + - @``, tab or carriage
+        return, and not a plain number) is prefixed with ``'``, as OWASP's
+        advice on CSV injection recommends.
+        """
         target = Path(path)
         df = self.to_frame()
+        if spreadsheet_safe:
+            for col in df.columns:
+                if df[col].dtype == object or pd.api.types.is_string_dtype(df[col]):
+                    df[col] = df[col].map(_defuse_formula)
         with atomic_write(target, "w") as fh:
             df.to_csv(fh, index=False, lineterminator="\n")
         return target
+
+
+def _defuse_formula(value: object) -> object:
+    """Prefix ``'`` to a string a spreadsheet would evaluate as a formula.
+
+    Examples
+    --------
+    >>> _defuse_formula("=HYPERLINK(1)"), _defuse_formula("-3.5"), _defuse_formula("card-1")
+    ("'=HYPERLINK(1)", '-3.5', 'card-1')
+    """
+    if not isinstance(value, str) or not value or value[0] not in "=+-@\t\r":
+        return value
+    try:
+        float(value)
+    except ValueError:
+        return "'" + value
+    return value
