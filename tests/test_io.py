@@ -222,3 +222,27 @@ def test_corrupt_and_misshapen_parquet(tmp_path):
     pd.DataFrame({"logit:a": [0.0, 1.0], "logit:b": [1.0, 0.0], "label": [0, 5]}).to_parquet(tmp_path / "l.parquet")
     with pytest.raises(LabelError, match=r"l.parquet: .*out of range at row 1"):
         LogitFrame.read(tmp_path / "l.parquet")
+
+
+def test_atomic_write_gives_normal_permissions_and_keeps_existing_ones(tmp_path):
+    # a file written atomically must not stay private (tempfile.mkstemp creates 0o600): new files get
+    # 0o666 less the umask, as open() would give them (POSIX open(2)); a replaced file keeps its mode
+    import os
+    import stat
+
+    from logitscope._atomic import atomic_write
+
+    mask = os.umask(0o022)
+    try:
+        new = tmp_path / "new.txt"
+        with atomic_write(new, "w") as fh:
+            fh.write("x")
+        assert stat.S_IMODE(new.stat().st_mode) == 0o644
+        old = tmp_path / "old.txt"
+        old.write_text("a")
+        old.chmod(0o640)
+        with atomic_write(old, "w") as fh:
+            fh.write("b")
+        assert stat.S_IMODE(old.stat().st_mode) == 0o640 and old.read_text() == "b"
+    finally:
+        os.umask(mask)

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import stat
 import tempfile
 from collections.abc import Iterator
 from pathlib import Path
@@ -15,6 +16,9 @@ def atomic_write(path: str | os.PathLike[str], mode: str = "wb") -> Iterator[IO]
     """Open a temporary file beside ``path``; on success fsync it and rename it over ``path``.
 
     If the block raises, the temporary file is removed and ``path`` is untouched.
+    The new file keeps the permissions of the file it replaces, or gets those of
+    a normally created file (``0o666`` less the umask); the temporary file
+    itself starts private.
 
     Examples
     --------
@@ -29,6 +33,7 @@ def atomic_write(path: str | os.PathLike[str], mode: str = "wb") -> Iterator[IO]
     target.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
     try:
+        _match_mode(fd, target)
         encoding = None if "b" in mode else "utf-8"
         with os.fdopen(fd, mode, encoding=encoding) as fh:
             yield fh
@@ -45,3 +50,15 @@ def atomic_write(path: str | os.PathLike[str], mode: str = "wb") -> Iterator[IO]
         with contextlib.suppress(OSError):
             os.unlink(tmp)
         raise
+
+
+def _match_mode(fd: int, target: Path) -> None:
+    if not hasattr(os, "fchmod"):  # pragma: no cover - Windows
+        return
+    try:
+        mode = stat.S_IMODE(target.stat().st_mode)
+    except FileNotFoundError:
+        mask = os.umask(0)
+        os.umask(mask)
+        mode = 0o666 & ~mask
+    os.fchmod(fd, mode)

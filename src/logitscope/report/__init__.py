@@ -114,12 +114,3 @@ def write_report(
     page = build_report(frame, choices, title=title, split=split)
     with atomic_write(path, "w") as fh:
         fh.write(page)
-        _make_readable(fh.fileno())
-
-
-def _make_readable(fd: int) -> None:
-    """Give the report the permissions of a normally created file (the temporary file starts private)."""
-    if hasattr(os, "fchmod"):
-        mask = os.umask(0)
-        os.umask(mask)
-        os.fchmod(fd, 0o666 & ~mask)
