@@ -55,6 +55,7 @@ from .selective import (
     threshold_for_cost,
 )
 from .softmax import binary_to_two_column, energy, log_softmax, logsumexp, softmax
+from .split import Split, random_split, split_by_values
 from .temperature import (
     TemperatureFit,
     TemperatureSweep,
@@ -74,6 +75,7 @@ __all__ = [
     "ReliabilityBins",
     "RiskCoverage",
     "SampleScores",
+    "Split",
     "TemperatureFit",
     "TemperatureSweep",
     "ThresholdChoice",
@@ -115,11 +117,13 @@ __all__ = [
     "normalize_rows",
     "per_class_thresholds",
     "per_class_thresholds_cl",
+    "random_split",
     "rank_label_issues",
     "reliability_bins",
     "risk_coverage_curve",
     "sample_scores",
     "softmax",
+    "split_by_values",
     "temperature_moments",
     "temperature_sweep",
     "threshold_for_accuracy",
