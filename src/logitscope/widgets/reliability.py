@@ -23,7 +23,7 @@ from .. import analysis as an
 from ..errors import ParameterError
 from ..frame import LogitFrame
 from .scatter import COLOR_RIGHT, COLOR_WRONG, view_state
-from .state import SharedState, as_rows
+from .state import SharedState, rows_or_all
 
 __all__ = ["ReliabilityDiagram", "calibration_numbers", "numbers_table"]
 
@@ -304,10 +304,7 @@ class ReliabilityDiagram(widgets.VBox):
     # ------------------------------------------------------------------ rows
 
     def _check_rows(self, rows: Any) -> np.ndarray:
-        r = np.arange(self.frame.n_samples, dtype=np.int64) if rows is None else as_rows(rows, self.frame.n_samples)
-        if r.size == 0:
-            raise ParameterError("a reliability diagram needs at least one row")
-        return r
+        return rows_or_all(rows, self.frame.n_samples, "a reliability diagram")
 
     def set_rows(self, rows: Any, title: str | None = None) -> None:
         """Show other rows of the frame (None: all rows)."""

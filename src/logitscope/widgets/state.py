@@ -16,7 +16,7 @@ import traitlets
 
 from ..errors import ShapeError
 
-__all__ = ["SharedState", "as_rows"]
+__all__ = ["SharedState", "as_rows", "rows_or_all"]
 
 
 def as_rows(rows: Any, n_samples: int) -> np.ndarray:
@@ -50,6 +50,22 @@ def as_rows(rows: Any, n_samples: int) -> np.ndarray:
         r = np.unique(r)
     if r[0] < 0 or r[-1] >= n_samples:
         raise ShapeError(f"selected rows must lie in [0, {n_samples}); got {r[0]} .. {r[-1]}")
+    return r
+
+
+def rows_or_all(rows: Any, n_samples: int, what: str) -> np.ndarray:
+    """Rows a view works on: ``as_rows(rows)``, or every row when ``rows`` is None; never empty.
+
+    Examples
+    --------
+    >>> rows_or_all(None, 3, "a diagram").tolist()
+    [0, 1, 2]
+    """
+    r = np.arange(n_samples, dtype=np.int64) if rows is None else as_rows(rows, n_samples)
+    if r.size == 0:
+        from ..errors import ParameterError
+
+        raise ParameterError(f"{what} needs at least one row")
     return r
 
 

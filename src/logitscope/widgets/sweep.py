@@ -26,7 +26,7 @@ from ..errors import ParameterError
 from ..frame import LogitFrame
 from ..report.svg import nice_ticks
 from .scatter import view_state
-from .state import SharedState, as_rows
+from .state import SharedState, rows_or_all
 
 __all__ = ["TemperatureSweepView"]
 
@@ -217,10 +217,7 @@ class TemperatureSweepView(widgets.VBox):
     # ------------------------------------------------------------------ rows and numbers
 
     def _rows(self, rows: Any) -> np.ndarray:
-        r = np.arange(self.frame.n_samples, dtype=np.int64) if rows is None else as_rows(rows, self.frame.n_samples)
-        if r.size == 0:
-            raise ParameterError("a temperature sweep needs at least one row")
-        return r
+        return rows_or_all(rows, self.frame.n_samples, "a temperature sweep")
 
     def set_rows(self, rows: Any, compare_rows: Any = None) -> None:
         """Sweep other rows (None: all), optionally with comparison rows drawn dashed."""

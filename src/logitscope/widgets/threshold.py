@@ -31,7 +31,7 @@ from .. import analysis as an
 from ..errors import ParameterError
 from ..frame import LogitFrame
 from .scatter import view_state
-from .state import SharedState, as_rows
+from .state import SharedState, rows_or_all
 
 __all__ = ["ThresholdPicker"]
 
@@ -300,10 +300,7 @@ class ThresholdPicker(widgets.VBox):
     # ------------------------------------------------------------------ rows and numbers
 
     def _rows(self, rows: Any) -> np.ndarray:
-        r = np.arange(self.frame.n_samples, dtype=np.int64) if rows is None else as_rows(rows, self.frame.n_samples)
-        if r.size == 0:
-            raise ParameterError("a threshold picker needs at least one row")
-        return r
+        return rows_or_all(rows, self.frame.n_samples, "a threshold picker")
 
     def set_rows(self, rows: Any) -> None:
         """Use other rows of the frame (None: all) for the curve and the rules."""
