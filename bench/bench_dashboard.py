@@ -14,8 +14,9 @@ measures, in the page (``performance.now()``):
   every view of the Explore tab is drawn (scatter points, histogram bars,
   heat-map cells, gallery tiles with their images, sample card, queue);
 - brush: from the mouse-up of a rectangle brush on the scatter until every
-  linked view shows the new selection (scatter note, histogram, heat map,
-  gallery, selection bar), median over ``--brushes`` brushes;
+  linked view shows the new selection (scatter image, histogram bars, heat-map
+  note, gallery tiles, selection bar), median over ``--brushes`` brushes; the
+  drag moves the mouse every 20 ms, as a hand does;
 - render with ``--k-large`` classes (heat map shows the top classes plus "other").
 
 Targets: render < 3 s and brush median < 150 ms at N = 100,000, K = 100.
@@ -71,13 +72,14 @@ def parcel_camera_frame(n: int = 100_000, k: int = 100, seed: int = 2024):  # ty
 
 # JS: which views of the dashboard in output ``cell`` are drawn (a dict of booleans).
 VIEWS_JS = """
-([cell, points, cells]) => {
+([cell, cells]) => {
   const root = document.querySelectorAll('.jp-Notebook .jp-Cell')[cell];
   if (!root) return {cell: false};
   const q = (s) => root.querySelectorAll(s);
   const imgs = Array.from(q('.lsg-grid img, .lsc-root img'));
   return {
-    scatter: q('.logitscope-scatter .dot').length >= points,
+    scatter: Array.from(q('.logitscope-scatter image'))
+      .some((i) => (i.getAttribute('href') || '').startsWith('blob:')),
     histogram: q('.logitscope-histogram .bargroup .bar').length >= 1,
     heatmap: q('.logitscope-confusion .heatmapcell').length === cells,
     gallery: q('.lsg-grid').length >= 1 && q('.lsg-grid')[0].children.length >= 1,
@@ -95,47 +97,39 @@ RENDERED_JS = (
     " return Object.values(s).every(Boolean) ? performance.now() : false; }"
 )
 
-# JS: the texts that report the selection, per view (scatter, histogram, heat map, gallery, bar).
-SELECTION_TEXTS_JS = """
+# JS: what each linked view shows of the selection, as strings: the scatter's top image, the
+# histogram's bars, the heat map's note, the gallery's scope, the selection bar.
+SIGNATURES_JS = """
 (cell) => {
   const root = document.querySelectorAll('.jp-Notebook .jp-Cell')[cell];
-  const t = (s) => { const e = root.querySelector(s); return e ? e.textContent.trim() : ''; };
+  const text = (s) => { const e = root.querySelector(s); return e ? e.textContent.trim() : ''; };
+  const images = Array.from(root.querySelectorAll('.logitscope-scatter image'));
+  const bars = Array.from(root.querySelectorAll('.logitscope-histogram .bar'));
   return [
-    t('.logitscope-scatter .logitscope-note'),
-    t('.logitscope-histogram .logitscope-note'),
-    t('.logitscope-confusion .logitscope-note'),
-    t('.lsg-head .lsg-scope'),
-    t('.logitscope-selection'),
+    images.map((i) => (i.getAttribute('href') || '').slice(-48)).join('|'),
+    bars.map((b) => b.getAttribute('height')).join(','),
+    text('.logitscope-confusion .logitscope-note'),
+    text('.lsg-head .lsg-scope'),
+    text('.logitscope-selection'),
   ];
 }
 """
 
-# JS: all views show the same selection count and the bar text changed; returns the elapsed ms.
-UPDATED_JS = """
-([cell, before]) => {
-  const root = document.querySelectorAll('.jp-Notebook .jp-Cell')[cell];
-  const t = (s) => { const e = root.querySelector(s); return e ? e.textContent.trim() : ''; };
-  const texts = [
-    t('.logitscope-scatter .logitscope-note'),
-    t('.logitscope-histogram .logitscope-note'),
-    t('.logitscope-confusion .logitscope-note'),
-    t('.lsg-head .lsg-scope'),
-    t('.logitscope-selection'),
-  ];
-  if (texts[4] === before) return false;
-  const lead = (s) => (s.match(/^[0-9,]+/) || [''])[0];
-  const n = lead(texts[4]);
-  if (!n || !texts.every((s) => lead(s) === n)) return false;
-  const imgs = Array.from(root.querySelectorAll('.lsg-grid img, .lsc-root img'));
-  if (!imgs.every((img) => img.complete)) return false;
-  return performance.now() - window.__lsMouseUp;
-}
-"""
+# JS: every view shows a new selection, all with the same count; returns ms since the mouse-up.
+UPDATED_JS = (
+    "([cell, before]) => { const now = (" + SIGNATURES_JS.strip() + ")(cell);"
+    " if (!now.every((s, i) => s !== before[i])) return false;"
+    " const lead = (s) => (s.match(/^[0-9,]+/) || [''])[0];"
+    " const n = lead(now[4]); if (!n || ![now[2], now[3]].every((s) => lead(s) === n)) return false;"
+    " const root = document.querySelectorAll('.jp-Notebook .jp-Cell')[cell];"
+    " if (!Array.from(root.querySelectorAll('.lsg-grid img')).every((img) => img.complete)) return false;"
+    " return performance.now() - window.__lsMouseUp; }"
+)
 
 MOUSEUP_JS = "() => { window.addEventListener('mouseup', () => { window.__lsMouseUp = performance.now(); }, true); }"
 
 
-def _render(page, index: int, points: int, cells: int, timeout_ms: int = 120_000) -> float:  # type: ignore[no-untyped-def]
+def _render(page, index: int, cells: int, timeout_ms: int = 120_000) -> float:  # type: ignore[no-untyped-def]
     from tests.browser.harness import cell
 
     editor = cell(page, index).locator(".jp-InputArea-editor").first
@@ -144,9 +138,9 @@ def _render(page, index: int, points: int, cells: int, timeout_ms: int = 120_000
     t0 = page.evaluate("performance.now()")
     page.keyboard.press("Shift+Enter")
     try:
-        t1 = page.wait_for_function(RENDERED_JS, arg=[index, points, cells], polling="raf", timeout=timeout_ms)
+        t1 = page.wait_for_function(RENDERED_JS, arg=[index, cells], polling="raf", timeout=timeout_ms)
     except Exception:
-        print(f"not all views drawn after {timeout_ms / 1000:.0f} s: {page.evaluate(VIEWS_JS, [index, points, cells])}")
+        print(f"not all views drawn after {timeout_ms / 1000:.0f} s: {page.evaluate(VIEWS_JS, [index, cells])}")
         raise
     return (float(t1.json_value()) - float(t0)) / 1000.0
 
@@ -179,12 +173,12 @@ def _brushes(page, index: int, count: int) -> list[float]:  # type: ignore[no-un
         if i % 2:  # every other brush: first clear by a click outside the plot's data
             page.mouse.click(box["x"] + box["width"] - 3, box["y"] + box["height"] - 3)
             page.wait_for_timeout(300)
-        before = page.evaluate(SELECTION_TEXTS_JS, index)[4]
+        before = page.evaluate(SIGNATURES_JS, index)
         _drag(page, x0, y0, x1, y1)
         try:
             ms = page.wait_for_function(UPDATED_JS, arg=[index, before], polling="raf", timeout=20_000)
         except Exception:
-            print(f"  brush {i + 1}: no update seen within 20 s (texts {page.evaluate(SELECTION_TEXTS_JS, index)})")
+            print(f"  brush {i + 1}: no update seen within 20 s (views show {page.evaluate(SIGNATURES_JS, index)})")
             continue
         times.append(float(ms.json_value()))
         page.wait_for_timeout(200)
@@ -229,19 +223,15 @@ def main(argv: list[str] | None = None) -> int:
         "dash = logitscope.explore(frame, relabel_path='marks.json')\n"
         "python_s = time.perf_counter() - t0\n"
         "dash",
-        "print(json.dumps({'python_s': python_s, 'shown': len(dash.scatter.display_rows),"
-        " 'cells': dash.confusion.n_positions ** 2, 'selected': int(dash.selected.size)}))",
+        "print(json.dumps({'python_s': python_s, 'cells': dash.confusion.n_positions ** 2,"
+        " 'selected': int(dash.selected.size)}))",
         f"big = parcel_camera_frame({args.n}, {args.k_large}, seed=7)",
         "t0 = time.perf_counter()\n"
         "dash_big = logitscope.explore(big, relabel_path='marks-big.json')\n"
         "python_big_s = time.perf_counter() - t0\n"
         "dash_big",
-        "print(json.dumps({'python_s': python_big_s, 'shown': len(dash_big.scatter.display_rows),"
-        " 'cells': dash_big.confusion.n_positions ** 2}))",
+        "print(json.dumps({'python_s': python_big_s, 'cells': dash_big.confusion.n_positions ** 2}))",
     ]
-    from logitscope.widgets.scatter import display_subsample
-
-    shown = len(display_subsample(args.n, 10_000))
     server = start_jupyter_server(base / "root", base / "home")
     try:
         path = write_notebook(base / "root", "bench.ipynb", cells)
@@ -254,7 +244,7 @@ def main(argv: list[str] | None = None) -> int:
                 run_cell(page, 0, timeout_ms=600_000)
                 print(f"frame {args.n:,} x {args.k}: built in the kernel in {time.monotonic() - t:.1f} s")
                 cells_small = min(args.k, 30) + (1 if args.k > 30 else 0)
-                render_s = _render(page, 1, shown, cells_small**2)
+                render_s = _render(page, 1, cells_small**2)
                 run_cell(page, 2)
                 info = json.loads(read_cell_text(page, 2))
                 page.screenshot(path=str(shots / "bench-dashboard-render.png"))
@@ -265,7 +255,7 @@ def main(argv: list[str] | None = None) -> int:
 
                 run_cell(page, 3, timeout_ms=600_000)
                 cells_big = min(args.k_large, 30) + (1 if args.k_large > 30 else 0)
-                render_big_s = _render(page, 4, shown, cells_big**2)
+                render_big_s = _render(page, 4, cells_big**2)
                 run_cell(page, 5)
                 info_big = json.loads(read_cell_text(page, 5))
                 page.screenshot(path=str(shots / "bench-dashboard-k-large.png"))
@@ -276,7 +266,7 @@ def main(argv: list[str] | None = None) -> int:
         shutil.rmtree(base, ignore_errors=True)
 
     median = statistics.median(brush_ms) if brush_ms else float("nan")
-    print(f"\nN = {args.n:,}, K = {args.k}; scatter draws {info['shown']:,} points, heat map {info['cells']} cells")
+    print(f"\nN = {args.n:,}, K = {args.k}; heat map {info['cells']} cells")
     print(f"{'measure':48s} {'value':>10s} {'target':>10s}  verdict")
     rows = [
         ("render, Shift+Enter to all views drawn (s)", render_s, TARGET_RENDER_S),

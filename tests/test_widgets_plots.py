@@ -11,7 +11,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 import torch
-from scipy import optimize, special
+from scipy import ndimage, optimize, special
 from sklearn.metrics import confusion_matrix as sk_confusion_matrix
 
 import logitscope
@@ -24,7 +24,7 @@ from logitscope.widgets import (
     SharedState,
     TemperatureDial,
 )
-from logitscope.widgets.scatter import display_subsample
+from logitscope.widgets.scatter import CLASS_COLORS, FADED, PointRaster
 
 XSS = "<img src=x onerror=alert(1)>"
 
@@ -78,21 +78,44 @@ class Recorder:
 # --------------------------------------------------------------------------- scatter
 
 
-def test_display_subsample_is_deterministic_and_bounded():
-    a, b = display_subsample(100_000, 10_000), display_subsample(100_000, 10_000)
-    assert np.array_equal(a, b)
-    assert a.size == 10_000 and np.unique(a).size == 10_000 and a.min() >= 0 and a.max() < 100_000
-    assert np.array_equal(display_subsample(50, 100), np.arange(50))
-    with pytest.raises(ParameterError, match="max_points"):
-        display_subsample(10, 0)
+def test_raster_pixels_and_disc_spread_against_scipy():
+    r = PointRaster(40, 30, (0.0, 2.0), (-1.0, 1.0), radius2=5.0)
+    x = np.array([0.0, 1.999, 1.0, 0.5, np.nan])
+    y = np.array([1.0, -1.0, 0.0, 0.26, 0.0])
+    # column floor((x - x0) / width * 40), row floor((y1 - y) / height * 30), top row first; NaN -> -1
+    cols = np.floor((x[:4] - 0.0) / 2.0 * 40).clip(0, 39)
+    rows = np.floor((1.0 - y[:4]) / 2.0 * 30).clip(0, 29)
+    np.testing.assert_array_equal(r.pixels(x, y), [*(rows * 40 + cols).astype(int), -1])
+    # each point spread over a disc of radius sqrt(5): scipy.ndimage.correlate with the disc kernel
+    rng = np.random.default_rng(4)
+    counts = rng.poisson(0.4, 40 * 30)
+    yy, xx = np.mgrid[-2:3, -2:3]
+    disc = (xx**2 + yy**2 <= 5.0).astype(float)
+    ref = ndimage.correlate(counts.reshape(30, 40).astype(float), disc, mode="constant", cval=0.0)
+    np.testing.assert_allclose(r._spread(counts), ref)
+    assert len(r.offsets) == int(disc.sum()) == 21
+    # alpha of a pixel covered by c points: 1 - exp(-c / depth)
+    planes = r.layer(np.array([0, 0, 0]), np.zeros(3, np.int64), ["#ff0000"])
+    assert planes[3, 0, 0] == pytest.approx(1 - np.exp(-3 / r.depth), rel=1e-6)
+    assert planes[0, 0, 0] == pytest.approx(planes[3, 0, 0])  # premultiplied pure red
+    assert planes[1, 0, 0] == 0.0 and planes[2, 0, 0] == 0.0
+    with pytest.raises(ParameterError, match="raster"):
+        PointRaster(0, 10, (0, 1), (0, 1))
 
 
-def test_scatter_box_selects_over_all_rows_not_only_drawn(parcels):
-    view = ScoreScatter(parcels, x="confidence", y="entropy", max_points=500)
-    assert len(view._mark.x) == 500  # only a subsample is drawn
+def _alpha_at(view: ScoreScatter, row: int) -> int:
+    col, line = view.pixel_of(row)
+    return int(view.image[line, col, 3])
+
+
+def test_scatter_box_selects_over_all_rows(parcels):
+    view = ScoreScatter(parcels, x="confidence", y="entropy")
     conf, ent = _confidence(parcels), _entropy(parcels)  # scipy reference scores
-    np.testing.assert_allclose(view._mark.x, conf[view.display_rows], rtol=1e-6)
-    np.testing.assert_allclose(view._mark.y, ent[view.display_rows], rtol=1e-5, atol=1e-6)
+    np.testing.assert_allclose(view.column("confidence"), conf, rtol=1e-9)
+    np.testing.assert_allclose(view.column("entropy"), ent, rtol=1e-9, atol=1e-12)
+    # every row is painted: the pixel of each row is at least as opaque as one point alone
+    one = 255 * (1 - np.exp(-1 / view.raster.depth))
+    assert min(_alpha_at(view, r) for r in range(0, parcels.n_samples, 97)) >= int(one) - 1
 
     # the browser brush sends only its extents; Python computes the rows over all 5,000
     view._brush.brushing = True
@@ -101,20 +124,23 @@ def test_scatter_box_selects_over_all_rows_not_only_drawn(parcels):
     assert view.state.rows.size == 0  # nothing happens while the mouse is still down
     view._brush.brushing = False
     expected = np.flatnonzero((conf >= 0.3) & (conf <= 0.7) & (ent >= 0.5) & (ent <= 2.0))
-    assert expected.size > 500  # more than the drawn points: rows outside the subsample count too
+    assert 0 < expected.size < parcels.n_samples
     np.testing.assert_array_equal(view.state.rows, expected)
     assert view.state.origin == "scatter"
-    # its own selection is highlighted among the drawn points
-    shown = np.flatnonzero(np.isin(view.display_rows, expected))
-    np.testing.assert_array_equal(view._mark.selected, shown)
+    # selected points stay opaque; a point far from every selected one is faded
+    assert min(_alpha_at(view, r) for r in expected[::25]) >= int(one) - 1
+    px = np.array([view.pixel_of(r) for r in expected], dtype=float)
+    far = [r for r in range(parcels.n_samples) if np.min(np.abs(px - view.pixel_of(r)).sum(axis=1)) > 8]
+    assert far and max(_alpha_at(view, r) for r in far[:200]) <= int(255 * FADED) + 1
 
 
 def test_scatter_lasso_rows_come_from_the_all_rows_probe(parcels):
-    view = ScoreScatter(parcels, max_points=300)
+    view = ScoreScatter(parcels)
     view.mode = "lasso"
     assert view.figure.interaction is view._lasso
     assert len(view._probe.x) == parcels.n_samples  # the invisible line carries every row
     np.testing.assert_allclose(view._probe.x, _confidence(parcels), rtol=1e-6)
+    assert view._probe.visible is False
     picked = np.array([4, 17, 4000, 4999])
     view._probe.selected = picked.astype(np.uint32)  # what the browser's lasso sends back
     np.testing.assert_array_equal(view.state.rows, picked)
@@ -129,28 +155,34 @@ def test_scatter_axes_and_colours(parcels):
     view = ScoreScatter(parcels, x="margin", y="true_probability", color="true class")
     p = _softmax(parcels)
     top2 = np.sort(p, axis=1)[:, -2:]
-    np.testing.assert_allclose(view._mark.x, (top2[:, 1] - top2[:, 0])[view.display_rows], atol=1e-6)
+    np.testing.assert_allclose(view.column(view.x_score), top2[:, 1] - top2[:, 0], atol=1e-9)
     y = np.asarray(parcels.labels)
-    np.testing.assert_allclose(view._mark.y, p[np.arange(len(y)), y][view.display_rows], atol=1e-6)
-    np.testing.assert_array_equal(view._mark.color, y[view.display_rows])
+    np.testing.assert_allclose(view.column(view.y_score), p[np.arange(len(y)), y], atol=1e-9)
+    np.testing.assert_array_equal(view._groups, y % len(CLASS_COLORS))
     view.color_by = "correct / wrong"
     correct = p.argmax(axis=1) == y
-    np.testing.assert_array_equal(view._mark.color, correct[view.display_rows].astype(np.float32))
+    np.testing.assert_array_equal(view._groups, (~correct).astype(int))  # wrong drawn over right
     view.x_score = "energy"
     # energy = -logsumexp(z) at T = 1 (scipy.special.logsumexp)
     energy = -special.logsumexp(np.asarray(parcels.logits, dtype=np.float64), axis=1)
-    np.testing.assert_allclose(view._mark.x, energy[view.display_rows], rtol=1e-5)
+    np.testing.assert_allclose(view.column("energy"), energy, rtol=1e-9)
+    lo, hi = view._sx.min, view._sx.max
+    assert lo < energy.min() and hi > energy.max()  # the axis holds every row
     with pytest.raises(ParameterError, match="not a score"):
         ScoreScatter(parcels, x="loudness")
     with pytest.raises(ParameterError, match="not offered"):
         ScoreScatter(parcels, color="by mood")
+    with pytest.raises(ParameterError, match="resolution"):
+        ScoreScatter(parcels, resolution=(4, 4))
 
 
 def test_scatter_follows_temperature(parcels):
     view = ScoreScatter(parcels)
+    before = view._pixels.copy()
     view.state.temperature = 2.5
-    np.testing.assert_allclose(view._mark.x, _confidence(parcels, 2.5)[view.display_rows], rtol=1e-6)
-    np.testing.assert_allclose(view._mark.y, _entropy(parcels, 2.5)[view.display_rows], rtol=1e-5, atol=1e-6)
+    np.testing.assert_allclose(view.column("confidence"), _confidence(parcels, 2.5), rtol=1e-9)
+    assert view._sx.max >= _confidence(parcels, 2.5).max()
+    assert not np.array_equal(before, view._pixels)
     # the brush at the new temperature selects by the new scores
     rows = view.select_box((0.2, 0.5), (0.0, 10.0))
     conf = _confidence(parcels, 2.5)
@@ -162,7 +194,7 @@ def test_scatter_without_labels_offers_only_label_free_scores():
     view = ScoreScatter(LogitFrame(z))
     assert "true_probability" not in view.scores_offered and "confidence" in view.scores_offered
     assert view.colors_offered == ("predicted class",)
-    np.testing.assert_array_equal(view._mark.color, z.argmax(axis=1))
+    np.testing.assert_array_equal(view._groups, z.argmax(axis=1))
 
 
 def test_views_check_their_arguments(parcels):
@@ -180,7 +212,7 @@ def test_views_check_their_arguments(parcels):
 def test_selection_from_another_view_is_highlighted_without_feedback(parcels):
     state = SharedState(parcels.n_samples)
     rec = Recorder(state)
-    scatter = ScoreScatter(parcels, state, max_points=1000)
+    scatter = ScoreScatter(parcels, state)
     hist = ConfidenceHistogram(parcels, state)
     conf = _confidence(parcels)
 
@@ -188,7 +220,7 @@ def test_selection_from_another_view_is_highlighted_without_feedback(parcels):
     assert rec.calls == ["histogram"]  # the scatter only redraws; it writes nothing back
     expected = np.flatnonzero((conf >= 0.2) & (conf <= 0.4))
     np.testing.assert_array_equal(state.rows, expected)
-    np.testing.assert_array_equal(scatter._mark.selected, np.flatnonzero(np.isin(scatter.display_rows, expected)))
+    assert _alpha_at(scatter, int(expected[0])) > int(255 * FADED) + 1  # drawn opaque in the scatter
 
     # a scatter brush replaces the selection; the histogram's own interval is dropped, not re-applied
     scatter.select_box((0.5, 1.0), (0.0, 5.0))

@@ -54,8 +54,6 @@ class Dashboard(widgets.VBox):
     relabel_path : str or path-like, optional
         JSON file of the relabel queue (see :class:`RelabelQueue`); the
         queue's default file name when None.
-    max_points : int, default 10_000
-        Most points the scatter draws (selections still cover all rows).
     max_classes : int, default 30
         Classes the confusion heat map draws on their own (the rest are "other").
 
@@ -77,14 +75,13 @@ class Dashboard(widgets.VBox):
         state: SharedState | None = None,
         relabel_path: str | os.PathLike[str] | None = None,
         *,
-        max_points: int = 10_000,
         max_classes: int = 30,
         **kwargs: Any,
     ) -> None:
         self.frame = frame
         self.state = view_state(frame, state)
         st = self.state
-        self.scatter = ScoreScatter(frame, st, max_points=max_points)
+        self.scatter = ScoreScatter(frame, st)
         self.histogram = ConfidenceHistogram(frame, st)
         self.confusion = ConfusionHeatmap(frame, st, max_classes=max_classes)
         self.gallery = SampleGallery(frame, st)

@@ -14,13 +14,23 @@ import ipywidgets as widgets
 import numpy as np
 import traitlets
 from bqplot.interacts import BrushIntervalSelector
+from bqplot.traits import array_serialization
+from traittypes import Array  # the array trait bqplot declares its own with
 
 from ..errors import ParameterError
 from ..frame import LogitFrame
 from .scatter import COLOR_RIGHT, COLOR_WRONG, SCATTER_SCORES, view_state
 from .state import SharedState
 
-__all__ = ["ConfidenceHistogram"]
+__all__ = ["ConfidenceHistogram", "QuietIntervalBrush"]
+
+
+class QuietIntervalBrush(BrushIntervalSelector):
+    """bqplot's interval brush without echo messages: the kernel does not send each mouse move back."""
+
+    brushing = traitlets.Bool().tag(sync=True, echo_update=False)
+    selected = Array(None, allow_none=True).tag(sync=True, echo_update=False, **array_serialization)
+
 
 _LABEL_SCORES = {"true_probability", "true_log_probability", "true_rank", "brier"}
 _FADED = 0.3
@@ -111,7 +121,7 @@ class ConfidenceHistogram(widgets.VBox):
         )
         self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none")
         self._ay = bq.Axis(scale=self._sy, side="left", label="samples", grid_lines="none", tick_format="~s")
-        self._brush = BrushIntervalSelector(scale=self._sx, marks=[], color="#7f9cc0")
+        self._brush = QuietIntervalBrush(scale=self._sx, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected"])
         self.figure = bq.Figure(
             display_toolbar=False,
@@ -127,8 +137,6 @@ class ConfidenceHistogram(widgets.VBox):
         self._mode_buttons = widgets.ToggleButtons(
             options=["stacked", "side by side"], value=layout_mode, style={"button_width": "106px"}
         )
-        self._note = widgets.Label()
-        self._note.add_class("logitscope-note")
         key = "".join(
             f'<span style="display:inline-block;width:10px;height:10px;background:{c};margin:0 4px 0 10px"></span>{s}'
             for c, s in zip(colors, series, strict=True)
@@ -139,7 +147,6 @@ class ConfidenceHistogram(widgets.VBox):
                 widgets.HBox([self._menu, self._mode_buttons], layout={"flex_flow": "row wrap"}),
                 self._key,
                 self.figure,
-                self._note,
             ],
             **kwargs,
         )
@@ -214,17 +221,14 @@ class ConfidenceHistogram(widgets.VBox):
             self._interval = None
             self._brush.reset()
         n_series = len(self._groups())
-        with self.figure.hold_sync():
-            if rows.size == 0:
-                self._sel_bars.visible = False
-                self._bars.opacities = [1.0] * n_series
-                self._note.value = ""
-                return
+        if rows.size == 0:
+            self._sel_bars.visible = False
+            self._bars.opacities = [1.0] * n_series
+            return
+        with self._sel_bars.hold_sync():
             self._sel_bars.y = self.counts(rows)
             self._sel_bars.visible = True
-            self._bars.opacities = [_FADED] * n_series
-        where = f"by {self.state.origin}" if self.state.origin else ""
-        self._note.value = f"{rows.size:,} rows selected {where}".strip()
+        self._bars.opacities = [_FADED] * n_series
 
     def _on_temperature(self, change: Any) -> None:
         self._interval = None

@@ -1,14 +1,23 @@
 """Score scatter: one point per sample, two per-sample scores as axes, brushing and lasso.
 
-The display holds at most ``max_points`` points (a deterministic subsample
-when the frame is larger), but every selection is computed in Python over
-*all* rows: a rectangle brush sends back its two extents, and the lasso is
-tested against an invisible line mark that carries every row, so the
-browser sends back the indices of the rows inside the lasso.
+Every row is drawn, whatever the size of the frame: Python paints the points
+into one image (each point a small translucent disc, later groups over
+earlier ones) that bqplot places on the plot's axes. The browser then holds
+one ``<image>`` element instead of one SVG element per point, so brushing
+stays smooth at 100,000 rows and more (an SVG scatter of 10,000 points takes
+about 100 ms to repaint on a headless chromium without GPU; measured with
+``bench/bench_dashboard.py``).
+
+Every selection is computed in Python over all rows: a rectangle brush sends
+back its two extents; the lasso is tested in the browser against an
+invisible line mark through every row, which sends back the indices inside.
+The selection is drawn as opaque points over the other points faded.
 """
 
 from __future__ import annotations
 
+import html
+import io
 from typing import Any
 
 import bqplot as bq
@@ -16,12 +25,25 @@ import ipywidgets as widgets
 import numpy as np
 import traitlets
 from bqplot.interacts import BrushSelector, LassoSelector
+from bqplot.traits import array_serialization
+from PIL import Image as PILImage
+from traittypes import Array  # the array trait bqplot declares its own with
 
 from ..errors import InputTypeError, ParameterError
 from ..frame import LogitFrame
 from .state import SharedState
 
-__all__ = ["COLOR_RIGHT", "COLOR_WRONG", "SCATTER_SCORES", "ScoreScatter", "display_subsample", "view_state"]
+__all__ = [
+    "CLASS_COLORS",
+    "COLOR_RIGHT",
+    "COLOR_WRONG",
+    "SCATTER_SCORES",
+    "PointRaster",
+    "QuietBrush",
+    "QuietLines",
+    "ScoreScatter",
+    "view_state",
+]
 
 #: Per-sample scores offered as axes, in menu order (label-dependent ones need labels).
 SCATTER_SCORES = (
@@ -53,28 +75,22 @@ CLASS_COLORS = (
     "#9d755d",
     "#79706e",
 )
+#: Alpha factor of the points outside the selection while a selection is shown.
+FADED = 0.18
 
 
-def display_subsample(n_rows: int, max_points: int, seed: int = 0) -> np.ndarray:
-    """Rows a scatter draws: all of them, or a sorted uniform random subset of ``max_points``.
+class QuietBrush(BrushSelector):
+    """bqplot's rectangle brush without echo messages: the kernel does not send each mouse move back."""
 
-    The subset depends only on ``n_rows``, ``max_points`` and ``seed``, so
-    the same frame always shows the same points.
+    brushing = traitlets.Bool().tag(sync=True, echo_update=False)
+    selected_x = Array(None, allow_none=True).tag(sync=True, echo_update=False, **array_serialization)
+    selected_y = Array(None, allow_none=True).tag(sync=True, echo_update=False, **array_serialization)
 
-    Examples
-    --------
-    >>> display_subsample(5, 10).tolist()
-    [0, 1, 2, 3, 4]
-    >>> rows = display_subsample(1000, 100)
-    >>> len(rows), bool(np.all(np.diff(rows) > 0))
-    (100, True)
-    """
-    if max_points < 1:
-        raise ParameterError(f"max_points must be at least 1, got {max_points}")
-    if n_rows <= max_points:
-        return np.arange(n_rows, dtype=np.int64)
-    rng = np.random.default_rng(seed)
-    return np.sort(rng.choice(n_rows, size=max_points, replace=False)).astype(np.int64)
+
+class QuietLines(bq.Lines):
+    """bqplot's line mark whose ``selected`` (sent by a lasso) is not echoed back to the browser."""
+
+    selected = Array(None, allow_none=True).tag(sync=True, echo_update=False, **array_serialization)
 
 
 def view_state(frame: object, state: SharedState | None) -> SharedState:
@@ -99,12 +115,164 @@ def view_state(frame: object, state: SharedState | None) -> SharedState:
 
 
 def _domain(values: np.ndarray) -> tuple[float, float]:
-    lo, hi = float(np.min(values)), float(np.max(values))
-    if not np.isfinite(lo) or not np.isfinite(hi):
-        finite = values[np.isfinite(values)]
-        lo, hi = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
+    finite = values[np.isfinite(values)]
+    lo, hi = (float(finite.min()), float(finite.max())) if finite.size else (0.0, 1.0)
     pad = (hi - lo) * 0.03 if hi > lo else max(abs(lo) * 0.05, 0.5)
     return lo - pad, hi + pad
+
+
+def _rgb(color: str) -> tuple[float, float, float]:
+    h = color.lstrip("#")
+    return (int(h[0:2], 16) / 255.0, int(h[2:4], 16) / 255.0, int(h[4:6], 16) / 255.0)
+
+
+class PointRaster:
+    """Paint points into an RGBA image: translucent discs, colour groups drawn in order.
+
+    Parameters
+    ----------
+    width, height : int
+        Image size in pixels.
+    x_range, y_range : (float, float)
+        Data extents of the image (left/right, bottom/top).
+    radius2 : float
+        Squared disc radius in pixels (2.0: a 3 x 3 disc; 4.5: 21 pixels).
+    depth : float
+        Points for 63 % opacity: a pixel covered by ``c`` points has alpha ``1 - exp(-c / depth)``.
+
+    Examples
+    --------
+    >>> r = PointRaster(4, 2, (0.0, 1.0), (0.0, 1.0), radius2=0.0)
+    >>> r.pixels(np.array([0.1, 0.9]), np.array([0.9, 0.1])).tolist()  # top-left and bottom-right
+    [0, 7]
+    """
+
+    def __init__(
+        self,
+        width: int,
+        height: int,
+        x_range: tuple[float, float],
+        y_range: tuple[float, float],
+        radius2: float = 2.0,
+        depth: float = 1.5,
+    ) -> None:
+        if width < 1 or height < 1:
+            raise ParameterError(f"raster size must be positive, got {width} x {height}")
+        self.width, self.height = int(width), int(height)
+        self.x_range, self.y_range = x_range, y_range
+        r = int(np.floor(np.sqrt(max(radius2, 0.0))))
+        self.offsets = [(dy, dx) for dy in range(-r, r + 1) for dx in range(-r, r + 1) if dx * dx + dy * dy <= radius2]
+        self.pad = r
+        self.depth = float(depth)
+
+    def pixels(self, x: np.ndarray, y: np.ndarray) -> np.ndarray:
+        """Flat pixel index (row-major, top row first) of each point; -1 for non-finite points."""
+        (x0, x1), (y0, y1) = self.x_range, self.y_range
+        w, h = self.width, self.height
+        with np.errstate(invalid="ignore"):
+            fx = (np.asarray(x, np.float64) - x0) / (x1 - x0) * w
+            fy = (y1 - np.asarray(y, np.float64)) / (y1 - y0) * h
+        ok = np.isfinite(fx) & np.isfinite(fy)
+        ix = np.clip(np.where(ok, fx, 0.0), 0, w - 1).astype(np.int64)
+        iy = np.clip(np.where(ok, fy, 0.0), 0, h - 1).astype(np.int64)
+        return np.where(ok, iy * w + ix, -1)
+
+    def _spread(self, counts: np.ndarray) -> np.ndarray:
+        """Each point's count spread over its disc: a separable box sum minus the box cells off the disc."""
+        h, w, p = self.height, self.width, self.pad
+        c = counts.reshape(h, w).astype(np.float32)
+        if p == 0:
+            return c
+        rows = np.zeros((h + 2 * p, w), np.float32)
+        for d in range(2 * p + 1):
+            rows[d : d + h] += c
+        rows = rows[p : p + h]
+        box = np.zeros((h, w + 2 * p), np.float32)
+        for d in range(2 * p + 1):
+            box[:, d : d + w] += rows
+        box = box[:, p : p + w].copy()
+        inside = set(self.offsets)
+        outside = [(dy, dx) for dy in range(-p, p + 1) for dx in range(-p, p + 1) if (dy, dx) not in inside]
+        if outside:
+            padded = np.zeros((h + 2 * p, w + 2 * p), np.float32)
+            padded[p : p + h, p : p + w] = c
+            for dy, dx in outside:
+                # a point at (y, x) covers (y + dy, x + dx); remove what the box added there
+                box -= padded[p - dy : p - dy + h, p - dx : p - dx + w]
+        return box
+
+    def layer(self, pixels: np.ndarray, groups: np.ndarray, colors: list[str], strength: float = 1.0) -> np.ndarray:
+        """Premultiplied RGBA planes ``(4, height, width)`` float32 of points, group ``g`` in ``colors[g]``.
+
+        Later groups are painted over earlier ones. With more than three
+        colours each pixel takes the colour of the last point painted there.
+        """
+        h, w = self.height, self.width
+        out = np.zeros((4, h, w), np.float32)
+        keep = pixels >= 0
+        pixels, groups = pixels[keep], groups[keep]
+        if len(colors) <= 3:
+            for g, color in enumerate(colors):
+                counts = np.bincount(pixels[groups == g], minlength=h * w)
+                a = self._alpha(counts, strength)
+                under = 1.0 - a
+                for c, value in enumerate(_rgb(color)):
+                    out[c] *= under
+                    out[c] += a * value
+                out[3] *= under
+                out[3] += a
+            return out
+        a = self._alpha(np.bincount(pixels, minlength=h * w), strength)
+        p = self.pad
+        top = np.full((h + 2 * p) * (w + 2 * p), -1, np.int64)
+        py, px = np.divmod(pixels, w)
+        for dy, dx in self.offsets:
+            top[(py + dy + p) * (w + 2 * p) + (px + dx + p)] = groups
+        top = top.reshape(h + 2 * p, w + 2 * p)[p : p + h, p : p + w]
+        palette = np.asarray([_rgb(c) for c in colors], np.float32)
+        rgb = palette[np.maximum(top, 0)]  # (h, w, 3)
+        for c in range(3):
+            out[c] = rgb[..., c] * a
+        out[3] = a
+        return out
+
+    def _alpha(self, counts: np.ndarray, strength: float) -> np.ndarray:
+        """Alpha ``(1 - exp(-c / depth)) * strength`` of each pixel from its spread point count ``c``."""
+        spread = self._spread(counts)
+        a = np.exp(spread * np.float32(-1.0 / self.depth))
+        a *= np.float32(-strength)
+        a += np.float32(strength)
+        return a
+
+    @staticmethod
+    def over(top: np.ndarray, bottom: np.ndarray, bottom_alpha: float = 1.0) -> np.ndarray:
+        """``top`` composited over ``bottom`` (premultiplied planes), the bottom's alpha scaled by ``bottom_alpha``."""
+        keep = (1.0 - top[3]) * np.float32(bottom_alpha)
+        return top + bottom * keep
+
+    @staticmethod
+    def to_rgba8(planes: np.ndarray) -> np.ndarray:
+        """Premultiplied float RGBA planes to a straight-alpha uint8 ``(height, width, 4)`` image."""
+        a = planes[3]
+        scale = np.divide(np.float32(255.0), a, out=np.zeros_like(a), where=a > 1e-6)
+        out = np.empty((*a.shape, 4), np.uint8)
+        for c in range(3):
+            v = planes[c] * scale
+            v += 0.5
+            np.clip(v, 0, 255, out=v)
+            out[..., c] = v
+        v = a * np.float32(255.0)
+        v += 0.5
+        np.clip(v, 0, 255, out=v)
+        out[..., 3] = v
+        return out
+
+    @staticmethod
+    def png(rgba8: np.ndarray) -> bytes:
+        """The image as PNG bytes (fast deflate: it is encoded on every selection)."""
+        buf = io.BytesIO()
+        PILImage.fromarray(rgba8, "RGBA").save(buf, format="PNG", compress_level=1)
+        return buf.getvalue()
 
 
 class ScoreScatter(widgets.VBox):
@@ -120,9 +288,8 @@ class ScoreScatter(widgets.VBox):
         Scores on the axes (see :data:`SCATTER_SCORES`).
     color : {"correct / wrong", "true class", "predicted class"}
         Point colours (without labels only "predicted class" is offered).
-    max_points : int, default 10_000
-        Most points drawn; larger frames show a deterministic uniform
-        subsample (:func:`display_subsample`). Selections still cover all rows.
+    resolution : (int, int), default (520, 360)
+        Size in pixels of the image the points are painted into.
     name : str, default "scatter"
         Origin written to the shared state.
 
@@ -151,7 +318,7 @@ class ScoreScatter(widgets.VBox):
         x: str = "confidence",
         y: str = "entropy",
         color: str | None = None,
-        max_points: int = 10_000,
+        resolution: tuple[int, int] = (520, 360),
         name: str = "scatter",
         **kwargs: Any,
     ) -> None:
@@ -167,41 +334,50 @@ class ScoreScatter(widgets.VBox):
         if color is None:
             color = self.colors_offered[0]
         if color not in self.colors_offered:
-            raise ParameterError(f"color={color!r} is not offered; choose from {self.colors_offered}")
-        self.display_rows = display_subsample(frame.n_samples, max_points)
+            raise ParameterError(f"color={color!r} is not offered; choose from {', '.join(self.colors_offered)}")
+        width, height = (int(v) for v in resolution)
+        if width < 16 or height < 16:
+            raise ParameterError(f"resolution must be at least 16 x 16 pixels, got {resolution}")
+        self.resolution = (width, height)
+        n = frame.n_samples
+        # bigger, more opaque discs for a few points; smaller, lighter ones for many
+        self._radius2, self._depth = (5.0, 1.2) if n <= 5_000 else (2.0, 1.5) if n <= 50_000 else (2.0, 2.5)
         self._columns: dict[str, np.ndarray] = {}
         self._columns_t: float | None = None
         self._last_box: tuple[float, float, float, float] | None = None
+        self.raster: PointRaster | None = None
+        self._pixels = np.zeros(0, np.int64)
+        self._groups = np.zeros(0, np.int64)
+        self._palette: list[str] = []
+        self._base: np.ndarray | None = None  # premultiplied planes of all points
+        self._top = np.zeros((4, height, width), np.float32)  # premultiplied planes of the selected points
+        self._base_widgets: tuple[widgets.Image, widgets.Image] | None = None  # all points: full, faded
 
         self._sx = bq.LinearScale()
         self._sy = bq.LinearScale()
-        self._mark = bq.Scatter(
-            x=np.zeros(0, np.float32),
-            y=np.zeros(0, np.float32),
-            scales={"x": self._sx, "y": self._sy, "color": self._color_scale_for(color)},
-            default_size=14,
-            stroke=None,
-            opacities=[0.7],
-            selected_style={"opacity": 1.0},
-            unselected_style={"opacity": 0.12},
-        )
-        self._mark.on_element_click(self._on_point_click)
+        # Two image marks: every point (drawn full, or faded while a selection is shown) and, on
+        # top, the selected points alone (mostly transparent, so quick to encode and small to send).
+        # bqplot's Image mark redraws when its image *widget* changes, so widgets take turns.
+        self._top_widgets = (widgets.Image(format="png"), widgets.Image(format="png"))
+        self._turn = 0
+        scales = {"x": self._sx, "y": self._sy}
+        self._mark = bq.Image(image=widgets.Image(format="png"), scales=scales, pixelated=False)
+        self._top_mark = bq.Image(image=self._top_widgets[0], scales=scales, pixelated=False)
         self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none")
         self._ay = bq.Axis(scale=self._sy, label=y, side="left", grid_lines="none")
-        self._brush = BrushSelector(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
+        self._brush = QuietBrush(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected_x", "selected_y"])
         self._probe: bq.Lines | None = None
         self._lasso: LassoSelector | None = None
         self.figure = bq.Figure(
             display_toolbar=False,
-            marks=[self._mark],
+            marks=[self._mark, self._top_mark],
             axes=[self._ax, self._ay],
             interaction=self._brush,
             fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
-            min_aspect_ratio=0.5,
-            max_aspect_ratio=2.0,
-            layout=widgets.Layout(width="100%", height="360px"),
+            padding_x=0.0,
             padding_y=0.0,
+            layout=widgets.Layout(width="100%", height="360px"),
         )
 
         menu = {"options": self.scores_offered, "layout": {"width": "190px"}}
@@ -216,13 +392,12 @@ class ScoreScatter(widgets.VBox):
             tooltips=["drag a rectangle", "draw a free shape"],
             style={"button_width": "84px"},
         )
-        self._note = widgets.Label()
-        self._note.add_class("logitscope-note")
+        self._key = widgets.HTML()
         controls = widgets.HBox(
             [self._x_menu, self._y_menu, self._c_menu, self._mode_buttons],
             layout=widgets.Layout(flex_flow="row wrap", align_items="center"),
         )
-        super().__init__(children=[controls, self.figure, self._note], **kwargs)
+        super().__init__(children=[controls, self._key, self.figure], **kwargs)
         self.add_class("logitscope-scatter")
 
         self.x_score, self.y_score, self.color_by = x, y, color
@@ -235,14 +410,14 @@ class ScoreScatter(widgets.VBox):
         self.observe(self._on_mode, "mode")
         self.state.observe(self._on_temperature, "temperature")
         self.state.observe(self._on_rows, "rows")
-        self._redraw()
-        self._on_color()
+        self._place()
+        self._recolor()
         self._on_rows()
 
     # ------------------------------------------------------------------ data
 
     def column(self, score: str) -> np.ndarray:
-        """The score ``score`` of every row at the shared temperature (float64, read-only)."""
+        """The score ``score`` of every row at the shared temperature (float64)."""
         t = self.state.temperature
         if self._columns_t != t:
             self._columns, self._columns_t = {}, t
@@ -255,16 +430,21 @@ class ScoreScatter(widgets.VBox):
             self._columns[score] = hit
         return hit
 
-    def _redraw(self) -> None:
+    def _place(self) -> None:
+        """Axes extents and each row's pixel, for the current scores and temperature."""
         x, y = self.column(self.x_score), self.column(self.y_score)
-        rows = self.display_rows
         (x0, x1), (y0, y1) = _domain(x), _domain(y)
+        w, h = self.resolution
+        self.raster = PointRaster(w, h, (x0, x1), (y0, y1), radius2=self._radius2, depth=self._depth)
+        self._pixels = self.raster.pixels(x, y)
+        self._base = None
         with self.figure.hold_sync():
             self._sx.min, self._sx.max = x0, x1
             self._sy.min, self._sy.max = y0, y1
-            with self._mark.hold_sync():
-                self._mark.x = x[rows].astype(np.float32)
-                self._mark.y = y[rows].astype(np.float32)
+            for mark in (self._mark, self._top_mark):
+                with mark.hold_sync():
+                    mark.x = np.array([x0, x1])
+                    mark.y = np.array([y0, y1])
             self._ax.label = self.x_score.replace("_", " ")
             self._ay.label = self.y_score.replace("_", " ")
         if self._probe is not None:
@@ -272,41 +452,91 @@ class ScoreScatter(widgets.VBox):
                 self._probe.x = x.astype(np.float32)
                 self._probe.y = y.astype(np.float32)
 
-    def _color_scale_for(self, color: str) -> bq.Scale:
-        if _COLOR_MODES[color] == "correct":
-            return bq.ColorScale(colors=[COLOR_WRONG, COLOR_RIGHT], min=0.0, max=1.0)
-        return bq.OrdinalColorScale(colors=list(CLASS_COLORS), domain=list(range(self.frame.n_classes)))
-
-    def _on_color(self, change: Any = None) -> None:
+    def _recolor(self) -> None:
+        """Colour group of each row and the palette, for the current colour mode."""
         field = _COLOR_MODES[self.color_by]
-        rows = self.display_rows
         if field == "correct":
-            values = self.frame.sample_scores(self.state.temperature).correct[rows].astype(np.float32)
-        elif field == "label":
-            values = np.asarray(self.frame.labels)[rows].astype(np.int32)
+            # wrong samples drawn last, over the (usually many more) right ones
+            self._groups = (~self.frame.sample_scores(self.state.temperature).correct).astype(np.int64)
+            self._palette = [COLOR_RIGHT, COLOR_WRONG]
+            key = [(COLOR_RIGHT, "correct"), (COLOR_WRONG, "wrong")]
         else:
-            values = self.frame.sample_scores(self.state.temperature).predicted[rows].astype(np.int32)
-        with self._mark.hold_sync():
-            if change is not None:
-                self._mark.scales = {**self._mark.scales, "color": self._color_scale_for(self.color_by)}
-            self._mark.color = values
+            cls = np.asarray(self.frame.labels if field == "label" else self.frame.sample_scores().predicted)
+            self._groups = cls.astype(np.int64) % len(CLASS_COLORS)
+            self._palette = list(CLASS_COLORS)
+            names = self.frame.classes
+            key = [(CLASS_COLORS[i], names[i]) for i in range(len(names))] if len(names) <= len(CLASS_COLORS) else []
+        self._base = None
+        swatch = '<span style="display:inline-block;width:10px;height:10px;background:{};margin:0 3px 0 8px"></span>{}'
+        # class names are user data: escaped before they reach HTML
+        parts = "".join(swatch.format(c, html.escape(str(s))) for c, s in key)
+        if not key:
+            parts = "colour: class index modulo 10"
+        self._key.value = f'<span style="font-size:12px">{parts}</span>'
+
+    def _draw(self) -> None:
+        """Paint the points (selection opaque over the rest faded) and send what changed."""
+        assert self.raster is not None
+        if self._base is None:
+            self._base = self.raster.layer(self._pixels, self._groups, self._palette)
+            full = PointRaster.png(PointRaster.to_rgba8(self._base))
+            faded = PointRaster.png(PointRaster.to_rgba8(self._base * np.float32(FADED)))
+            old = self._base_widgets
+            self._base_widgets = (widgets.Image(value=full, format="png"), widgets.Image(value=faded, format="png"))
+            self._mark.image = self._base_widgets[0]
+            if old is not None:
+                for w in old:
+                    w.close()
+        rows = self.state.rows
+        w, h = self.resolution
+        if rows.size == 0:
+            self._top = np.zeros_like(self._top)
+            window = (0, 1, 0, 1)
+        else:
+            self._top = self.raster.layer(self._pixels[rows], self._groups[rows], self._palette)
+            # send only the part of the image the selection covers (a brush covers a small part)
+            px = self._pixels[rows]
+            px = px[px >= 0]
+            pad = self.raster.pad + 1
+            if px.size:
+                py, pxx = np.divmod(px, w)
+                window = (
+                    max(int(pxx.min()) - pad, 0),
+                    min(int(pxx.max()) + pad + 1, w),
+                    max(int(py.min()) - pad, 0),
+                    min(int(py.max()) + pad + 1, h),
+                )
+            else:
+                window = (0, 1, 0, 1)
+        c0, c1, r0, r1 = window
+        (x0, x1), (y0, y1) = self.raster.x_range, self.raster.y_range
+        self._turn = 1 - self._turn
+        widget = self._top_widgets[self._turn]
+        widget.value = PointRaster.png(PointRaster.to_rgba8(self._top[:, r0:r1, c0:c1]))
+        with self._top_mark.hold_sync():
+            self._top_mark.x = np.array([x0 + (x1 - x0) * c0 / w, x0 + (x1 - x0) * c1 / w])
+            self._top_mark.y = np.array([y1 - (y1 - y0) * r1 / h, y1 - (y1 - y0) * r0 / h])
+            self._top_mark.image = widget
+        self._mark.image = self._base_widgets[0 if rows.size == 0 else 1]
+
+    @property
+    def image(self) -> np.ndarray:
+        """What the plot shows, as one straight-alpha RGBA uint8 image ``(height, width, 4)``."""
+        assert self._base is not None
+        bottom_alpha = 1.0 if self.state.rows.size == 0 else FADED
+        return PointRaster.to_rgba8(PointRaster.over(self._top, self._base, bottom_alpha))
+
+    def pixel_of(self, row: int) -> tuple[int, int]:
+        """(column, row) of the image pixel where sample ``row`` is painted."""
+        p = int(self._pixels[int(row)])
+        return (p % self.resolution[0], p // self.resolution[0])
 
     # ------------------------------------------------------------------ selection in
 
     def _on_rows(self, change: Any = None) -> None:
-        rows = self.state.rows
         if self.state.origin != self.name:
             self._clear_tools()
-        n, shown = self.frame.n_samples, len(self.display_rows)
-        text = f"showing {shown:,} of {n:,} points (selections cover all rows)" if shown < n else ""
-        if rows.size == 0:
-            self._mark.selected = None
-        else:
-            mask = np.zeros(n, dtype=bool)
-            mask[rows] = True
-            self._mark.selected = np.flatnonzero(mask[self.display_rows]).astype(np.uint32)
-            text = f"{rows.size:,} selected" + (f"; {text}" if text else "")
-        self._note.value = text
+        self._draw()
 
     def _clear_tools(self) -> None:
         """Remove a stale brush rectangle or lasso when another view made the selection."""
@@ -317,16 +547,21 @@ class ScoreScatter(widgets.VBox):
             self._lasso.reset()
 
     def _on_temperature(self, change: Any) -> None:
-        self._redraw()
+        self._place()
         if self.color_by == "correct / wrong":
-            self._on_color()
+            self._recolor()
+        self._draw()
+
+    def _on_color(self, change: Any) -> None:
+        self._recolor()
+        self._draw()
 
     # ------------------------------------------------------------------ selection out
 
     def select_box(self, x_range: tuple[float, float], y_range: tuple[float, float]) -> np.ndarray:
         """Select every row whose (x, y) scores lie in the closed box; return the rows.
 
-        This is what a rectangle brush does, over all rows (not only the drawn ones).
+        This is what a rectangle brush does, over all rows.
         """
         x0, x1 = sorted(float(v) for v in x_range)
         y0, y1 = sorted(float(v) for v in y_range)
@@ -352,31 +587,24 @@ class ScoreScatter(widgets.VBox):
             return
         self.select_box(box[:2], box[2:])
 
-    def _on_point_click(self, mark: Any, content: dict[str, Any]) -> None:
-        index = content.get("data", {}).get("index") if isinstance(content, dict) else None
-        if index is None or not 0 <= int(index) < len(self.display_rows):
-            return
-        self.state.focus = int(self.display_rows[int(index)])
-
     # ------------------------------------------------------------------ lasso
 
     def _ensure_lasso(self) -> LassoSelector:
         if self._lasso is None:
             x, y = self.column(self.x_score), self.column(self.y_score)
             # an invisible line through every row: the lasso tests all of them in the browser
-            self._probe = bq.Lines(
+            self._probe = QuietLines(
                 x=x.astype(np.float32),
                 y=y.astype(np.float32),
                 scales={"x": self._sx, "y": self._sy},
                 opacities=[0.0],
                 stroke_width=0.0,
-                selected_style={},
-                unselected_style={},
+                visible=False,
                 interactions={},
             )
             self._probe.observe(self._on_lasso, "selected")
             self._lasso = LassoSelector(x_scale=self._sx, y_scale=self._sy, marks=[self._probe], color="#3d5f8f")
-            self.figure.marks = [self._probe, self._mark]
+            self.figure.marks = [self._mark, self._top_mark, self._probe]
         return self._lasso
 
     def _on_lasso(self, change: Any) -> None:
@@ -389,7 +617,7 @@ class ScoreScatter(widgets.VBox):
         self.state.select(np.asarray(picked, dtype=np.int64), origin=self.name)
 
     def select_lasso(self, rows: Any) -> np.ndarray:
-        """Select the given rows as a lasso would (the browser sends the rows inside the shape)."""
+        """Select the given rows as a lasso does (the browser sends the rows inside the shape)."""
         self._ensure_lasso()
         assert self._probe is not None
         self._probe.selected = np.asarray(rows, dtype=np.uint32)
@@ -410,4 +638,5 @@ class ScoreScatter(widgets.VBox):
         self._last_box = None
         if self._lasso is not None:
             self._lasso.reset()
-        self._redraw()
+        self._place()
+        self._draw()
