@@ -463,3 +463,17 @@ def test_dial_slider_and_state_stay_in_step(mailroom):
 def test_dial_without_labels_cannot_fit():
     dial = TemperatureDial(LogitFrame(np.zeros((3, 2))))
     assert dial.fit_button.disabled
+
+
+def test_scatter_rings_the_focused_sample(parcels):
+    view = ScoreScatter(parcels)
+    assert view._focus_mark.visible is False
+    view.state.focus = 1234
+    assert view._focus_mark.visible is True
+    assert view._focus_mark.x[0] == pytest.approx(_confidence(parcels)[1234], rel=1e-9)
+    assert view._focus_mark.y[0] == pytest.approx(_entropy(parcels)[1234], rel=1e-9, abs=1e-12)
+    view.y_score = "margin"
+    p = np.sort(_softmax(parcels)[1234])
+    assert view._focus_mark.y[0] == pytest.approx(p[-1] - p[-2], abs=1e-9)
+    view.state.focus = None
+    assert view._focus_mark.visible is False

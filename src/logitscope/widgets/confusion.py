@@ -202,10 +202,11 @@ class ConfusionHeatmap(widgets.VBox):
         self._row_button.on_click(lambda b: self._select_clicked("row"))
         self._col_button.on_click(lambda b: self._select_clicked("column"))
         self._k_menu = widgets.Dropdown(
-            options=[(f"top-{i}" if i > 1 else "top-1 (errors)", i) for i in range(1, min(5, kk) + 1)],
+            options=[(f"top {i}" if i > 1 else "top 1 (errors)", i) for i in range(1, min(5, kk) + 1)],
             value=max(1, min(int(k), 5, kk)),
             description="within",
-            layout={"width": "170px"},
+            style={"description_width": "50px"},
+            layout={"width": "190px"},
         )
         self._pair_box = widgets.VBox(layout={"width": "100%"})
         self._note = widgets.Label()

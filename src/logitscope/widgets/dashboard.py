@@ -104,9 +104,10 @@ class Dashboard(widgets.VBox):
         selection_bar = widgets.HBox([self._selection, self._clear], layout=widgets.Layout(align_items="center"))
 
         row1 = _row(
-            _panel("Score scatter", self.scatter, flex="1.3 1 440px", min_width="380px"),
-            _panel("Confidence histogram", self.histogram, flex="1 1 320px", min_width="300px"),
-            _panel("Sample card", self.card, flex="0.9 1 280px", min_width="260px"),
+            _panel("Score scatter", self.scatter, flex="1.3 1 400px", min_width="360px"),
+            _panel("Confidence histogram", self.histogram, flex="1 1 280px", min_width="270px"),
+            # the card's own stylesheet asks for at least 400 px plus its padding
+            _panel("Sample card", self.card, flex="0 0 440px", min_width="440px"),
         )
         row2 = _row(_panel("Samples", self.gallery, flex="1 1 100%"))
         side = widgets.VBox(

@@ -129,7 +129,7 @@ class ConfidenceHistogram(widgets.VBox):
             axes=[self._ax, self._ay],
             interaction=self._brush,
             fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
-            layout=widgets.Layout(width="100%", height="300px"),
+            layout=widgets.Layout(width="100%", height="330px"),
         )
         self._menu = widgets.Dropdown(
             options=self.scores_offered, value=score, description="score", layout={"width": "210px"}
@@ -219,7 +219,7 @@ class ConfidenceHistogram(widgets.VBox):
         rows = self.state.rows
         if self.state.origin != self.name and self._interval is not None:
             self._interval = None
-            self._brush.reset()
+            self._brush.selected = None  # bqplot redraws the brush from it (its reset does nothing)
         n_series = len(self._groups())
         if rows.size == 0:
             self._sel_bars.visible = False
@@ -232,12 +232,12 @@ class ConfidenceHistogram(widgets.VBox):
 
     def _on_temperature(self, change: Any) -> None:
         self._interval = None
-        self._brush.reset()
+        self._brush.selected = None  # bqplot redraws the brush from it (its reset does nothing)
         self._redraw()
 
     def _on_score(self, change: Any) -> None:
         self._interval = None
-        self._brush.reset()
+        self._brush.selected = None  # bqplot redraws the brush from it (its reset does nothing)
         self._redraw()
 
     def _on_layout_mode(self, change: Any = None) -> None:

@@ -363,6 +363,17 @@ class ScoreScatter(widgets.VBox):
         scales = {"x": self._sx, "y": self._sy}
         self._mark = bq.Image(image=widgets.Image(format="png"), scales=scales, pixelated=False)
         self._top_mark = bq.Image(image=self._top_widgets[0], scales=scales, pixelated=False)
+        # a ring around the sample in the card (state.focus): one SVG element
+        self._focus_mark = bq.Scatter(
+            x=np.zeros(1),
+            y=np.zeros(1),
+            scales=scales,
+            default_size=140,
+            fill=False,
+            colors=["#111111"],
+            stroke_width=2.0,
+            visible=False,
+        )
         self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none")
         self._ay = bq.Axis(scale=self._sy, label=y, side="left", grid_lines="none")
         self._brush = QuietBrush(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
@@ -371,7 +382,7 @@ class ScoreScatter(widgets.VBox):
         self._lasso: LassoSelector | None = None
         self.figure = bq.Figure(
             display_toolbar=False,
-            marks=[self._mark, self._top_mark],
+            marks=[self._mark, self._top_mark, self._focus_mark],
             axes=[self._ax, self._ay],
             interaction=self._brush,
             fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
@@ -410,6 +421,7 @@ class ScoreScatter(widgets.VBox):
         self.observe(self._on_mode, "mode")
         self.state.observe(self._on_temperature, "temperature")
         self.state.observe(self._on_rows, "rows")
+        self.state.observe(self._show_focus, "focus")
         self._place()
         self._recolor()
         self._on_rows()
@@ -451,6 +463,18 @@ class ScoreScatter(widgets.VBox):
             with self._probe.hold_sync():
                 self._probe.x = x.astype(np.float32)
                 self._probe.y = y.astype(np.float32)
+        self._show_focus()
+
+    def _show_focus(self, change: Any = None) -> None:
+        """Ring the focused sample (the one the card shows), if any."""
+        row = self.state.focus
+        if row is None:
+            self._focus_mark.visible = False
+            return
+        with self._focus_mark.hold_sync():
+            self._focus_mark.x = np.array([self.column(self.x_score)[row]])
+            self._focus_mark.y = np.array([self.column(self.y_score)[row]])
+            self._focus_mark.visible = True
 
     def _recolor(self) -> None:
         """Colour group of each row and the palette, for the current colour mode."""
@@ -538,15 +562,24 @@ class ScoreScatter(widgets.VBox):
             self._clear_tools()
         self._draw()
 
+    def _clear_brush(self) -> None:
+        """Remove the brush rectangle (bqplot draws it from selected_x / selected_y; its reset does nothing)."""
+        self._last_box = None
+        if self._brush.selected_x is not None or self._brush.selected_y is not None:
+            with self._brush.hold_sync():
+                self._brush.selected_x = None
+                self._brush.selected_y = None
+
     def _clear_tools(self) -> None:
         """Remove a stale brush rectangle or lasso when another view made the selection."""
         if self._last_box is not None:
             self._last_box = None
-            self._brush.reset()
+            self._clear_brush()
         if self._lasso is not None and self._probe is not None and self._probe.selected is not None:
             self._lasso.reset()
 
     def _on_temperature(self, change: Any) -> None:
+        self._clear_brush()  # its extents no longer match the moved points; the rows stay selected
         self._place()
         if self.color_by == "correct / wrong":
             self._recolor()
@@ -604,7 +637,7 @@ class ScoreScatter(widgets.VBox):
             )
             self._probe.observe(self._on_lasso, "selected")
             self._lasso = LassoSelector(x_scale=self._sx, y_scale=self._sy, marks=[self._probe], color="#3d5f8f")
-            self.figure.marks = [self._mark, self._top_mark, self._probe]
+            self.figure.marks = [self._mark, self._top_mark, self._focus_mark, self._probe]
         return self._lasso
 
     def _on_lasso(self, change: Any) -> None:
@@ -625,7 +658,7 @@ class ScoreScatter(widgets.VBox):
 
     def _on_mode(self, change: Any) -> None:
         if self.mode == "lasso":
-            self._brush.reset()
+            self._clear_brush()
             self._last_box = None
             self.figure.interaction = self._ensure_lasso()
         else:
@@ -634,7 +667,7 @@ class ScoreScatter(widgets.VBox):
             self.figure.interaction = self._brush
 
     def _on_axes(self, change: Any) -> None:
-        self._brush.reset()
+        self._clear_brush()
         self._last_box = None
         if self._lasso is not None:
             self._lasso.reset()
