@@ -477,3 +477,21 @@ def test_scatter_rings_the_focused_sample(parcels):
     assert view._focus_mark.y[0] == pytest.approx(p[-1] - p[-2], abs=1e-9)
     view.state.focus = None
     assert view._focus_mark.visible is False
+
+
+def test_hidden_diagonal_keeps_confusions_inside_other():
+    rng = np.random.default_rng(8)
+    n, k = 6000, 60
+    y = rng.integers(0, k, n)
+    z = rng.normal(size=(n, k)).astype(np.float32)
+    z[np.arange(n), y] += 2.0
+    view = ConfusionHeatmap(LogitFrame(z, labels=y), max_classes=12)
+    ref = sk_confusion_matrix(y, z.argmax(axis=1), labels=range(k))  # scikit-learn
+    rest = np.setdiff1d(np.arange(k), view.shown_classes)
+    inner = ref[np.ix_(rest, rest)]
+    view.hide_diagonal = True
+    m = view.matrix()
+    assert np.all(np.diag(m)[:-1] == 0)
+    assert m[-1, -1] == inner.sum() - np.trace(inner) > 0  # other classes mistaken for each other
+    view.normalize = True
+    assert view.matrix()[-1, -1] == pytest.approx((inner.sum() - np.trace(inner)) / ref[rest].sum())

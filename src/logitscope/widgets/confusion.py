@@ -235,11 +235,24 @@ class ConfusionHeatmap(widgets.VBox):
     # ------------------------------------------------------------------ numbers
 
     def matrix(self) -> np.ndarray:
-        """The drawn matrix: aggregated counts, or row shares with ``normalize``, as float64."""
+        """The drawn matrix: aggregated counts, or row shares with ``normalize``, as float64.
+
+        With ``hide_diagonal`` the correct samples are left out: the diagonal
+        becomes zero, except the "other"/"other" cell, which keeps the
+        confusions among the classes summed into "other".
+        """
         m = an.normalize_rows(self.aggregated) if self.normalize else self.aggregated.astype(np.float64)
         if self.hide_diagonal:
             m = m.copy()
             np.fill_diagonal(m, 0.0)
+            if self.has_other:
+                hidden = np.setdiff1d(np.arange(self.frame.n_classes), self.shown_classes)
+                inner = self.counts[np.ix_(hidden, hidden)]
+                errors = float(inner.sum() - np.trace(inner))
+                if self.normalize:
+                    row = float(self.aggregated[-1].sum())
+                    errors = errors / row if row > 0 else 0.0
+                m[-1, -1] = errors
         return m
 
     def top_k_matrix(self, k: int) -> np.ndarray:
