@@ -1,5 +1,6 @@
 """Linked views over a LogitFrame; each observes one :class:`SharedState`."""
 
+from .calibration_panel import CalibrationPanel
 from .card import SampleCard
 from .confusion import ConfusionHeatmap
 from .dashboard import Dashboard
@@ -7,19 +8,26 @@ from .dial import TemperatureDial
 from .gallery import SampleGallery
 from .histogram import ConfidenceHistogram
 from .relabel import LabelIssuePicker, RelabelQueue
+from .reliability import ReliabilityDiagram
 from .scatter import ScoreScatter
 from .state import SharedState, as_rows
+from .sweep import TemperatureSweepView
+from .threshold import ThresholdPicker
 
 __all__ = [
+    "CalibrationPanel",
     "ConfidenceHistogram",
     "ConfusionHeatmap",
     "Dashboard",
     "LabelIssuePicker",
     "RelabelQueue",
+    "ReliabilityDiagram",
     "SampleCard",
     "SampleGallery",
     "ScoreScatter",
     "SharedState",
     "TemperatureDial",
+    "TemperatureSweepView",
+    "ThresholdPicker",
     "as_rows",
 ]
