@@ -139,11 +139,11 @@ class SampleGallery(anywidget.AnyWidget):
         self._page_rows = np.zeros(0, dtype=np.int64)
         self._busy = False
         super().__init__(sort_columns=cols, sort_by=sort_by, descending=bool(descending), focus=st.focus, **kwargs)
-        st.observe(self._on_rows, "rows")
+        st.observe(self._back_to_first_page, "rows")
         st.observe(self._on_temperature, "temperature")
         st.observe(self._on_state_focus, "focus")
         self.observe(self._on_page, "page")
-        self.observe(self._on_sort, ["sort_by", "descending"])
+        self.observe(self._back_to_first_page, ["sort_by", "descending"])
         self.observe(self._on_focus, "focus")
         self.refresh()
 
@@ -257,7 +257,8 @@ class SampleGallery(anywidget.AnyWidget):
             out.append(tile)
         return out
 
-    def _on_rows(self, change: dict[str, Any]) -> None:
+    def _back_to_first_page(self, change: dict[str, Any]) -> None:
+        """A new selection or sort order starts again at page 0, with one refresh."""
         self._busy = True
         try:
             self.page = 0
@@ -278,14 +279,6 @@ class SampleGallery(anywidget.AnyWidget):
         if self.sort_columns:
             self._check_sort(value, list(self.sort_columns))
         return value
-
-    def _on_sort(self, change: dict[str, Any]) -> None:
-        self._busy = True
-        try:
-            self.page = 0
-        finally:
-            self._busy = False
-        self.refresh()
 
     def _on_state_focus(self, change: dict[str, Any]) -> None:
         self.focus = change["new"]

@@ -173,30 +173,8 @@ class ReliabilityDiagram(widgets.VBox):
             x=[0.0, 1.0], y=[0.0, 1.0], scales=sc, colors=["#8a94a1"], line_style="dashed", stroke_width=1.2
         )
         empty = np.zeros((1, 5))
-        self.bars = bq.Lines(
-            x=empty,
-            y=empty,
-            scales=sc,
-            fill="inside",
-            close_path=True,
-            colors=[COLOR_RIGHT],
-            fill_colors=[COLOR_RIGHT],
-            fill_opacities=[0.8],
-            stroke_width=1,
-            labels=["accuracy"],
-        )
-        self.gaps = bq.Lines(
-            x=empty,
-            y=empty,
-            scales=sc,
-            fill="inside",
-            close_path=True,
-            colors=[COLOR_WRONG],
-            fill_colors=[COLOR_WRONG],
-            fill_opacities=[0.22],
-            stroke_width=0.8,
-            labels=["gap"],
-        )
+        self.bars = _filled_shapes(sc, COLOR_RIGHT, opacity=0.8, stroke=1.0, label="accuracy")
+        self.gaps = _filled_shapes(sc, COLOR_WRONG, opacity=0.22, stroke=0.8, label="gap")
         self._conf_ticks = bq.Lines(x=empty[:, :2], y=empty[:, :2], scales=sc, colors=["#1f2933"], stroke_width=1.5)
         self.bars.on_element_click(self._on_click)
         self.gaps.on_element_click(self._on_click)
@@ -446,3 +424,12 @@ class ReliabilityDiagram(widgets.VBox):
         if self.selected_bin is not None and self.state.origin == self.name:
             self.selected_bin = None
         self._redraw()
+
+
+def _filled_shapes(scales: dict[str, Any], color: str, opacity: float, stroke: float, label: str) -> bq.Lines:
+    """Closed, filled bqplot shapes (one per bin), empty until the first draw."""
+    empty = np.zeros((1, 5))
+    return bq.Lines(
+        x=empty, y=empty, scales=scales, fill="inside", close_path=True, colors=[color],
+        fill_colors=[color], fill_opacities=[opacity], stroke_width=stroke, labels=[label],
+    )  # fmt: skip
