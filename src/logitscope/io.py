@@ -132,7 +132,12 @@ def read_frame(path: str | os.PathLike[str]) -> LogitFrame:
             payload["texts"] = [str(t) for t in payload["texts"].tolist()]
         if "image_paths" in payload:
             payload["image_paths"] = [str(t) for t in payload["image_paths"].tolist()]
-        common = {"labels": arrays.get("labels"), "classes": classes, "ids": arrays.get("ids"), "meta": meta}
+        common: dict[str, Any] = {
+            "labels": arrays.get("labels"),
+            "classes": classes,
+            "ids": arrays.get("ids"),
+            "meta": meta,
+        }
         try:
             if "logits" in arrays:
                 return LogitFrame(arrays["logits"], **common, **payload)

@@ -84,6 +84,7 @@ def summarize(
     s = frame.sample_scores(t)
     if frame.has_labels:
         assert s.correct is not None and s.true_rank is not None
+        assert s.true_log_probability is not None and s.brier is not None
         bins = an.reliability_bins(s.confidence, s.correct, n_bins=n_bins)
         out["accuracy"] = float(np.mean(s.correct))
         ks = an.default_ks(frame.n_classes)
@@ -95,6 +96,7 @@ def summarize(
     out["mean_confidence"] = float(np.mean(s.confidence))
     out["mean_entropy"] = float(np.mean(s.entropy))
     if frame.has_labels:
+        assert s.correct is not None
         out["aurc"] = an.aurc(s.confidence, s.correct)
     out["temperature"] = t
     if fit is not None:
@@ -105,6 +107,7 @@ def summarize(
             from .errors import LabelError
 
             raise LabelError("a threshold for a target accuracy needs labels")
+        assert s.correct is not None
         choice = an.threshold_for_accuracy(s.confidence, s.correct, target_accuracy, method=interval)
         out["threshold"] = choice.to_dict()
         out["threshold"]["target_accuracy"] = target_accuracy

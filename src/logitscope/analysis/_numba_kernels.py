@@ -19,6 +19,7 @@ multiplied by a huge logit difference.
 from __future__ import annotations
 
 import math
+from typing import Literal, TypedDict
 
 import numba
 import numpy as np
@@ -27,7 +28,17 @@ from numba.extending import intrinsic
 
 # reassociation lets the reductions vectorise; no-NaN / no-inf flags are NOT set (rows start at -inf)
 _FAST = {"reassoc", "contract", "nsz"}
-_OPTS = {"nogil": True, "cache": True, "parallel": True, "error_model": "numpy", "fastmath": _FAST}
+
+
+class _JitOptions(TypedDict):
+    nogil: bool
+    cache: bool
+    parallel: bool
+    error_model: Literal["python", "numpy"]
+    fastmath: set[str]
+
+
+_OPTS: _JitOptions = {"nogil": True, "cache": True, "parallel": True, "error_model": "numpy", "fastmath": _FAST}
 
 _LOG2E = 1.4426950408889634
 _LN2_HI = 6.93147180369123816490e-01  # high part of ln 2 (fdlibm)

@@ -95,16 +95,14 @@ def compare_checkpoints(
         sa = sample_scores(za, y, temperature=temperature_a)
         sb = sample_scores(zb, y, temperature=temperature_b)
     changed = np.flatnonzero(sa.predicted != sb.predicted)
-    common = {
-        "n_samples": int(za.shape[0]),
-        "agreement": float(1.0 - changed.size / za.shape[0]),
-        "changed_rows": changed,
-        "mean_abs_confidence_change": float(np.mean(np.abs(sa.confidence - sb.confidence))),
-    }
+    n_samples = int(za.shape[0])
+    agreement = float(1.0 - changed.size / za.shape[0])
+    mean_abs_confidence_change = float(np.mean(np.abs(sa.confidence - sb.confidence)))
     if y is None:
         return CheckpointComparison(
             accuracy_a=None, accuracy_b=None, both_right=None, only_a_right=None, only_b_right=None,
-            both_wrong=None, mcnemar_p=None, fixed_rows=None, broken_rows=None, **common,
+            both_wrong=None, mcnemar_p=None, fixed_rows=None, broken_rows=None, n_samples=n_samples,
+            agreement=agreement, changed_rows=changed, mean_abs_confidence_change=mean_abs_confidence_change,
         )  # fmt: skip
     ra, rb = sa.correct, sb.correct
     assert ra is not None and rb is not None
@@ -120,5 +118,8 @@ def compare_checkpoints(
         mcnemar_p=mcnemar_exact(only_a, only_b),
         fixed_rows=np.flatnonzero(~ra & rb),
         broken_rows=np.flatnonzero(ra & ~rb),
-        **common,
+        n_samples=n_samples,
+        agreement=agreement,
+        changed_rows=changed,
+        mean_abs_confidence_change=mean_abs_confidence_change,
     )

@@ -108,6 +108,7 @@ def nll(logits: ArrayLike, labels: ArrayLike, temperature: float = 1.0) -> float
     """
     z, y = _prepare(logits, labels)
     s = sample_scores(z, y, temperature=temperature)
+    assert s.true_log_probability is not None  # labels given
     return float(-np.mean(s.true_log_probability))
 
 
@@ -125,6 +126,7 @@ def brier(logits: ArrayLike, labels: ArrayLike, temperature: float = 1.0) -> flo
     """
     z, y = _prepare(logits, labels)
     s = sample_scores(z, y, temperature=temperature)
+    assert s.brier is not None  # labels given
     return float(np.mean(s.brier))
 
 

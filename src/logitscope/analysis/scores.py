@@ -143,7 +143,7 @@ def _numba_blocks(z: np.ndarray) -> Iterator[tuple[slice, np.ndarray]]:
         yield slice(0, z.shape[0]), z
         return
     wide = np.float64 if z.dtype == np.float64 else np.float32
-    for rows in block_slices(*z.shape, budget=1 << 22):
+    for rows in block_slices(z.shape[0], z.shape[1], budget=1 << 22):
         yield rows, np.ascontiguousarray(z[rows], dtype=wide)
 
 
@@ -233,7 +233,7 @@ def sample_scores(
         nb = _numba()
         has_y = y is not None
         for rows, zc in _numba_blocks(z):
-            yy = y[rows] if has_y else np.zeros(1, dtype=np.int64)
+            yy = y[rows] if y is not None else np.zeros(1, dtype=np.int64)
             per_row = [out[name][rows] for name in ("predicted", *f64)]
             label_cols = [out[name][rows] if has_y else np.empty(1) for name in ("true_log_probability", "brier")]
             rank = out["true_rank"][rows] if has_y else np.empty(1, dtype=np.int64)

@@ -14,7 +14,8 @@ are chosen) and ``held_out`` (where they are judged). Pure numpy.
 
 from __future__ import annotations
 
-from typing import Any, NamedTuple
+from collections.abc import Iterable
+from typing import Any, NamedTuple, cast
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -131,7 +132,7 @@ def split_by_values(column: ArrayLike, fit_values: ArrayLike | Any) -> Split:
     if isinstance(fit_values, str) or np.ndim(fit_values) == 0:
         values = [fit_values]
     else:
-        values = list(fit_values)
+        values = list(cast(Iterable[Any], fit_values))  # np.ndim > 0: a sequence or an array
     if not values:
         raise ParameterError("fit_values is empty: name at least one value whose rows form the fit part")
     present = set(col.tolist())

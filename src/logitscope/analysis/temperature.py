@@ -224,6 +224,7 @@ def temperature_sweep(
     with assume_valid():
         for i, t in enumerate(grid):
             s = sample_scores(z, y, temperature=float(t))
+            assert s.true_log_probability is not None and s.brier is not None and s.correct is not None  # labels given
             out["nll"][i] = -np.mean(s.true_log_probability)
             out["brier"][i] = np.mean(s.brier)
             out["mean_confidence"][i] = np.mean(s.confidence)

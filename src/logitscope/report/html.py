@@ -513,7 +513,7 @@ def _thumbnail(frame: LogitFrame, row: int) -> str:
         img = img[:, :, 0]
     pil = Image.fromarray(img)
     scale = max(1, 48 // max(pil.size))
-    pil = pil.resize((pil.size[0] * scale, pil.size[1] * scale), Image.NEAREST)
+    pil = pil.resize((pil.size[0] * scale, pil.size[1] * scale), Image.Resampling.NEAREST)
     if max(pil.size) > 64:
         pil.thumbnail((64, 64))
     buf = io.BytesIO()
@@ -588,7 +588,7 @@ def _calibration_section(frame: LogitFrame, ch: ReportChoices) -> str:
     tables = []
     for key, t, label in temps:
         s = frame.sample_scores(t)
-        assert s.correct is not None
+        assert s.correct is not None and s.true_log_probability is not None and s.brier is not None
         bins = an.reliability_bins(s.confidence, s.correct, ch.n_bins, ch.strategy)
         nll = float(-np.mean(s.true_log_probability))
         bri = float(np.mean(s.brier))
@@ -675,16 +675,17 @@ def _sweep_section(frame: LogitFrame, ch: ReportChoices) -> str:
 def _choose(
     conf: np.ndarray, ok: np.ndarray, ch: ReportChoices, target: float | None = None
 ) -> an.ThresholdChoice | None:
-    kw = {"level": ch.level, "method": ch.interval}
     if ch.rule == "accuracy":
         assert ch.target_accuracy is not None
-        return an.threshold_for_accuracy(conf, ok, ch.target_accuracy, use_lower_bound=ch.use_lower_bound, **kw)
+        return an.threshold_for_accuracy(
+            conf, ok, ch.target_accuracy, use_lower_bound=ch.use_lower_bound, level=ch.level, method=ch.interval
+        )
     if ch.rule == "cost":
         assert ch.costs is not None
-        return an.threshold_for_cost(conf, ok, ch.costs[0], ch.costs[1], **kw)
+        return an.threshold_for_cost(conf, ok, ch.costs[0], ch.costs[1], level=ch.level, method=ch.interval)
     if ch.rule == "fixed":
         assert ch.threshold is not None
-        return an.evaluate_threshold(conf, ok, ch.threshold, **kw)
+        return an.evaluate_threshold(conf, ok, ch.threshold, level=ch.level, method=ch.interval)
     return None
 
 
@@ -782,17 +783,17 @@ def _threshold_section(frame: LogitFrame, ch: ReportChoices) -> str:
             conf, ok, pred, ch.target_accuracy, frame.n_classes, ch.level, ch.interval, ch.use_lower_bound
         )
         rows = []
-        for k, c in enumerate(pcs):
-            if c is None:
+        for k, pc in enumerate(pcs):
+            if pc is None:
                 continue
             rows.append(
                 f"<tr {attrs({'data-class': k})}>"
                 + txt(frame.classes[k], cls="class-name")
-                + num(c.threshold if math.isfinite(c.threshold) else None, id=f"own-{k}-value")
-                + num(c.coverage, id=f"own-{k}-coverage", pct=True)
-                + num(c.accuracy, id=f"own-{k}-accuracy")
-                + num(c.interval[0], id=f"own-{k}-ci-low")
-                + num(c.interval[1], id=f"own-{k}-ci-high")
+                + num(pc.threshold if math.isfinite(pc.threshold) else None, id=f"own-{k}-value")
+                + num(pc.coverage, id=f"own-{k}-coverage", pct=True)
+                + num(pc.accuracy, id=f"own-{k}-accuracy")
+                + num(pc.interval[0], id=f"own-{k}-ci-low")
+                + num(pc.interval[1], id=f"own-{k}-ci-high")
                 + "</tr>"
             )
         own = (
@@ -826,6 +827,7 @@ def _held_out_section(frame: LogitFrame, ch: ReportChoices, split: Split | None)
     for key, part, label in (("fit", fit_part, "fit part"), ("held", held, "held-out part")):
         s0, s1 = part.sample_scores(ch.base_temperature), part.sample_scores(t_fit)
         assert s0.correct is not None and s1.correct is not None
+        assert s0.true_log_probability is not None and s1.true_log_probability is not None
         e0 = an.reliability_bins(s0.confidence, s0.correct, ch.n_bins, ch.strategy).ece
         e1 = an.reliability_bins(s1.confidence, s1.correct, ch.n_bins, ch.strategy).ece
         rows.append(

@@ -320,7 +320,7 @@ class Chart:
             cls, label = item[0], item[1]
             yy = y + 15 * i
             if len(item) > 2 and item[2] == "line":
-                box = {"x1": float(x), "x2": float(x + 14), "y1": yy + 4.5, "y2": yy + 4.5}
+                box: dict[str, object] = {"x1": float(x), "x2": float(x + 14), "y1": yy + 4.5, "y2": yy + 4.5}
                 self._overlay.append(element("line", {"class": cls + " swatch-line", **box}))
             else:
                 box = {"x": x, "y": yy, "width": 14, "height": 9, "fill": item[3] if len(item) > 3 else None}

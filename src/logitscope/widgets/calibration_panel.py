@@ -22,12 +22,14 @@ from __future__ import annotations
 import html
 import math
 import os
-from typing import Any
+from typing import Any, cast
 
 import ipywidgets as widgets
 import traitlets
 
 from .. import analysis as an
+from ..analysis.calibration import Strategy
+from ..analysis.selective import IntervalMethod
 from ..analysis.split import Split, random_split, split_by_values
 from ..errors import LogitscopeError
 from ..frame import LogitFrame
@@ -287,7 +289,7 @@ class CalibrationPanel(widgets.VBox):
 
     # ------------------------------------------------------------------ held-out numbers
 
-    def held_out_numbers(self) -> dict | None:
+    def held_out_numbers(self) -> dict[str, Any] | None:
         """Calibration numbers and the threshold's readouts on the held-out part (None without a split)."""
         if self.split is None or not self.frame.has_labels or self.picker.choice is None:
             return None
@@ -295,15 +297,16 @@ class CalibrationPanel(widgets.VBox):
         t = self.state.temperature
         s = self.frame.sample_scores(t)
         assert s.correct is not None
-        bins = an.reliability_bins(s.confidence[held], s.correct[held], self.diagram.n_bins, self.diagram.strategy)
-        out = {"calibration": calibration_numbers(self.frame, held, t, bins)}
+        strategy = cast(Strategy, self.diagram.strategy)  # a traitlets.Enum of the two strategies
+        bins = an.reliability_bins(s.confidence[held], s.correct[held], self.diagram.n_bins, strategy)
+        out: dict[str, Any] = {"calibration": calibration_numbers(self.frame, held, t, bins)}
         base = self.frame.sample_scores(self.frame.temperature)
         assert base.correct is not None
-        b0 = an.reliability_bins(base.confidence[held], base.correct[held], self.diagram.n_bins, self.diagram.strategy)
+        b0 = an.reliability_bins(base.confidence[held], base.correct[held], self.diagram.n_bins, strategy)
         out["calibration_as_given"] = calibration_numbers(self.frame, held, self.frame.temperature, b0)
         thr = self.picker.choice.threshold
         out["threshold"] = an.evaluate_threshold(
-            s.confidence[held], s.correct[held], thr, self.picker.level, self.picker.interval
+            s.confidence[held], s.correct[held], thr, self.picker.level, cast(IntervalMethod, self.picker.interval)
         )
         return out
 

@@ -167,7 +167,9 @@ class Dashboard(widgets.VBox):
         if self.state.origin:
             text += f" by {self.state.origin}"
         if self.frame.has_labels:
-            wrong = int((~self.frame.sample_scores(self.state.temperature).correct[rows]).sum())
+            correct = self.frame.sample_scores(self.state.temperature).correct
+            assert correct is not None  # the frame has labels
+            wrong = int((~correct[rows]).sum())
             text += f"; {wrong:,} of them misclassified ({wrong / rows.size:.0%})"
         self._selection.value = text
         self._clear.disabled = False
@@ -176,7 +178,9 @@ class Dashboard(widgets.VBox):
         f = self.frame
         text = f"{f.n_samples:,} samples × {f.n_classes:,} classes"
         if f.has_labels:
-            acc = float(f.sample_scores(self.state.temperature).correct.mean())
+            correct = f.sample_scores(self.state.temperature).correct
+            assert correct is not None  # the frame has labels
+            acc = float(correct.mean())
             text += f", accuracy {acc:.1%}"
         self._summary.value = text
         self._on_rows()

@@ -175,6 +175,7 @@ class ConfidenceHistogram(widgets.VBox):
         if not self.frame.has_labels:
             return [np.ones(self.frame.n_samples, dtype=bool)]
         correct = self.frame.sample_scores(self.state.temperature).correct
+        assert correct is not None  # the frame has labels
         return [correct, ~correct]
 
     def counts(self, rows: np.ndarray | None = None) -> np.ndarray:

@@ -12,7 +12,7 @@ share of each bin it covers.
 from __future__ import annotations
 
 import html
-from typing import Any
+from typing import Any, cast
 
 import bqplot as bq
 import ipywidgets as widgets
@@ -20,6 +20,7 @@ import numpy as np
 import traitlets
 
 from .. import analysis as an
+from ..analysis.calibration import Strategy
 from ..errors import ParameterError
 from ..frame import LogitFrame
 from .scatter import COLOR_RIGHT, COLOR_WRONG, view_state
@@ -299,7 +300,8 @@ class ReliabilityDiagram(widgets.VBox):
         s = self.frame.sample_scores(self.state.temperature)
         if s.correct is None:
             raise ParameterError("a reliability diagram needs labels; this frame has none")
-        return an.reliability_bins(s.confidence[self.rows], s.correct[self.rows], self.n_bins, self.strategy)
+        strategy = cast(Strategy, self.strategy)  # a traitlets.Enum of the two strategies
+        return an.reliability_bins(s.confidence[self.rows], s.correct[self.rows], self.n_bins, strategy)
 
     def _redraw(self) -> None:
         if not self.frame.has_labels:

@@ -481,7 +481,9 @@ class ScoreScatter(widgets.VBox):
         field = _COLOR_MODES[self.color_by]
         if field == "correct":
             # wrong samples drawn last, over the (usually many more) right ones
-            self._groups = (~self.frame.sample_scores(self.state.temperature).correct).astype(np.int64)
+            correct = self.frame.sample_scores(self.state.temperature).correct
+            assert correct is not None  # this colour mode is offered only when the frame has labels
+            self._groups = (~correct).astype(np.int64)
             self._palette = [COLOR_RIGHT, COLOR_WRONG]
             key = [(COLOR_RIGHT, "correct"), (COLOR_WRONG, "wrong")]
         else:
@@ -541,6 +543,7 @@ class ScoreScatter(widgets.VBox):
             self._top_mark.x = np.array([x0 + (x1 - x0) * c0 / w, x0 + (x1 - x0) * c1 / w])
             self._top_mark.y = np.array([y1 - (y1 - y0) * r1 / h, y1 - (y1 - y0) * r0 / h])
             self._top_mark.image = widget
+        assert self._base_widgets is not None  # built together with self._base above
         self._mark.image = self._base_widgets[0 if rows.size == 0 else 1]
 
     @property
@@ -615,10 +618,12 @@ class ScoreScatter(widgets.VBox):
                 self._last_box = None
                 self.state.clear(origin=self.name)
             return
-        box = (*sorted((float(sx[0]), float(sx[1]))), *sorted((float(sy[0]), float(sy[1]))))
+        x0, x1 = sorted((float(sx[0]), float(sx[1])))
+        y0, y1 = sorted((float(sy[0]), float(sy[1])))
+        box = (x0, x1, y0, y1)
         if box == self._last_box:
             return
-        self.select_box(box[:2], box[2:])
+        self.select_box((x0, x1), (y0, y1))
 
     # ------------------------------------------------------------------ lasso
 

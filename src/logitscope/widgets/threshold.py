@@ -19,7 +19,7 @@ from __future__ import annotations
 
 import html
 import math
-from typing import Any
+from typing import Any, TypedDict, cast
 
 import bqplot as bq
 import ipywidgets as widgets
@@ -28,6 +28,7 @@ import traitlets
 from bqplot.interacts import BrushIntervalSelector
 
 from .. import analysis as an
+from ..analysis.selective import IntervalMethod
 from ..errors import ParameterError
 from ..frame import LogitFrame
 from .scatter import view_state
@@ -57,6 +58,13 @@ _CSS = (
     ".logitscope-caution{border-left:4px solid #d9822b;background:#fff7ec;padding:8px 12px;font-size:12.5px;"
     "max-width:380px;line-height:1.4;margin-top:10px}</style>"
 )
+
+
+class _IntervalOptions(TypedDict):
+    """Keyword arguments naming the binomial interval (``interval`` is a traitlets.Enum of the methods)."""
+
+    level: float
+    method: IntervalMethod
 
 
 def _pct(v: float) -> str:
@@ -318,7 +326,7 @@ class ThresholdPicker(widgets.VBox):
     def rule_choice(self) -> an.ThresholdChoice:
         """The threshold the current rule gives (or the hand-set one, evaluated)."""
         conf, ok, _ = self.scores()
-        kw = {"level": self.level, "method": self.interval}
+        kw: _IntervalOptions = {"level": self.level, "method": cast(IntervalMethod, self.interval)}
         if self.mode == "target accuracy":
             return an.threshold_for_accuracy(conf, ok, self.target_accuracy, use_lower_bound=self.use_lower_bound, **kw)
         if self.mode == "costs":
@@ -340,7 +348,7 @@ class ThresholdPicker(widgets.VBox):
         self._draw()
 
     def _compute_readouts(self, conf: np.ndarray, ok: np.ndarray, pred: np.ndarray) -> None:
-        kw = {"level": self.level, "method": self.interval}
+        kw: _IntervalOptions = {"level": self.level, "method": cast(IntervalMethod, self.interval)}
         if self.mode == "by hand":
             self.choice = an.evaluate_threshold(conf, ok, self.threshold, **kw)
         else:
@@ -359,7 +367,7 @@ class ThresholdPicker(widgets.VBox):
             self.class_thresholds = np.array([np.inf if c is None else c.threshold for c in own])
             accepted = conf >= self.class_thresholds[pred]
             n_acc, n_right = int(accepted.sum()), int((accepted & ok).sum())
-            lo, hi = an.binomial_interval(n_right, n_acc, self.level, self.interval)
+            lo, hi = an.binomial_interval(n_right, n_acc, self.level, cast(IntervalMethod, self.interval))
             self.combined = {
                 "coverage": n_acc / conf.size,
                 "accuracy": n_right / n_acc if n_acc else float("nan"),
