@@ -495,3 +495,17 @@ def test_hidden_diagonal_keeps_confusions_inside_other():
     assert m[-1, -1] == inner.sum() - np.trace(inner) > 0  # other classes mistaken for each other
     view.normalize = True
     assert view.matrix()[-1, -1] == pytest.approx((inner.sum() - np.trace(inner)) / ref[rest].sum())
+
+
+def test_colour_modes_that_need_labels_are_refused_on_an_unlabelled_frame():
+    # a clear TraitError naming the offered modes, instead of an error deep in the drawing code
+    import traitlets
+
+    from logitscope import LogitFrame
+    from logitscope.widgets.scatter import ScoreScatter
+
+    frame = LogitFrame(np.random.default_rng(3).normal(size=(40, 3)))
+    view = ScoreScatter(frame)
+    with pytest.raises(traitlets.TraitError, match="predicted class"):
+        view.color_by = "correct / wrong"
+    assert view.color_by == "predicted class"

@@ -442,6 +442,14 @@ class ScoreScatter(widgets.VBox):
             self._columns[score] = hit
         return hit
 
+    @traitlets.validate("color_by")
+    def _valid_color(self, proposal: Any) -> str:
+        value = str(proposal["value"])
+        offered = getattr(self, "colors_offered", tuple(_COLOR_MODES))
+        if value not in offered:
+            raise traitlets.TraitError(f"color_by must be one of {list(offered)} for this frame, got {value!r}")
+        return value
+
     def _place(self) -> None:
         """Axes extents and each row's pixel, for the current scores and temperature."""
         x, y = self.column(self.x_score), self.column(self.y_score)
