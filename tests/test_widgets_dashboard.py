@@ -152,3 +152,24 @@ def test_hostile_names_never_reach_html_widgets_unescaped(tmp_path):
         if isinstance(w, widgets.HTML):
             assert XSS not in w.value, f"raw class name inside HTML: {w.value!r}"
     assert html.escape(XSS) not in dash.confusion._ax_row.tick_labels.values()  # SVG text: no double escaping
+
+
+def test_sweep_selection_curve_waits_while_its_tab_is_hidden(dash):
+    # the selection's NLL curve costs one pass per temperature: computed only when the tab is in sight,
+    # then checked against sklearn's log_loss on the selected rows at one grid temperature
+    from scipy.special import softmax
+    from sklearn.metrics import log_loss
+
+    sweep = dash.calibration.sweep
+    assert not sweep.live  # built while the Explore tab is shown
+    rows = np.arange(0, dash.frame.n_samples, 5)
+    dash.selected = rows
+    assert sweep.selection_sweep is None
+    dash.tabs.selected_index = 1
+    assert sweep.live and sweep.selection_curve.visible
+    t = float(sweep.selection_curve.x[10])
+    p = softmax(np.asarray(dash.frame.logits[rows], dtype=np.float64) / t, axis=1)
+    ref = log_loss(dash.frame.labels[rows], p, labels=range(dash.frame.n_classes))
+    assert sweep.selection_curve.y[10] == pytest.approx(ref, rel=1e-7)
+    dash.tabs.selected_index = 0
+    assert not sweep.live

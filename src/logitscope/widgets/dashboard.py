@@ -147,14 +147,18 @@ class Dashboard(widgets.VBox):
             from .calibration_panel import CalibrationPanel
 
             self._calibration = CalibrationPanel(self.frame, self.state)
+            self._calibration.sweep.live = self.tabs.selected_index == 1
             self._calibrate_box.children = [self._calibration]
         return self._calibration
 
     # ------------------------------------------------------------------ callbacks
 
     def _on_tab(self, change: Any) -> None:
+        # the sweep's selection curve costs a pass per temperature: keep it for when its tab is in sight
         if change["new"] == 1:
-            _ = self.calibration
+            self.calibration.sweep.live = True
+        elif self._calibration is not None:
+            self._calibration.sweep.live = False
 
     def _on_rows(self, change: Any = None) -> None:
         rows = self.state.rows

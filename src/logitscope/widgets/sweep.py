@@ -71,6 +71,11 @@ class TemperatureSweepView(widgets.VBox):
     """
 
     fitted_temperature = traitlets.Float(None, allow_none=True, help="T minimising the NLL of the view's rows")
+    live = traitlets.Bool(
+        True,
+        help="follow other views' selections now; when False (the view is out of sight, e.g. on a hidden tab) "
+        "the selection's curve, one pass over its rows per grid point, is drawn when the view becomes live again",
+    )
 
     def __init__(
         self,
@@ -212,6 +217,8 @@ class TemperatureSweepView(widgets.VBox):
         self.one_button.on_click(lambda _: self.set_temperature(1.0))
         self.state.observe(self._on_temperature, "temperature")
         self.state.observe(self._on_rows, "rows")
+        self.observe(self._on_live, "live")
+        self._selection_stale = False
         self._compute()
 
     # ------------------------------------------------------------------ rows and numbers
@@ -368,7 +375,15 @@ class TemperatureSweepView(widgets.VBox):
 
     # ------------------------------------------------------------------ selection in
 
+    def _on_live(self, change: Any) -> None:
+        if change["new"] and self._selection_stale:
+            self._on_rows()
+
     def _on_rows(self, change: Any = None) -> None:
+        if not self.live:
+            self._selection_stale = True  # drawn when the view is in sight again
+            return
+        self._selection_stale = False
         rows = self.state.rows
         if self.sweep is None or rows.size == 0 or rows.size > MAX_SELECTION_SWEEP or self.frame.labels is None:
             self.selection_sweep = None
