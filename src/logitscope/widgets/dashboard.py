@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import html
 import os
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import ipywidgets as widgets
 import numpy as np
@@ -25,6 +25,9 @@ from .histogram import ConfidenceHistogram
 from .relabel import LabelIssuePicker, RelabelQueue
 from .scatter import ScoreScatter, view_state
 from .state import SharedState
+
+if TYPE_CHECKING:
+    from .calibration_panel import CalibrationPanel
 
 __all__ = ["Dashboard"]
 
@@ -92,7 +95,7 @@ class Dashboard(widgets.VBox):
         self.dial = TemperatureDial(frame, st)
         self.queue = RelabelQueue(frame, st, path=relabel_path)
         self.issues = LabelIssuePicker(frame, st, queue=self.queue)
-        self._calibration: widgets.Widget | None = None
+        self._calibration: CalibrationPanel | None = None
 
         self._summary = widgets.Label()
         self._selection = widgets.Label()
@@ -141,7 +144,7 @@ class Dashboard(widgets.VBox):
         self.state.select(rows, origin="python")
 
     @property
-    def calibration(self) -> widgets.Widget:
+    def calibration(self) -> CalibrationPanel:
         """The calibration panel of the second tab (built on first use)."""
         if self._calibration is None:
             from .calibration_panel import CalibrationPanel
