@@ -217,22 +217,8 @@ class ThresholdPicker(widgets.VBox):
         )
         self._lower = widgets.Checkbox(value=False, description="interval's lower bound must reach it", indent=False)
         self._per_class = widgets.Checkbox(value=False, description="one threshold per predicted class", indent=False)
-        self._error_cost = widgets.BoundedFloatText(
-            value=error_cost,
-            min=0.0,
-            max=1e9,
-            description="cost of an error",
-            style={"description_width": "100px"},
-            layout={"width": "200px"},
-        )
-        self._review_cost = widgets.BoundedFloatText(
-            value=review_cost,
-            min=0.0,
-            max=1e9,
-            description="cost of a review",
-            style={"description_width": "100px"},
-            layout={"width": "200px"},
-        )
+        self._error_cost = _cost_box("cost of an error", error_cost)
+        self._review_cost = _cost_box("cost of a review", review_cost)
         self._interval = widgets.Dropdown(
             options=[("Wilson score", "wilson"), ("Clopper-Pearson (exact)", "clopper-pearson")],
             value=interval,
@@ -633,3 +619,11 @@ class ThresholdPicker(widgets.VBox):
         with self.selected_points.hold_sync():
             self.selected_points.x, self.selected_points.y = rc.coverage[pos], y
             self.selected_points.visible = True
+
+
+def _cost_box(description: str, value: float) -> widgets.BoundedFloatText:
+    """A non-negative cost entry of the cost rule."""
+    return widgets.BoundedFloatText(
+        value=value, min=0.0, max=1e9, description=description,
+        style={"description_width": "100px"}, layout={"width": "200px"},
+    )  # fmt: skip
