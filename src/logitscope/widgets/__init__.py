@@ -2,6 +2,7 @@
 
 from .calibration_panel import CalibrationPanel
 from .card import SampleCard
+from .class_mix import ClassMixView
 from .confusion import ConfusionHeatmap
 from .dashboard import Dashboard
 from .dial import TemperatureDial
@@ -16,6 +17,7 @@ from .threshold import ThresholdPicker
 
 __all__ = [
     "CalibrationPanel",
+    "ClassMixView",
     "ConfidenceHistogram",
     "ConfusionHeatmap",
     "Dashboard",
