@@ -99,22 +99,27 @@ class ClassMixView(widgets.VBox):
         self.bars = bq.Bars(
             x=list(batch.classes), y=np.zeros((2, k)), scales={"x": self._sx, "y": self._sy},
             type="grouped", colors=[_REFERENCE, _BATCH], labels=["reference", "batch"],
-            display_legend=True, interactions={"click": "select"},
+            interactions={"click": "select"},
         )  # fmt: skip
         self.estimate_line = bq.Lines(
             x=list(batch.classes), y=np.zeros(k), scales={"x": self._sx, "y": self._sy},
             colors=[_ESTIMATE], marker="circle", stroke_width=0, marker_size=36,
-            labels=["EM estimate"], display_legend=True, visible=False,
+            labels=["EM estimate"], visible=False,
         )  # fmt: skip
         ax_x = bq.Axis(scale=self._sx, label="class", tick_rotate=-35 if k > 8 else 0)
         ax_y = bq.Axis(scale=self._sy, side="left", label="share of samples", tick_format=".0%")
         self.figure = bq.Figure(
-            marks=[self.bars, self.estimate_line], axes=[ax_x, ax_y], legend_location="top-right",
+            marks=[self.bars, self.estimate_line], axes=[ax_x, ax_y],
             fig_margin={"top": 20, "bottom": 70, "left": 60, "right": 10},
             layout=widgets.Layout(width="100%", height="320px"),
         )  # fmt: skip
         self.readout = widgets.HTML()
-        super().__init__(children=[widgets.HTML("<b>Class mix</b>"), self.figure, self.readout], **kwargs)
+        key = " ".join(
+            f"<span style='display:inline-block;width:10px;height:10px;background:{c};margin:0 4px 0 12px'></span>{t}"
+            for c, t in ((_REFERENCE, "reference"), (_BATCH, "batch"), (_ESTIMATE, "EM estimate (unlabelled batch)"))
+        )
+        title = widgets.HTML(f"<b>Class mix</b><span style='font-size:12px'>{key}</span>")
+        super().__init__(children=[title, self.figure, self.readout], **kwargs)
         self.add_class("logitscope-class-mix")
         self.bars.observe(self._on_bar_click, "selected")
         self.state.observe(self._recompute, "temperature")
