@@ -1,8 +1,9 @@
 """Shared fixtures for the test suite.
 
 Kept small and general: a seeded random generator, a maker of synthetic
-logits with labels drawn from a known model, and the ``backend`` fixture that
-runs a test on each per-sample score backend (numba and numpy).
+logits with labels drawn from a known model, the ``backend`` fixture that
+runs a test on each per-sample score backend (numba and numpy), and the
+bundled mail-room demo frame.
 """
 
 from __future__ import annotations
@@ -13,6 +14,9 @@ from collections.abc import Callable
 import numpy as np
 import pytest
 from scipy import special
+
+import logitscope
+from logitscope import LogitFrame
 
 _scores = importlib.import_module("logitscope.analysis.scores")
 
@@ -36,6 +40,15 @@ def backend(request: pytest.FixtureRequest, monkeypatch: pytest.MonkeyPatch) -> 
     if request.param == "numpy":
         monkeypatch.setattr(_scores, "_numba", lambda: None)
     return request.param
+
+
+@pytest.fixture(scope="session")
+def mailroom() -> LogitFrame:
+    """The bundled mail-room demo: sklearn's digits with out-of-fold logistic-regression logits.
+
+    Frames are immutable, so one instance serves the whole session.
+    """
+    return logitscope.load_demo("mailroom")
 
 
 @pytest.fixture

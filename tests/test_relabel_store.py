@@ -10,14 +10,8 @@ import numpy as np
 import pandas as pd
 import pytest
 
-import logitscope
 from logitscope import ClassNameError, FileFormatError, LogitFrame, ParameterError
 from logitscope.relabel_store import FIELDS, RelabelStore, RelabelStoreWarning, default_path, fingerprint
-
-
-@pytest.fixture(scope="module")
-def mailroom() -> LogitFrame:
-    return logitscope.load_demo("mailroom")
 
 
 @pytest.fixture

@@ -142,11 +142,6 @@ def _clopper_pearson(k: int, n: int, level: float = 0.95) -> tuple[float, float]
 
 
 @pytest.fixture(scope="module")
-def mailroom() -> LogitFrame:
-    return logitscope.load_demo("mailroom")
-
-
-@pytest.fixture(scope="module")
 def mailroom_page(mailroom: LogitFrame, tmp_path_factory: pytest.TempPathFactory) -> Page:
     path = tmp_path_factory.mktemp("report") / "mailroom.html"
     write_report(mailroom, path, fit_temperature=True, target_accuracy=0.98, title="Mail room, week 12")

@@ -30,11 +30,6 @@ from test_report import HAND_CONF, HAND_RIGHT, hand_frame, read_report
 pytestmark = pytest.mark.filterwarnings("ignore::DeprecationWarning")
 
 
-@pytest.fixture(scope="module")
-def mailroom() -> LogitFrame:
-    return logitscope.load_demo("mailroom")
-
-
 def _probs(frame: LogitFrame, t: float, rows: np.ndarray | None = None) -> np.ndarray:
     z = np.asarray(frame.logits, dtype=np.float64)
     if rows is not None:

@@ -4,15 +4,9 @@ import numpy as np
 import pytest
 from scipy import stats
 
-import logitscope
 from logitscope import ClassNameError, LogitFrame, ParameterError
 from logitscope.widgets import SharedState
 from logitscope.widgets.class_mix import ClassMixView
-
-
-@pytest.fixture(scope="module")
-def mailroom():
-    return logitscope.load_demo("mailroom")
 
 
 @pytest.fixture(scope="module")

@@ -31,11 +31,6 @@ from logitscope.widgets import (
 XSS = "<img src=x onerror=alert(1)>"
 
 
-@pytest.fixture(scope="module")
-def mailroom() -> LogitFrame:
-    return logitscope.load_demo("mailroom")
-
-
 @pytest.fixture
 def dash(mailroom: LogitFrame, tmp_path) -> Dashboard:
     return logitscope.explore(mailroom, relabel_path=tmp_path / "marks.json")

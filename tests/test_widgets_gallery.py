@@ -31,11 +31,6 @@ HOSTILE = "<img src=x onerror=alert(1)>"
 
 
 @pytest.fixture(scope="module")
-def mailroom() -> LogitFrame:
-    return logitscope.load_demo("mailroom")
-
-
-@pytest.fixture(scope="module")
 def helpdesk() -> LogitFrame:
     return logitscope.load_demo("helpdesk")
 

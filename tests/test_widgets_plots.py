@@ -14,7 +14,6 @@ import torch
 from scipy import ndimage, optimize, special
 from sklearn.metrics import confusion_matrix as sk_confusion_matrix
 
-import logitscope
 from logitscope import InputTypeError, LogitFrame, ParameterError
 from logitscope.errors import ClassNameError
 from logitscope.widgets import (
@@ -27,12 +26,6 @@ from logitscope.widgets import (
 from logitscope.widgets.scatter import CLASS_COLORS, FADED, PointRaster
 
 XSS = "<img src=x onerror=alert(1)>"
-
-
-@pytest.fixture(scope="module")
-def mailroom() -> LogitFrame:
-    # sklearn's bundled digits data with out-of-fold logistic-regression logits
-    return logitscope.load_demo("mailroom")
 
 
 @pytest.fixture(scope="module")

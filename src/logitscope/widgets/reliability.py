@@ -193,28 +193,9 @@ class ReliabilityDiagram(widgets.VBox):
             title=title,
             title_style={"font-size": "13px"},
         )
-        self.count_bars = bq.Lines(
-            x=empty,
-            y=empty,
-            scales={"x": self._sx, "y": self._sc},
-            fill="inside",
-            close_path=True,
-            colors=["#8fa7c4"],
-            fill_colors=["#8fa7c4"],
-            fill_opacities=[1.0],
-            stroke_width=0.5,
-        )
-        self.selected_bars = bq.Lines(
-            x=empty,
-            y=empty,
-            scales={"x": self._sx, "y": self._sc},
-            fill="inside",
-            close_path=True,
-            colors=[_SELECTED_FILL],
-            fill_colors=[_SELECTED_FILL],
-            fill_opacities=[1.0],
-            stroke_width=0.5,
-            visible=False,
+        self.count_bars = _filled_shapes({"x": self._sx, "y": self._sc}, "#8fa7c4", opacity=1.0, stroke=0.5)
+        self.selected_bars = _filled_shapes(
+            {"x": self._sx, "y": self._sc}, _SELECTED_FILL, opacity=1.0, stroke=0.5, visible=False
         )
         self._count_labels = bq.Label(
             x=[0.5],
@@ -428,10 +409,14 @@ class ReliabilityDiagram(widgets.VBox):
         self._redraw()
 
 
-def _filled_shapes(scales: dict[str, Any], color: str, opacity: float, stroke: float, label: str) -> bq.Lines:
+def _filled_shapes(
+    scales: dict[str, Any], color: str, opacity: float, stroke: float, label: str | None = None, **extra: Any
+) -> bq.Lines:
     """Closed, filled bqplot shapes (one per bin), empty until the first draw."""
     empty = np.zeros((1, 5))
+    if label is not None:
+        extra["labels"] = [label]
     return bq.Lines(
         x=empty, y=empty, scales=scales, fill="inside", close_path=True, colors=[color],
-        fill_colors=[color], fill_opacities=[opacity], stroke_width=stroke, labels=[label],
+        fill_colors=[color], fill_opacities=[opacity], stroke_width=stroke, **extra,
     )  # fmt: skip
