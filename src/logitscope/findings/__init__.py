@@ -22,8 +22,10 @@ numbers.
 from .calibration import (
     CalibrationSummary,
     PredictionSummary,
+    SelectionCount,
     bin_range_label,
     calibration_summary,
+    count_selection,
     prediction_summary,
 )
 from .choices import INTERVAL_NAMES, STRATEGY_NAMES, Binning, Choices, ThresholdRule
@@ -45,6 +47,7 @@ __all__ = [
     "Findings",
     "HeldOutCheck",
     "PredictionSummary",
+    "SelectionCount",
     "SuspectLabels",
     "SweepFinding",
     "TemperatureContext",
@@ -54,6 +57,7 @@ __all__ = [
     "calibration_summary",
     "collect",
     "confusion_summary",
+    "count_selection",
     "fitted_temperature",
     "held_out_check",
     "prediction_summary",

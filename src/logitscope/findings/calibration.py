@@ -22,7 +22,14 @@ from .choices import Binning
 if TYPE_CHECKING:
     from ..frame import LogitFrame
 
-__all__ = ["CalibrationSummary", "PredictionSummary", "calibration_summary", "prediction_summary"]
+__all__ = [
+    "CalibrationSummary",
+    "PredictionSummary",
+    "SelectionCount",
+    "calibration_summary",
+    "count_selection",
+    "prediction_summary",
+]
 
 
 def _rows(frame: LogitFrame, rows: Any) -> np.ndarray | None:
@@ -210,3 +217,31 @@ def calibration_summary(
         bins=bins,
         rows=r,
     )
+
+
+@dataclass(frozen=True)
+class SelectionCount:
+    """How many rows a selection holds and how many of them are misclassified (None without labels)."""
+
+    n: int
+    n_wrong: int | None
+
+    @property
+    def wrong_share(self) -> float | None:
+        return None if self.n_wrong is None or self.n == 0 else self.n_wrong / self.n
+
+
+def count_selection(frame: LogitFrame, rows: Any, temperature: float | None = None) -> SelectionCount:
+    """Count the rows of a selection and the misclassified ones among them (O(selected rows)).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from logitscope import LogitFrame
+    >>> count_selection(LogitFrame(np.array([[2.0, 0.0], [0.0, 1.0]]), labels=[0, 0]), [0, 1])
+    SelectionCount(n=2, n_wrong=1)
+    """
+    r = as_rows(rows, frame.n_samples)
+    s = frame.sample_scores(frame.temperature if temperature is None else an.check_temperature(temperature))
+    wrong = None if s.correct is None else int(r.size - np.count_nonzero(s.correct[r]))
+    return SelectionCount(int(r.size), wrong)

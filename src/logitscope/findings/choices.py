@@ -9,7 +9,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field, replace
-from typing import Literal
+from typing import ClassVar, Literal
 
 import numpy as np
 
@@ -59,9 +59,11 @@ class Binning:
 
     n_bins: int = 15
     strategy: Strategy = "uniform"
+    #: The accepted number of bins, in every layer (controls take their bounds from it).
+    N_BINS_RANGE: ClassVar[tuple[int, int]] = (1, 100)
 
     def __post_init__(self) -> None:
-        object.__setattr__(self, "n_bins", _int_in("n_bins", self.n_bins, 1, 100))
+        object.__setattr__(self, "n_bins", _int_in("n_bins", self.n_bins, *self.N_BINS_RANGE))
         if self.strategy not in STRATEGY_NAMES:
             raise ParameterError(f"strategy must be 'uniform' or 'quantile', got {self.strategy!r}")
 

@@ -235,5 +235,3 @@ def collect(
         suspects=suspect_labels(frame, "confident_learning", t, top=n_suspects),
         split=split,
     )
-
-

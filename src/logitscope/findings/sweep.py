@@ -67,7 +67,7 @@ class SweepFinding:
     ece: np.ndarray = field(repr=False)
     brier: np.ndarray = field(repr=False)
     mean_confidence: np.ndarray = field(repr=False)
-    fitted: an.TemperatureFit
+    fitted: an.TemperatureFit | None
     binning: Binning
     n: int
     rows: np.ndarray | None = field(default=None, repr=False)
@@ -95,6 +95,7 @@ def sweep_finding(
     grid: Sequence[float] | np.ndarray | None = None,
     marks: Sequence[float] = (),
     fitted: an.TemperatureFit | None = None,
+    fit: bool = True,
 ) -> SweepFinding:
     """Sweep the temperature over ``grid`` (default :func:`sweep_grid` of the marks and the fitted T).
 
@@ -112,6 +113,8 @@ def sweep_finding(
         Temperatures that must lie on the grid (the current one, the frame's own).
     fitted : TemperatureFit, optional
         A fit already made on these rows.
+    fit : bool, default True
+        Fit the temperature on these rows when ``fitted`` is not given (False: ``fitted`` stays None).
 
     Examples
     --------
@@ -126,8 +129,9 @@ def sweep_finding(
         raise LabelError("a temperature sweep needs labels; this frame has none (use with_labels)")
     b = Binning() if binning is None else binning
     r = _rows(frame, rows)
-    fit = fitted_temperature(frame, r) if fitted is None else fitted
-    g = sweep_grid([*marks, fit.temperature]) if grid is None else np.sort(np.asarray(grid, dtype=np.float64))
+    fit_ = fitted_temperature(frame, r) if fitted is None and fit else fitted
+    extra = [] if fit_ is None else [fit_.temperature]
+    g = sweep_grid([*marks, *extra]) if grid is None else np.sort(np.asarray(grid, dtype=np.float64))
     part = frame if r is None else frame.subset(r)
     assert part.labels is not None
     with an.assume_valid():
@@ -138,7 +142,7 @@ def sweep_finding(
         ece=sw.ece,
         brier=sw.brier,
         mean_confidence=sw.mean_confidence,
-        fitted=fit,
+        fitted=fit_,
         binning=b,
         n=part.n_samples,
         rows=r,

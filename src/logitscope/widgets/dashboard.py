@@ -16,14 +16,16 @@ from typing import TYPE_CHECKING, Any
 import ipywidgets as widgets
 import numpy as np
 
+from ..findings import calibration_summary, count_selection
 from ..frame import LogitFrame
+from .base import LinkedView
 from .card import SampleCard
 from .confusion import ConfusionHeatmap
 from .dial import TemperatureDial
 from .gallery import SampleGallery
 from .histogram import ConfidenceHistogram
 from .relabel import LabelIssuePicker, RelabelQueue
-from .scatter import ScoreScatter, view_state
+from .scatter import ScoreScatter
 from .state import SharedState
 
 if TYPE_CHECKING:
@@ -45,7 +47,7 @@ def _row(*panels: widgets.Widget) -> widgets.HBox:
     return widgets.HBox(list(panels), layout=widgets.Layout(width="100%", flex_flow="row wrap", align_items="stretch"))
 
 
-class Dashboard(widgets.VBox):
+class Dashboard(LinkedView, widgets.VBox):
     """All linked views on one frame: brush, click or set ``selected`` and every view follows.
 
     Parameters
@@ -66,11 +68,13 @@ class Dashboard(widgets.VBox):
     >>> frame = logitscope.load_demo("mailroom")
     >>> dash = Dashboard(frame, relabel_path=pathlib.Path(tempfile.mkdtemp()) / "marks.json")
     >>> dash.selected = [4, 8, 15]
-    >>> dash.state.origin, sorted(dash.gallery.page_rows.tolist())
-    ('python', [4, 8, 15])
+    >>> dash.state.origin_name, sorted(dash.gallery.page_rows.tolist())
+    ('Python', [4, 8, 15])
     >>> int(dash.confusion.select_cell("four", "nine").size) == int(dash.confusion.counts[4, 9])
     True
     """
+
+    kind = "dashboard"
 
     def __init__(
         self,
@@ -81,9 +85,7 @@ class Dashboard(widgets.VBox):
         max_classes: int = 30,
         **kwargs: Any,
     ) -> None:
-        self.frame = frame
-        self.state = view_state(frame, state)
-        st = self.state
+        st = self.link(frame, state)
         # Views are told of a new selection in the order they are made here. The histogram comes
         # first: bqplot moves bars on the next animation frame, so its update should leave early
         # (measured with bench/bench_dashboard.py: about 15 ms off the median brush).
@@ -101,7 +103,7 @@ class Dashboard(widgets.VBox):
         self._selection = widgets.Label()
         self._selection.add_class("logitscope-selection")
         self._clear = widgets.Button(description="clear selection", icon="times", layout={"width": "auto"})
-        self._clear.on_click(lambda b: self.state.clear(origin="dashboard"))
+        self._clear.on_click(lambda b: self.state.clear(origin=self.origin))
         title = widgets.HTML("<b>logitscope</b>")
         header = widgets.HBox(
             [title, self._summary, self.dial],
@@ -125,11 +127,10 @@ class Dashboard(widgets.VBox):
         self._calibrate_box = widgets.VBox([widgets.Label("building the calibration views…")])
         self.tabs = widgets.Tab(children=[self.explore, self._calibrate_box], titles=list(TAB_TITLES))
         self.tabs.observe(self._on_tab, "selected_index")
-        super().__init__(children=[header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"), **kwargs)
+        widgets.VBox.__init__(
+            self, children=[header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"), **kwargs
+        )
         self.add_class("logitscope-dashboard")
-        st.observe(self._on_rows, "rows")
-        st.observe(self._on_temperature, "temperature")
-        self._on_rows()
         self._on_temperature()
 
     # ------------------------------------------------------------------ public
@@ -150,6 +151,7 @@ class Dashboard(widgets.VBox):
             from .calibration_panel import CalibrationPanel
 
             self._calibration = CalibrationPanel(self.frame, self.state)
+            self._calibration.relabel_store = self.queue.store
             self._calibration.sweep.live = self.tabs.selected_index == 1
             self._calibrate_box.children = [self._calibration]
         return self._calibration
@@ -170,14 +172,10 @@ class Dashboard(widgets.VBox):
             self._selection.value = f"nothing selected: views show all {n:,} samples"
             self._clear.disabled = True
             return
-        text = f"{rows.size:,} of {n:,} samples selected"
-        if self.state.origin:
-            text += f" by {self.state.origin}"
-        if self.frame.has_labels:
-            correct = self.frame.sample_scores(self.state.temperature).correct
-            assert correct is not None  # the frame has labels
-            wrong = int((~correct[rows]).sum())
-            text += f"; {wrong:,} of them misclassified ({wrong / rows.size:.0%})"
+        text = f"{rows.size:,} of {n:,} samples selected{self.selected_by()}"
+        count = count_selection(self.frame, rows, self.state.temperature)
+        if count.n_wrong is not None and count.wrong_share is not None:
+            text += f"; {count.n_wrong:,} of them misclassified ({count.wrong_share:.0%})"
         self._selection.value = text
         self._clear.disabled = False
 
@@ -185,9 +183,14 @@ class Dashboard(widgets.VBox):
         f = self.frame
         text = f"{f.n_samples:,} samples × {f.n_classes:,} classes"
         if f.has_labels:
-            correct = f.sample_scores(self.state.temperature).correct
-            assert correct is not None  # the frame has labels
-            acc = float(correct.mean())
-            text += f", accuracy {acc:.1%}"
+            text += f", accuracy {calibration_summary(f, self.state.temperature).accuracy:.1%}"
         self._summary.value = text
         self._on_rows()
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        self._on_rows()
+
+    def on_temperature(self, temperature: float) -> None:
+        self._on_temperature()

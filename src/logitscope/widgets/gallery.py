@@ -9,9 +9,10 @@ import numpy as np
 import traitlets
 
 from .. import analysis as an
-from ..errors import InputTypeError, ParameterError
+from ..errors import ParameterError
 from ..frame import LogitFrame
 from ._assets import esm
+from .base import LinkedView
 from .state import SharedState
 from .thumbnails import ThumbnailCache, snippet
 
@@ -46,27 +47,7 @@ def top_classes(probs: np.ndarray, k: int) -> np.ndarray:
     return order[:, : min(k, probs.shape[1])]
 
 
-def check_frame(frame: Any, state: SharedState | None) -> SharedState:
-    """Check a view's arguments; return the state to use (a new one when ``state`` is None).
-
-    Examples
-    --------
-    >>> import logitscope
-    >>> check_frame(logitscope.load_demo("helpdesk"), None).n_samples
-    1200
-    """
-    if not isinstance(frame, LogitFrame):
-        raise InputTypeError(f"frame must be a LogitFrame, got {type(frame).__name__}")
-    if state is None:
-        return SharedState(frame.n_samples, temperature=frame.temperature)
-    if not isinstance(state, SharedState):
-        raise InputTypeError(f"state must be a SharedState, got {type(state).__name__}")
-    if state.n_samples != frame.n_samples:
-        raise ParameterError(f"the state is for {state.n_samples} samples but the frame has {frame.n_samples}")
-    return state
-
-
-class SampleGallery(anywidget.AnyWidget):
+class SampleGallery(LinkedView, anywidget.AnyWidget):
     """Tiles of the selected samples (all samples when nothing is selected), one page at a time.
 
     Each tile shows the sample's image thumbnail or the start of its text, its
@@ -98,10 +79,11 @@ class SampleGallery(anywidget.AnyWidget):
     (150, 12)
     >>> gallery.state.select([3, 9, 40], origin="python")
     >>> sorted(gallery.page_rows.tolist()), gallery.scope
-    ([3, 9, 40], '3 selected (python)')
+    ([3, 9, 40], '3 selected (Python)')
     """
 
     _esm = esm("gallery.js")
+    kind = "gallery"
 
     tiles = traitlets.List(traitlets.Dict(), help="the visible page, one dict per tile").tag(sync=True)
     page = traitlets.Int(0, help="visible page, from 0").tag(sync=True)
@@ -123,11 +105,9 @@ class SampleGallery(anywidget.AnyWidget):
         thumbnail_size: int = 64,
         **kwargs: Any,
     ) -> None:
-        st = check_frame(frame, state)
+        st = self.link(frame, state)
         if isinstance(page_size, bool) or not isinstance(page_size, int | np.integer) or page_size < 1:
             raise ParameterError(f"page_size must be a positive integer, got {page_size!r}")
-        self.frame = frame
-        self.state = st
         self.page_size = int(page_size)
         self.thumbnails = ThumbnailCache(frame.payload, size=thumbnail_size)
         cols = [c for c in an.SCORE_COLUMNS if c != "predicted" and (frame.has_labels or c in _UNLABELLED)]
@@ -179,7 +159,7 @@ class SampleGallery(anywidget.AnyWidget):
         tiles = self._tiles(rows)
         k = int(self.state.rows.size)
         if k:
-            origin = self.state.origin
+            origin = self.selection_source
             scope = f"{k:,} selected" + (f" ({origin})" if origin else "")
         else:
             scope = f"all {n:,} samples"

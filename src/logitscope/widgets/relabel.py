@@ -17,7 +17,7 @@ from ..errors import ClassNameError, LabelError, LogitscopeError, ParameterError
 from ..frame import LogitFrame
 from ..relabel_store import RelabelStore, RelabelStoreWarning, default_path
 from ._assets import esm
-from .gallery import check_frame
+from .base import LinkedView
 from .state import SharedState
 
 __all__ = ["LabelIssuePicker", "RelabelQueue"]
@@ -29,7 +29,7 @@ METHODS = ("confident_learning", "self_confidence", "normalized_margin")
 UI_MARK_LIMIT = 5000
 
 
-class RelabelQueue(anywidget.AnyWidget):
+class RelabelQueue(LinkedView, anywidget.AnyWidget):
     """Mark samples for relabeling with a suggested label and a note; the list lives in a JSON file.
 
     Marks are made on the current selection or on the focused sample. Every
@@ -65,6 +65,7 @@ class RelabelQueue(anywidget.AnyWidget):
     """
 
     _esm = esm("relabel.js")
+    kind = "relabel list"
 
     _kind = traitlets.Unicode("queue").tag(sync=True)
     path = traitlets.Unicode("", help="the JSON file the marks are saved to").tag(sync=True)
@@ -84,9 +85,7 @@ class RelabelQueue(anywidget.AnyWidget):
         path: str | os.PathLike[str] | None = None,
         **kwargs: Any,
     ) -> None:
-        st = check_frame(frame, state)
-        self.frame = frame
-        self.state = st
+        st = self.link(frame, state)
         target = default_path(frame) if path is None else Path(path)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", RelabelStoreWarning)
@@ -269,7 +268,7 @@ class RelabelQueue(anywidget.AnyWidget):
             self.status = f"not done: {exc}"
 
 
-class LabelIssuePicker(anywidget.AnyWidget):
+class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
     """Select the samples whose given label is most likely wrong.
 
     Ranks the frame with :func:`logitscope.analysis.rank_label_issues` (method
@@ -293,11 +292,12 @@ class LabelIssuePicker(anywidget.AnyWidget):
     >>> frame = logitscope.load_demo("mailroom")
     >>> picker = LabelIssuePicker(frame, n=10)
     >>> picker.pick()
-    >>> picker.state.rows.size, picker.state.origin
+    >>> picker.state.rows.size, picker.state.origin_name
     (10, 'label issue picker')
     """
 
     _esm = esm("relabel.js")
+    kind = "label issue picker"
 
     _kind = traitlets.Unicode("picker").tag(sync=True)
     methods = traitlets.List(traitlets.Unicode(), list(METHODS)).tag(sync=True)
@@ -315,9 +315,7 @@ class LabelIssuePicker(anywidget.AnyWidget):
         queue: RelabelQueue | None = None,
         **kwargs: Any,
     ) -> None:
-        st = check_frame(frame, state)
-        self.frame = frame
-        self.state = st
+        self.link(frame, state)
         self.queue = queue
         self.ranking: an.LabelIssueRanking | None = None
         self._cache: dict[tuple[str, float], an.LabelIssueRanking] = {}
@@ -361,7 +359,7 @@ class LabelIssuePicker(anywidget.AnyWidget):
         self.ranking = top
         if self.queue is not None:
             self.queue.set_suggestions(top.index, top.suggested)
-        self.state.select(top.index, origin=PICKER_NAME)
+        self.select(top.index)
         flagged = (
             f" of {len(ranking):,} flagged" if self.method == "confident_learning" else f" of {len(ranking):,} ranked"
         )

@@ -14,6 +14,7 @@ from typing import Any
 import numpy as np
 import traitlets
 
+from ..findings import Binning
 from ..rows import as_rows, rows_or_all
 
 __all__ = ["SharedState", "as_rows", "rows_or_all"]
@@ -40,14 +41,58 @@ class SharedState(traitlets.HasTraits):
     """
 
     rows = traitlets.Instance(np.ndarray, help="selected row positions, sorted and unique")
-    origin = traitlets.Unicode("", help="name of the view that made the current selection")
+    origin = traitlets.Unicode("", help="token of the view that made the current selection (see register)")
     temperature = traitlets.Float(1.0, help="softmax temperature every view follows")
     threshold = traitlets.Float(None, allow_none=True, help="confidence threshold chosen for review, if any")
     focus = traitlets.Int(None, allow_none=True, help="the one row shown large in the sample card, if any")
+    binning = traitlets.Instance(Binning, help="the one binning every calibration number of the views uses")
 
     def __init__(self, n_samples: int, temperature: float = 1.0, **kwargs: Any) -> None:
         self.n_samples = int(n_samples)
+        self._names: dict[str, str] = {"": "", "python": "Python"}
+        self._counts: dict[str, int] = {}
+        kwargs.setdefault("binning", Binning())
         super().__init__(rows=np.zeros(0, dtype=np.int64), temperature=float(temperature), **kwargs)
+
+    def register(self, name: str) -> str:
+        """A new origin token for a view called ``name``; two views of one name get two tokens.
+
+        Examples
+        --------
+        >>> state = SharedState(3)
+        >>> state.register("reliability diagram"), state.register("reliability diagram")
+        ('reliability diagram#1', 'reliability diagram#2')
+        >>> state.name_of("reliability diagram#2")
+        'reliability diagram'
+        """
+        k = self._counts.get(name, 0) + 1
+        self._counts[name] = k
+        token = f"{name}#{k}"
+        self._names[token] = name
+        return token
+
+    def name_of(self, token: str) -> str:
+        """The readable name behind an origin token (the token itself when unknown)."""
+        return self._names.get(token, token)
+
+    @property
+    def origin_name(self) -> str:
+        """Readable name of whoever made the current selection ("" when nobody did)."""
+        return self.name_of(self.origin)
+
+    def resize(self, n_samples: int, rows: Any = None, focus: int | None = None) -> None:
+        """Follow a new frame of ``n_samples`` rows: the selection becomes ``rows``, the focus ``focus``.
+
+        Used when a dashboard shows another frame; the caller maps the old
+        selection to the new rows (by sample id).
+        """
+        new = as_rows(rows, int(n_samples))
+        with self.hold_trait_notifications():
+            self.focus = None
+            self.n_samples = int(n_samples)
+            self.rows = new
+            if focus is not None:
+                self.focus = int(focus)
 
     @traitlets.validate("rows")
     def _valid_rows(self, proposal: Any) -> np.ndarray:
@@ -68,7 +113,7 @@ class SharedState(traitlets.HasTraits):
         return t
 
     def select(self, rows: Any, origin: str = "") -> None:
-        """Replace the selection; ``origin`` names the view making it.
+        """Replace the selection; ``origin`` is the token of the view making it.
 
         Observers of ``rows`` fire only when the rows change; ``origin`` is set first.
         """
