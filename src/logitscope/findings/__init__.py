@@ -32,11 +32,13 @@ from .choices import INTERVAL_NAMES, STRATEGY_NAMES, Binning, Choices, Threshold
 from .collect import Findings, TemperatureContext, collect, resolve_choices, rule_from_options
 from .confusion import ConfusionSummary, confusion_summary
 from .held_out import HeldOutCheck, held_out_check
+from .history import EPOCH_COLUMNS, EpochRecord, epoch_record
 from .suspects import SuspectLabels, suspect_labels
 from .sweep import SweepFinding, fitted_temperature, sweep_finding, sweep_grid
 from .threshold import MAX_CURVE_POINTS, ThresholdDecision, thin_indices, threshold_decision
 
 __all__ = [
+    "EPOCH_COLUMNS",
     "INTERVAL_NAMES",
     "MAX_CURVE_POINTS",
     "STRATEGY_NAMES",
@@ -44,6 +46,7 @@ __all__ = [
     "CalibrationSummary",
     "Choices",
     "ConfusionSummary",
+    "EpochRecord",
     "Findings",
     "HeldOutCheck",
     "PredictionSummary",
@@ -58,6 +61,7 @@ __all__ = [
     "collect",
     "confusion_summary",
     "count_selection",
+    "epoch_record",
     "fitted_temperature",
     "held_out_check",
     "prediction_summary",

@@ -233,6 +233,8 @@ class CalibrationPanel(LinkedView, widgets.VBox):
         self._values.value = (values[0],) if values else ()
 
     def _on_split_controls(self, change: Any = None) -> None:
+        if self.is_quiet:
+            return
         self._show_split_controls()
         try:
             if self.split_mode == "no split":
@@ -365,3 +367,19 @@ class CalibrationPanel(LinkedView, widgets.VBox):
             f"at T = {self.state.temperature:.4g}.</span>"
         )
         return self.last_report
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_frame(self) -> None:
+        labelled = self.frame.has_labels
+        self._split_mode.disabled = not labelled
+        with self.quietly():
+            self.split_mode = "no split"
+        self._show_split_controls()
+        columns = [c for c in self.frame.meta.columns if 1 < self.frame.meta[c].nunique(dropna=False) <= _MAX_VALUES]
+        self._columns = {str(c): c for c in columns}
+        self._column.options = [str(c) for c in columns]
+        self._on_column()
+        self.split = None
+        self.split_note.value = ""
+        self._on_change()

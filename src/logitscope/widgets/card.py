@@ -89,10 +89,10 @@ class SampleCard(LinkedView, anywidget.AnyWidget):
         if isinstance(top, bool) or not isinstance(top, int | np.integer) or top < 1:
             raise ParameterError(f"top must be a positive integer, got {top!r}")
         self.top = int(top)
+        self._image_size = int(image_size)
         self.images = ThumbnailCache(frame.payload, size=image_size, max_items=64)
         self._meta = frame.meta  # the frame is immutable: one copy serves every focus change
         super().__init__(temperature=st.temperature, **kwargs)
-        st.observe(self._update, ["focus", "temperature"])
         self._update()
 
     def _update(self, change: dict[str, Any] | None = None) -> None:
@@ -149,3 +149,16 @@ class SampleCard(LinkedView, anywidget.AnyWidget):
             if img is not None:
                 out.update(png=img.png, width=img.width, height=img.height, error=img.error)
         return out
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_focus(self, row: int | None) -> None:
+        self._update()
+
+    def on_temperature(self, temperature: float) -> None:
+        self._update()
+
+    def on_frame(self) -> None:
+        self.images = ThumbnailCache(self.frame.payload, size=self._image_size, max_items=64)
+        self._meta = self.frame.meta
+        self._update()

@@ -111,38 +111,10 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             self._ready = False
             return
         self._ready = True
+        self._max_classes = int(max_classes)
         kk = frame.n_classes
-        self._labels = np.asarray(frame.labels)
-        self._predicted = np.asarray(frame.sample_scores(self.state.temperature).predicted)
-        self.summary: ConfusionSummary = confusion_summary(frame, self.state.temperature, 1, self.n_pairs)
-        self.counts = self.summary.matrix
-        self._summaries: dict[int, ConfusionSummary] = {1: self.summary}
-        self._class_sizes = self.counts.sum(axis=1)
-
-        # classes drawn individually and the aggregate
-        if kk <= max_classes:
-            self.shown_classes = np.arange(kk)
-        else:
-            off = self.counts.copy()
-            np.fill_diagonal(off, 0)
-            errors = off.sum(axis=0) + off.sum(axis=1)
-            top = np.lexsort((np.arange(kk), -errors))[: int(max_classes)]
-            self.shown_classes = np.sort(top)
-        self.has_other = self.shown_classes.size < kk
-        n_pos = self.shown_classes.size + int(self.has_other)
-        self.position = np.full(kk, n_pos - 1, dtype=np.int64)  # "other" unless shown
-        self.position[self.shown_classes] = np.arange(self.shown_classes.size)
-        self.n_positions = n_pos
-        self.aggregated = np.zeros((n_pos, n_pos), dtype=np.int64)
-        np.add.at(self.aggregated, (self.position[:, None], self.position[None, :]), self.counts)
-        names = frame.classes
-        self.position_names = [names[i] for i in self.shown_classes]
-        if self.has_other:
-            self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
-        self._true_pos = self.position[self._labels]
-        self._pred_pos = self.position[self._predicted]
-        self._cell = self._true_pos * n_pos + self._pred_pos
-
+        self._compute_structure()
+        n_pos = self.n_positions
         ticks = {str(i): short_label(n) for i, n in enumerate(self.position_names)}
         self._s_row = bq.OrdinalScale(reverse=True)
         self._s_col = bq.OrdinalScale()
@@ -233,6 +205,44 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self._recolor()
         self._on_k()
         self._on_rows()
+
+    # ------------------------------------------------------------------ structure
+
+    def _compute_structure(self) -> None:
+        """Counts, the classes drawn on their own, and each row's cell, for the current frame."""
+        frame = self.frame
+        max_classes = self._max_classes
+        kk = frame.n_classes
+        self._labels = np.asarray(frame.labels)
+        self._predicted = np.asarray(frame.sample_scores(self.state.temperature).predicted)
+        self.summary: ConfusionSummary = confusion_summary(frame, self.state.temperature, 1, self.n_pairs)
+        self.counts = self.summary.matrix
+        self._summaries: dict[int, ConfusionSummary] = {1: self.summary}
+        self._class_sizes = self.counts.sum(axis=1)
+
+        # classes drawn individually and the aggregate
+        if kk <= max_classes:
+            self.shown_classes = np.arange(kk)
+        else:
+            off = self.counts.copy()
+            np.fill_diagonal(off, 0)
+            errors = off.sum(axis=0) + off.sum(axis=1)
+            top = np.lexsort((np.arange(kk), -errors))[: int(max_classes)]
+            self.shown_classes = np.sort(top)
+        self.has_other = self.shown_classes.size < kk
+        n_pos = self.shown_classes.size + int(self.has_other)
+        self.position = np.full(kk, n_pos - 1, dtype=np.int64)  # "other" unless shown
+        self.position[self.shown_classes] = np.arange(self.shown_classes.size)
+        self.n_positions = n_pos
+        self.aggregated = np.zeros((n_pos, n_pos), dtype=np.int64)
+        np.add.at(self.aggregated, (self.position[:, None], self.position[None, :]), self.counts)
+        names = frame.classes
+        self.position_names = [names[i] for i in self.shown_classes]
+        if self.has_other:
+            self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
+        self._true_pos = self.position[self._labels]
+        self._pred_pos = self.position[self._predicted]
+        self._cell = self._true_pos * n_pos + self._pred_pos
 
     # ------------------------------------------------------------------ numbers
 
@@ -414,3 +424,16 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         if self._ready:
             self._on_rows()
+
+    def on_frame(self) -> None:
+        if not self._ready or not self.frame.has_labels:
+            return
+        self._compute_structure()
+        ticks = {str(i): short_label(n) for i, n in enumerate(self.position_names)}
+        self._ax_col.tick_labels = ticks
+        self._ax_row.tick_labels = ticks
+        self.clicked = None
+        self._row_button.disabled = self._col_button.disabled = True
+        self._recolor()
+        self._on_k()
+        self._on_rows()

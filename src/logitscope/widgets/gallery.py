@@ -109,6 +109,7 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
         if isinstance(page_size, bool) or not isinstance(page_size, int | np.integer) or page_size < 1:
             raise ParameterError(f"page_size must be a positive integer, got {page_size!r}")
         self.page_size = int(page_size)
+        self._thumbnail_size = int(thumbnail_size)
         self.thumbnails = ThumbnailCache(frame.payload, size=thumbnail_size)
         cols = [c for c in an.SCORE_COLUMNS if c != "predicted" and (frame.has_labels or c in _UNLABELLED)]
         cols.append("row")
@@ -119,9 +120,6 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
         self._page_rows = np.zeros(0, dtype=np.int64)
         self._busy = False
         super().__init__(sort_columns=cols, sort_by=sort_by, descending=bool(descending), focus=st.focus, **kwargs)
-        st.observe(self._back_to_first_page, "rows")
-        st.observe(self._on_temperature, "temperature")
-        st.observe(self._on_state_focus, "focus")
         self.observe(self._on_page, "page")
         self.observe(self._back_to_first_page, ["sort_by", "descending"])
         self.observe(self._on_focus, "focus")
@@ -246,9 +244,6 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
             self._busy = False
         self.refresh()
 
-    def _on_temperature(self, change: dict[str, Any]) -> None:
-        self.refresh()
-
     def _on_page(self, change: dict[str, Any]) -> None:
         if not self._busy:
             self.refresh()
@@ -260,15 +255,33 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
             self._check_sort(value, list(self.sort_columns))
         return value
 
-    def _on_state_focus(self, change: dict[str, Any]) -> None:
-        self.focus = change["new"]
-
     def _on_focus(self, change: dict[str, Any]) -> None:
+        if self.is_quiet:
+            return
         new = change["new"]
         if new is not None and not 0 <= int(new) < self.frame.n_samples:
             self.focus = change["old"]
             return
         self.state.focus = new
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        self._back_to_first_page({})
+
+    def on_temperature(self, temperature: float) -> None:
+        self.refresh()
+
+    def on_focus(self, row: int | None) -> None:
+        self.focus = row
+
+    def on_frame(self) -> None:
+        self.thumbnails = ThumbnailCache(self.frame.payload, size=self._thumbnail_size)
+        self._order_key = None
+        self._order_rows = None
+        with self.quietly():
+            self.focus = self.state.focus
+        self._back_to_first_page({})
 
 
 _UNLABELLED = {"confidence", "entropy", "margin", "logit_margin", "energy"}

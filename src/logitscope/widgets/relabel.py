@@ -85,7 +85,7 @@ class RelabelQueue(LinkedView, anywidget.AnyWidget):
         path: str | os.PathLike[str] | None = None,
         **kwargs: Any,
     ) -> None:
-        st = self.link(frame, state)
+        self.link(frame, state)
         target = default_path(frame) if path is None else Path(path)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", RelabelStoreWarning)
@@ -102,7 +102,6 @@ class RelabelQueue(LinkedView, anywidget.AnyWidget):
             self.status = f"reopened {loaded:,} mark{'s' if loaded != 1 else ''} from the file"
         else:
             self.status = "no marks yet; the list is saved to the file on every change"
-        st.observe(self._on_state, ["rows", "focus", "temperature"])
         self.on_msg(self._on_msg)
         self._on_state()
         self._show()
@@ -267,6 +266,21 @@ class RelabelQueue(LinkedView, anywidget.AnyWidget):
         except (LogitscopeError, OSError) as exc:
             self.status = f"not done: {exc}"
 
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        self._on_state()
+
+    def on_focus(self, row: int | None) -> None:
+        self._on_state()
+
+    def on_frame(self) -> None:
+        self.store.use_frame(self.frame)
+        self._suggestions = {}
+        self.classes = list(self.frame.classes)
+        self._on_state()
+        self._show()
+
 
 class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
     """Select the samples whose given label is most likely wrong.
@@ -372,3 +386,8 @@ class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
                 self.pick()
             except LogitscopeError as exc:
                 self.status = f"not done: {exc}"
+
+    def on_frame(self) -> None:
+        self.ranking = None
+        self._cache = {}
+        self.enabled = self.frame.has_labels

@@ -642,6 +642,5 @@ class ScoreScatter(LinkedView, widgets.VBox):
 
     def on_frame(self) -> None:
         self._columns, self._columns_t = {}, None
-        self._on_axes(None)
         self._recolor()
-        self._draw()
+        self._on_axes(None)

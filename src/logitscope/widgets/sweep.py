@@ -186,6 +186,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
         self.state.observe(lambda c: self._compute(), "binning")
         self.observe(self._on_live, "live")
         self._selection_stale = False
+        self._curves_stale = False
         self._compute()
 
     # ------------------------------------------------------------------ rows and numbers
@@ -344,7 +345,10 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
     # ------------------------------------------------------------------ selection in
 
     def _on_live(self, change: Any) -> None:
-        if change["new"] and self._selection_stale:
+        if change["new"] and self._curves_stale:
+            self._curves_stale = False
+            self._compute()
+        elif change["new"] and self._selection_stale:
             self.on_selection(self.state.rows, self.owns_selection)
 
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
@@ -376,4 +380,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
     def on_frame(self) -> None:
         self.rows = self._rows(None)
         self.compare_rows = None
-        self._compute()
+        if self.live:
+            self._compute()
+        else:  # out of sight: one pass per grid temperature is spent when the view is in sight again
+            self._curves_stale = True
