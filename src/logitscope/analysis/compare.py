@@ -185,11 +185,11 @@ FLIP_CELLS: tuple[str, ...] = ("right_both", "fixed", "broken", "wrong_same", "w
 
 #: A plain description of each cell (A = the first checkpoint, B = the second).
 FLIP_DESCRIPTIONS: dict[str, str] = {
-    "right_both": "right under A and B",
-    "fixed": "wrong under A, right under B",
-    "broken": "right under A, wrong under B",
-    "wrong_same": "wrong under both, the same class predicted",
-    "wrong_different": "wrong under both, different classes predicted",
+    "right_both": "right in both",
+    "fixed": "fixed (wrong under A, right under B)",
+    "broken": "broken (right under A, wrong under B)",
+    "wrong_same": "wrong in both, same class",
+    "wrong_different": "wrong in both, different classes",
 }
 
 
