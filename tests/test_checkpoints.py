@@ -79,7 +79,7 @@ def test_flip_table_matches_a_per_sample_loop(rng):
         assert t.rows(cell).tolist() == expected[cell]
         assert t.count(cell) == len(expected[cell])
     assert all(t.count(c) > 0 for c in FLIP_CELLS)  # every cell exercised
-    assert [FLIP_CELLS[c] for c in t.cells] == [_cell_loop(a, b, l) for a, b, l in zip(pa, pb, y, strict=True)]
+    assert [FLIP_CELLS[c] for c in t.cells] == [_cell_loop(a, b, t_) for a, b, t_ in zip(pa, pb, y, strict=True)]
     df = t.to_frame()
     assert df.index.tolist() == list(FLIP_CELLS) and df["count"].sum() == y.size
     assert df["share"].sum() == pytest.approx(1.0)
@@ -287,7 +287,7 @@ def test_missing_ids_are_named_or_dropped(wine_checkpoints, rng):
     assert c.comparison.n_samples == y.size - 5
     np.testing.assert_array_equal(c.ids, np.arange(5, y.size))
     assert c.flips.counts == compare_checkpoints(za[5:], zb[5:], y[5:]).flips.counts
-    with pytest.raises(ShapeError, match="share no sample id.*different kinds"):
+    with pytest.raises(ShapeError, match=r"share no sample id.*different kinds"):
         compare_frames(a, LogitFrame(zb, labels=y, classes=CELLARS, ids=[str(i) for i in range(y.size)]))
 
 
