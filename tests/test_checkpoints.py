@@ -350,3 +350,15 @@ def test_forgetting_across_epochs_of_a_small_torch_model():
     assert f.ranking.forgetting_events.sum() > 0  # the model did forget some samples along the way
     top = f.to_frame().head(5)
     assert top.index.tolist() == f.top_ids(5).tolist() and "label_class" in top.columns
+
+
+def test_three_frames_name_the_odd_one_out():
+    z = np.eye(3)
+    a = LogitFrame(z, labels=[0, 1, 2], ids=["P-1", "P-2", "P-3"])
+    b = LogitFrame(z[::-1].copy(), labels=[2, 1, 0], ids=["P-3", "P-2", "P-1"])
+    c = LogitFrame(np.eye(4)[:, :3], labels=[0, 1, 2, 0], ids=["P-1", "P-2", "P-3", "P-9"])
+    with pytest.raises(ShapeError, match=r"1 ids of C are not in A \(first 'P-9'\)"):
+        align_frames(a, b, c)
+    trio = align_frames(a, b, c, missing="drop", names=["epoch 1", "epoch 2", "epoch 3"])
+    assert trio.dropped[2].tolist() == ["P-9"] and [f.ids.tolist() for f in trio.frames] == [["P-1", "P-2", "P-3"]] * 3
+    np.testing.assert_array_equal(trio.frames[1].logits, z)  # b's rows put back in a's order

@@ -134,13 +134,14 @@ def align_frames(
     shared = np.logical_and.reduce([pos >= 0 for pos in lookup])
     if not shared.all() or any(f.n_samples != first.n_samples for f in frames):
         problems = []
-        for name, f in zip(labels, frames, strict=True):
-            for other_name, other in zip(labels, frames, strict=True):
-                if other is f:
-                    continue
-                absent = np.asarray(f.ids)[pd.Index(other.ids).get_indexer(f.ids) < 0]
-                if absent.size:
-                    problems.append(f"{absent.size} ids of {name} are not in {other_name} (first {_show(absent)})")
+        first_index = pd.Index(first.ids)
+        for name, f, pos in zip(labels[1:], frames[1:], lookup[1:], strict=True):
+            lacks = np.asarray(first.ids)[pos < 0]
+            extra = np.asarray(f.ids)[first_index.get_indexer(f.ids) < 0]
+            if lacks.size:
+                problems.append(f"{lacks.size} ids of {labels[0]} are not in {name} (first {_show(lacks)})")
+            if extra.size:
+                problems.append(f"{extra.size} ids of {name} are not in {labels[0]} (first {_show(extra)})")
         kinds = {_id_kind(np.asarray(f.ids)) for f in frames}
         hint = (
             f"; the ids are of different kinds ({' and '.join(sorted(kinds))}), so none can match"
