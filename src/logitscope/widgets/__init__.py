@@ -3,11 +3,14 @@
 from .calibration_panel import CalibrationPanel
 from .card import SampleCard
 from .class_mix import ClassMixView
+from .comparison import CheckpointComparisonView, ComparisonPanel
 from .confusion import ConfusionHeatmap
 from .dashboard import Dashboard
 from .dial import TemperatureDial
+from .forgetting import ForgettingList
 from .gallery import SampleGallery
 from .histogram import ConfidenceHistogram
+from .pick_table import PickTable
 from .relabel import LabelIssuePicker, RelabelQueue
 from .reliability import ReliabilityDiagram
 from .scatter import ScoreScatter
@@ -17,11 +20,15 @@ from .threshold import ThresholdPicker
 
 __all__ = [
     "CalibrationPanel",
+    "CheckpointComparisonView",
     "ClassMixView",
+    "ComparisonPanel",
     "ConfidenceHistogram",
     "ConfusionHeatmap",
     "Dashboard",
+    "ForgettingList",
     "LabelIssuePicker",
+    "PickTable",
     "RelabelQueue",
     "ReliabilityDiagram",
     "SampleCard",

@@ -5,7 +5,11 @@ heat map, the sample gallery and card, the temperature dial, the relabel
 queue and the label-issue picker. "Calibrate and decide" holds the
 calibration panel; it is built the first time the tab is opened (or
 :attr:`Dashboard.calibration` is read), so the first view appears sooner.
-"History" plots the set-level numbers of every frame the dashboard has shown.
+"History" plots the set-level numbers of every frame the dashboard has shown
+and lists the samples forgotten most often between the kept frames
+(:meth:`Dashboard.forgetting`). Given a second frame (``compare_to``, or
+:meth:`Dashboard.compare`), a "Compare" tab holds the checkpoint comparison on
+the dashboard's own state, so a click there selects in the Explore tab too.
 
 A dashboard opened before or during training follows the model:
 :meth:`Dashboard.update` shows a new frame in place (also from inside a
@@ -19,20 +23,25 @@ import html
 import os
 from collections import OrderedDict
 from contextlib import ExitStack
+from collections.abc import Sequence
 from typing import TYPE_CHECKING, Any
 
 import ipywidgets as widgets
 import numpy as np
 import pandas as pd
 
+from ..alignment import MissingIds
 from ..analysis import check_temperature
-from ..errors import ClassNameError, InputTypeError, ParameterError
+from ..checkpoints import FrameForgetting, compare_frames, forgetting_across
+from ..errors import ClassNameError, InputTypeError, LogitscopeError, ParameterError, ShapeError
 from ..findings import calibration_summary, count_selection, epoch_record
 from ..frame import LogitFrame
 from .base import LinkedView
 from .card import SampleCard
+from .comparison import CheckpointComparisonView
 from .confusion import ConfusionHeatmap
 from .dial import TemperatureDial
+from .forgetting import ForgettingList
 from .gallery import SampleGallery
 from .histogram import ConfidenceHistogram
 from .history import EpochHistoryView
@@ -46,6 +55,11 @@ if TYPE_CHECKING:
 __all__ = ["Dashboard"]
 
 TAB_TITLES = ("Explore", "Calibrate and decide", "History")
+#: Title of the tab :meth:`Dashboard.compare` adds.
+COMPARE_TITLE = "Compare"
+_HISTORY_TAB = 2
+#: Names of the two frames in the comparison tab and its messages.
+COMPARE_NAMES = ("this dashboard's frame", "the other frame")
 #: Frames kept for stepping back to an earlier update (the numbers of every update are kept).
 KEEP_FRAMES = 10
 
@@ -79,6 +93,11 @@ class Dashboard(LinkedView, widgets.VBox):
         Name of the first frame in the history (default ``"update 0"``).
     keep_frames : int, default 10
         How many of the most recent frames are kept to step back to (each holds its logit matrix).
+    compare_to : LogitFrame, optional
+        Another checkpoint's frame of the same samples (any row order): adds the
+        "Compare" tab (see :meth:`compare`).
+    compare_missing : {"raise", "drop"}, default "raise"
+        Ids that only one of the two frames holds: an error naming them, or shown apart in the tab.
 
     Examples
     --------
@@ -103,6 +122,8 @@ class Dashboard(LinkedView, widgets.VBox):
         max_classes: int = 30,
         label: str | None = None,
         keep_frames: int = KEEP_FRAMES,
+        compare_to: LogitFrame | None = None,
+        compare_missing: MissingIds = "raise",
         **kwargs: Any,
     ) -> None:
         if isinstance(keep_frames, bool) or not isinstance(keep_frames, int | np.integer) or keep_frames < 1:
@@ -122,6 +143,9 @@ class Dashboard(LinkedView, widgets.VBox):
         self.queue = RelabelQueue(frame, st, path=relabel_path)
         self.issues = LabelIssuePicker(frame, st, queue=self.queue)
         self._calibration: CalibrationPanel | None = None
+        self.comparison: CheckpointComparisonView | None = None
+        self.forgetting_list = ForgettingList(frame, st)
+        self._forgetting: tuple[tuple[int, ...], FrameForgetting | None, str] | None = None
 
         self._summary = widgets.Label()
         self._selection = widgets.Label()
@@ -152,8 +176,9 @@ class Dashboard(LinkedView, widgets.VBox):
         self.history_view = EpochHistoryView(
             [epoch_record(frame, 0, label, st.binning)], on_pick=self.show_update, kept=lambda i: i in self._frames
         )
+        self.history_tab = widgets.VBox([self.history_view, self.forgetting_list])
         self.tabs = widgets.Tab(
-            children=[self.explore, self._calibrate_box, self.history_view], titles=list(TAB_TITLES)
+            children=[self.explore, self._calibrate_box, self.history_tab], titles=list(TAB_TITLES)
         )
         self.tabs.observe(self._on_tab, "selected_index")
         widgets.VBox.__init__(
@@ -161,6 +186,12 @@ class Dashboard(LinkedView, widgets.VBox):
         )
         self.add_class("logitscope-dashboard")
         self._on_temperature()
+        if compare_to is not None:
+            try:
+                self.compare(compare_to, missing=compare_missing)
+            except ShapeError as exc:
+                hint = " (Dashboard(..., compare_missing='drop') shows them apart)" if compare_missing == "raise" else ""
+                raise ShapeError(f"{exc}{hint}") from exc
 
     # ------------------------------------------------------------------ public
 
@@ -177,12 +208,112 @@ class Dashboard(LinkedView, widgets.VBox):
     def views(self) -> list[LinkedView]:
         """Every linked view of the dashboard (the calibration panel's once it is built), panel last."""
         out: list[LinkedView] = [
-            self.histogram, self.confusion, self.scatter, self.gallery, self.card, self.dial, self.queue, self.issues
+            self.histogram, self.confusion, self.scatter, self.gallery, self.card, self.dial, self.queue, self.issues,
+            self.forgetting_list,
         ]  # fmt: skip
+        if self.comparison is not None:
+            out.append(self.comparison)
         if self._calibration is not None:
             c = self._calibration
             out += [c.diagram, c.held_diagram, c.sweep, c.picker, c]
         return out
+
+    def compare(
+        self, other: LogitFrame, *, missing: MissingIds = "raise", names: Sequence[str] = COMPARE_NAMES
+    ) -> CheckpointComparisonView:
+        """Compare the frame on screen with another checkpoint's frame in a "Compare" tab; return the view.
+
+        ``other`` is aligned to this dashboard's frame by sample id (any row
+        order). The view is on the dashboard's state: a click on a flip-table
+        cell, a class or a brushed rectangle selects those samples in the
+        Explore tab's gallery and card too. After :meth:`update` the tab
+        compares the new frame with ``other``. Calling again replaces the tab's view.
+
+        Parameters
+        ----------
+        other : LogitFrame
+            Same classes in the same order.
+        missing : {"raise", "drop"}, default "raise"
+            Ids held by one frame only: a :class:`~logitscope.ShapeError` naming
+            them, or left out of the comparison and named apart in the tab.
+        names : two str
+            Names of the two frames in the tab and in messages.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib, logitscope
+        >>> frame = logitscope.load_demo("mailroom")
+        >>> other = frame.subset(np.arange(frame.n_samples)[::-1])  # same samples, another order
+        >>> dash = Dashboard(frame, relabel_path=pathlib.Path(tempfile.mkdtemp()) / "m.json")
+        >>> view = dash.compare(other)
+        >>> dash.tabs.get_title(3), int(view.flip_table.loc["fixed", "count"])
+        ('Compare', 0)
+        >>> rows = view.select_cell("wrong_same")  # wrong under both, same class: the Explore gallery shows them
+        >>> dash.gallery.n_shown == rows.size == int(view.flip_table.loc["wrong_same", "count"])
+        True
+        """
+        if not isinstance(other, LogitFrame):
+            raise InputTypeError(f"other must be a LogitFrame, got {type(other).__name__}")
+        result = compare_frames(self.frame, other, missing=missing, names=names)
+        view = CheckpointComparisonView(result, self.state, frame=self.frame)
+        old = self.comparison
+        self.comparison = view
+        titles = [self.tabs.get_title(i) for i in range(len(self.tabs.children))]
+        if old is None:
+            self._compare_box = widgets.VBox([view], layout=widgets.Layout(width="100%"))
+            self.tabs.children = [*self.tabs.children, self._compare_box]
+            self.tabs.titles = [*titles, COMPARE_TITLE]
+        else:
+            self._compare_box.children = [view]
+            old.close()
+        return view
+
+    def forgetting(self) -> FrameForgetting:
+        """Samples ranked by forgetting events over the kept frames, in update order (Toneva et al. 2019).
+
+        Uses :func:`logitscope.checkpoints.forgetting_across` on the frames kept
+        for stepping back (``keep_frames``), matched by id; ids some kept frame
+        lacks are left out.
+
+        Raises
+        ------
+        ParameterError
+            With fewer than two kept frames.
+        LabelError
+            If the kept frames have no labels, or their labels disagree.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib, logitscope
+        >>> frame = logitscope.load_demo("mailroom")
+        >>> dash = Dashboard(frame, relabel_path=pathlib.Path(tempfile.mkdtemp()) / "m.json")
+        >>> dash.update(frame.with_temperature(2.0))
+        >>> int(dash.forgetting().ranking.forgetting_events.sum())  # the same predictions twice: nothing forgotten
+        0
+        """
+        key = tuple(self._frames)
+        if self._forgetting is not None and self._forgetting[0] == key and self._forgetting[1] is not None:
+            return self._forgetting[1]
+        result = forgetting_across(list(self._frames.values()), missing="drop")
+        self._forgetting = (key, result, "")
+        return result
+
+    def _refresh_forgetting(self) -> None:
+        """Show the forgetting ranking of the kept frames in the History tab (when it is out of date)."""
+        key = tuple(self._frames)
+        if self._forgetting is not None and self._forgetting[0] == key:
+            cached, message = self._forgetting[1], self._forgetting[2]
+        else:
+            if len(key) < 2:
+                cached, message = None, "Forgetting needs at least two updates: call dash.update(frame) each epoch."
+            else:
+                try:
+                    cached, message = forgetting_across(list(self._frames.values()), missing="drop"), ""
+                except LogitscopeError as exc:
+                    cached, message = None, f"No forgetting ranking: {exc}"
+            self._forgetting = (key, cached, message)
+        if self.forgetting_list.forgetting is not cached or cached is None:
+            self.forgetting_list.show(cached, message)
 
     @property
     def history(self) -> pd.DataFrame:
@@ -213,6 +344,8 @@ class Dashboard(LinkedView, widgets.VBox):
         while len(self._frames) > self.keep_frames:
             self._frames.popitem(last=False)
         self.history_view.add(epoch_record(frame, n, label, self.state.binning))
+        if self.tabs.selected_index == _HISTORY_TAB:
+            self._refresh_forgetting()
 
     def show_update(self, index: int) -> None:
         """Show again the frame of an earlier update (if it is still kept; see ``keep_frames``)."""
@@ -274,6 +407,9 @@ class Dashboard(LinkedView, widgets.VBox):
             self.calibration.sweep.live = True
         elif self._calibration is not None:
             self._calibration.sweep.live = False
+        # the forgetting ranking costs a pass over every kept frame: made when its tab is in sight
+        if change["new"] == _HISTORY_TAB:
+            self._refresh_forgetting()
 
     def _on_rows(self, change: Any = None) -> None:
         rows = self.state.rows
