@@ -9,7 +9,7 @@ from sklearn.model_selection import cross_val_predict
 from sklearn.pipeline import make_pipeline
 from sklearn.preprocessing import StandardScaler
 
-from logitscope import LogitFrame, ShapeError
+from logitscope import LabelError, LogitFrame, ShapeError
 from logitscope.analysis import compare_checkpoints, mcnemar_exact
 
 
@@ -51,12 +51,24 @@ def test_counts_and_rows_match_a_direct_tabulation():
     assert 0.0 <= c.mcnemar_p <= 1.0
 
 
-def test_frame_compare_checks_alignment():
+def test_frame_compare_matches_rows_by_id():
     za, zb, y = _wine_checkpoints()
+    n = len(y)
     a = LogitFrame(za, labels=y)
-    assert a.compare(LogitFrame(zb, labels=y)).n_samples == len(y)
-    with pytest.raises(ShapeError, match="same sample ids"):
-        a.compare(LogitFrame(zb[::-1], labels=y[::-1], ids=np.arange(len(y))[::-1]))
+    same_order = a.compare(LogitFrame(zb, labels=y))
+    # B's rows shuffled, ids shuffled with them: the comparison must come out the same, rows of `a`
+    order = np.random.default_rng(3).permutation(n)
+    shuffled = a.compare(LogitFrame(zb[order], labels=y[order], ids=np.arange(n)[order]))
+    assert shuffled.n_samples == same_order.n_samples == n
+    # reference: a direct tabulation of numpy argmax predictions in a's row order
+    ra, rb = za.argmax(1) == y, zb.argmax(1) == y
+    np.testing.assert_array_equal(shuffled.fixed_rows, np.flatnonzero(~ra & rb))
+    np.testing.assert_array_equal(shuffled.broken_rows, np.flatnonzero(ra & ~rb))
+    assert shuffled.mcnemar_p == same_order.mcnemar_p
+    with pytest.raises(ShapeError, match="not in other"):
+        a.compare(LogitFrame(zb[:-2], labels=y[:-2]))
+    with pytest.raises(LabelError, match="different labels"):
+        a.compare(LogitFrame(zb, labels=(y + 1) % 3))
     with pytest.raises(ShapeError, match="same samples and classes"):
         compare_checkpoints(za, zb[:, :2])
 

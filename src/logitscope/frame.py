@@ -547,25 +547,40 @@ class LogitFrame:
     def compare(self, other: LogitFrame) -> an.CheckpointComparison:
         """Compare this checkpoint's outputs with ``other``'s on the same samples (McNemar 1947).
 
-        Both frames must hold the same ids in the same order and the same
-        classes; the labels of ``self`` are used, each frame at its own temperature.
+        The frames are matched by sample id, in any row order
+        (:func:`logitscope.checkpoints.compare_frames`): row indices in the
+        result (``changed_rows``, ``fixed_rows``, ``broken_rows``, the flip
+        table's cells) are rows of ``self``. Each frame is read at its own temperature.
+
+        Labels are this frame's (``other``'s when this frame has none); frames
+        whose labels disagree on a shared id are refused. Before ids were
+        matched, ``other`` had to hold the same ids in the same order; the
+        result type is unchanged. To leave out ids one frame lacks, use
+        ``compare_frames(a, b, missing="drop")``; for a view, :func:`logitscope.compare`.
+
+        Raises
+        ------
+        ShapeError
+            If the two frames do not hold the same sample ids (the message names some).
+        ClassNameError
+            If their classes differ.
+        LabelError
+            If their labels disagree on a shared id.
 
         Examples
         --------
         >>> import numpy as np
-        >>> a = LogitFrame(np.array([[2.0, 0.0], [0.0, 2.0]]), labels=[0, 0])
-        >>> b = LogitFrame(np.array([[2.0, 0.0], [2.0, 0.0]]), labels=[0, 0])
-        >>> a.compare(b).only_b_right
-        1
+        >>> a = LogitFrame(np.array([[2.0, 0.0], [0.0, 2.0]]), labels=[0, 0], ids=["P-1", "P-2"])
+        >>> b = LogitFrame(np.array([[2.0, 0.0], [2.0, 0.0]]), labels=[0, 0], ids=["P-2", "P-1"])
+        >>> c = a.compare(b)  # b's rows in another order: matched by id
+        >>> c.only_b_right, c.fixed_rows.tolist()  # P-2 (row 1 of a) is fixed
+        (1, [1])
         """
-        if other.classes != self.classes:
-            raise ClassNameError("checkpoints to compare must have the same classes in the same order")
-        if other.n_samples != self.n_samples or not np.array_equal(other.ids, self.ids):
-            raise ShapeError("checkpoints to compare must score the same sample ids in the same order")
-        with assume_valid():
-            return an.compare_checkpoints(
-                self._logits, other._logits, self._labels, self._temperature, other._temperature
-            )
+        from .checkpoints import compare_frames  # checkpoints builds on this module
+
+        if not isinstance(other, LogitFrame):
+            raise InputTypeError(f"other must be a LogitFrame, got {type(other).__name__}")
+        return compare_frames(self, other, names=("this frame", "other")).comparison
 
     def report(self, path: str | os.PathLike[str], **options: Any) -> None:
         """Write a self-contained HTML report for teammates (see :func:`logitscope.report.write_report`)."""

@@ -52,7 +52,7 @@ from .gallery import SampleGallery
 from .pick_table import PickTable, column
 from .scatter import FADED, PointRaster, QuietBrush
 from .state import SharedState
-from .style import MUTED, REFERENCE, RIGHT, WRONG, css
+from .style import REFERENCE, RIGHT, WRONG, css
 
 __all__ = ["CELL_COLORS", "CheckpointComparisonView", "ComparisonPanel"]
 
@@ -550,6 +550,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         widget = self._top_widgets[self._turn]
         widget.value = PointRaster.png(PointRaster.to_rgba8(self._top))
         self._top_mark.image = widget
+        assert self._base_widgets is not None  # made together with self._base above
         self._mark.image = self._base_widgets[0 if self.state.rows.size == 0 else 1]
 
     @property
@@ -591,7 +592,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         return np.sort(self._frame_rows[np.asarray(aligned, dtype=np.int64)])
 
     def rows_of_cell(self, cell: str) -> np.ndarray:
-        """Frame rows of one flip-table cell (:data:`logitscope.analysis.FLIP_CELLS`; without labels "same" / "changed")."""
+        """Frame rows of one flip-table cell (see :data:`logitscope.analysis.FLIP_CELLS`; unlabelled: same, changed)."""
         self._check_ok()
         if cell not in self._cell_names:
             raise ParameterError(f"unknown cell {cell!r}; the cells are {', '.join(self._cell_names)}")
@@ -629,7 +630,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         if part not in _PARTS:
             raise ParameterError(f"part must be one of {', '.join(_PARTS)}, got {part!r}")
         j = self._class_index(k)
-        picked = [flips.fixed] if part == "fixed" else [flips.broken] if part == "broken" else [flips.fixed, flips.broken]
+        picked = {"fixed": [flips.fixed], "broken": [flips.broken], "changed": [flips.fixed, flips.broken]}[part]
         aligned = np.concatenate([r[self._labels[r] == j] for r in picked])
         return self._to_frame_rows(aligned)
 

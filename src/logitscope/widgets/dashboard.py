@@ -22,8 +22,8 @@ from __future__ import annotations
 import html
 import os
 from collections import OrderedDict
-from contextlib import ExitStack
 from collections.abc import Sequence
+from contextlib import ExitStack
 from typing import TYPE_CHECKING, Any
 
 import ipywidgets as widgets
@@ -177,9 +177,7 @@ class Dashboard(LinkedView, widgets.VBox):
             [epoch_record(frame, 0, label, st.binning)], on_pick=self.show_update, kept=lambda i: i in self._frames
         )
         self.history_tab = widgets.VBox([self.history_view, self.forgetting_list])
-        self.tabs = widgets.Tab(
-            children=[self.explore, self._calibrate_box, self.history_tab], titles=list(TAB_TITLES)
-        )
+        self.tabs = widgets.Tab(children=[self.explore, self._calibrate_box, self.history_tab], titles=list(TAB_TITLES))
         self.tabs.observe(self._on_tab, "selected_index")
         widgets.VBox.__init__(
             self, children=[header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"), **kwargs
@@ -190,7 +188,8 @@ class Dashboard(LinkedView, widgets.VBox):
             try:
                 self.compare(compare_to, missing=compare_missing)
             except ShapeError as exc:
-                hint = " (Dashboard(..., compare_missing='drop') shows them apart)" if compare_missing == "raise" else ""
+                drop = compare_missing == "raise"
+                hint = " (Dashboard(..., compare_missing='drop') shows them apart)" if drop else ""
                 raise ShapeError(f"{exc}{hint}") from exc
 
     # ------------------------------------------------------------------ public

@@ -85,7 +85,7 @@ class ForgettingList(LinkedView, widgets.VBox):
             empty="Forgetting needs at least two updates with labels.",
         )
         self.table.add_class("logitscope-forgetting")
-        self.table.on_pick(lambda row, col: self.select_listed(int(row)))
+        self.table.on_pick(self._on_pick)
         self.forgotten_button = widgets.Button(description="select all forgotten", layout={"width": "auto"})
         self.never_button = widgets.Button(description="select never right", layout={"width": "auto"})
         self.forgotten_button.on_click(lambda b: self.select_forgotten())
@@ -202,6 +202,10 @@ class ForgettingList(LinkedView, widgets.VBox):
             raise ParameterError("no forgetting ranking yet: it needs at least two updates with labels")
         self.table.active = {}
         return self.select(self._frame_rows_of(np.flatnonzero(self.forgetting.ranking.never_learned)))
+
+    def _on_pick(self, row: str, col: str) -> None:
+        if int(self._rows[int(row)]) >= 0:  # a sample the frame on screen lacks cannot be selected
+            self.select_listed(int(row))
 
     # ------------------------------------------------------------------ hooks
 
