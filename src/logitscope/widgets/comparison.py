@@ -239,6 +239,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
             max_height=300,
         )
         self.classes_table.add_class("logitscope-class-change")
+        self.classes_table.layout.max_width = "980px"
         self.classes_table.on_pick(self._on_class_pick)
         self.note = widgets.HTML()
 
@@ -519,7 +520,9 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
                 self._diagonal.y = np.array([lo, hi])
         counts = np.bincount(self._cells, minlength=len(names))
         label_of = _CELL_NAMES if self.labelled else _AGREE_NAMES
-        swatch = "<span class='ls-swatch' style='background:{}'></span>{} ({:,})"
+        swatch = (
+            "<span style='white-space:nowrap'><span class='ls-swatch' style='background:{}'></span>{} ({:,})</span> "
+        )
         parts = "".join(swatch.format(self._palette[i], label_of[c], int(counts[i])) for i, c in enumerate(names))
         self.key.value = (
             css("views") + f"<div class='ls-key' style='max-width:{w + 68}px;line-height:1.6'>{parts}</div>"

@@ -176,7 +176,9 @@ class Dashboard(LinkedView, widgets.VBox):
         self.history_view = EpochHistoryView(
             [epoch_record(frame, 0, label, st.binning)], on_pick=self.show_update, kept=lambda i: i in self._frames
         )
-        self.history_tab = widgets.VBox([self.history_view, self.forgetting_list])
+        # Tabs out of sight get their views when first opened: bqplot lays out a figure drawn in a
+        # hidden tab at zero size (negative plot areas, console errors) until the next resize.
+        self.history_tab = widgets.VBox([widgets.Label("drawing the history…")])
         self.tabs = widgets.Tab(children=[self.explore, self._calibrate_box, self.history_tab], titles=list(TAB_TITLES))
         self.tabs.observe(self._on_tab, "selected_index")
         widgets.VBox.__init__(
@@ -259,12 +261,13 @@ class Dashboard(LinkedView, widgets.VBox):
         self.comparison = view
         titles = [self.tabs.get_title(i) for i in range(len(self.tabs.children))]
         if old is None:
-            self._compare_box = widgets.VBox([view], layout=widgets.Layout(width="100%"))
+            self._compare_box = widgets.VBox([widgets.Label("drawing the comparison…")], layout={"width": "100%"})
             self.tabs.children = [*self.tabs.children, self._compare_box]
             self.tabs.titles = [*titles, COMPARE_TITLE]
         else:
-            self._compare_box.children = [view]
             old.close()
+        if self.tabs.selected_index == self._compare_index:
+            self._compare_box.children = [view]
         return view
 
     def forgetting(self) -> FrameForgetting:
@@ -400,6 +403,10 @@ class Dashboard(LinkedView, widgets.VBox):
 
     # ------------------------------------------------------------------ callbacks
 
+    @property
+    def _compare_index(self) -> int:
+        return len(TAB_TITLES)
+
     def _on_tab(self, change: Any) -> None:
         # the sweep's selection curve costs a pass per temperature: keep it for when its tab is in sight
         if change["new"] == 1:
@@ -408,7 +415,10 @@ class Dashboard(LinkedView, widgets.VBox):
             self._calibration.sweep.live = False
         # the forgetting ranking costs a pass over every kept frame: made when its tab is in sight
         if change["new"] == _HISTORY_TAB:
+            self.history_tab.children = [self.history_view, self.forgetting_list]
             self._refresh_forgetting()
+        if change["new"] == self._compare_index and self.comparison is not None:
+            self._compare_box.children = [self.comparison]
 
     def _on_rows(self, change: Any = None) -> None:
         rows = self.state.rows

@@ -52,7 +52,7 @@ class ForgettingList(LinkedView, widgets.VBox):
     >>> epochs = [LogitFrame(np.array(z[e], dtype=float), labels=[0, 1, 0], ids=["a", "b", "c"]) for e in z]
     >>> view = ForgettingList(epochs[-1])
     >>> view.show(forgetting_across(epochs))
-    >>> view.listed_ids, view.table.keys
+    >>> view.listed_ids, view.table.row_keys
     (['a', 'c'], ['0', '1'])
     >>> view.select_listed(0).tolist(), view.state.focus
     ([0], 0)
@@ -85,6 +85,7 @@ class ForgettingList(LinkedView, widgets.VBox):
             empty="Forgetting needs at least two updates with labels.",
         )
         self.table.add_class("logitscope-forgetting")
+        self.table.layout.max_width = "760px"
         self.table.on_pick(self._on_pick)
         self.forgotten_button = widgets.Button(description="select all forgotten", layout={"width": "auto"})
         self.never_button = widgets.Button(description="select never right", layout={"width": "auto"})

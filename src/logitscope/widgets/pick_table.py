@@ -80,7 +80,7 @@ class PickTable(anywidget.AnyWidget):
         self.on_msg(self._on_msg)
 
     @property
-    def keys(self) -> list[str]:
+    def row_keys(self) -> list[str]:
         """The row keys, in the order Python sent them."""
         return [str(r["key"]) for r in self.rows]
 
@@ -90,7 +90,7 @@ class PickTable(anywidget.AnyWidget):
 
     def pick(self, row: str, column: str = "") -> None:
         """Act as a click on row ``row`` (and on its cell in ``column``, a ``pick`` column)."""
-        if str(row) not in self.keys:
+        if str(row) not in self.row_keys:
             raise ParameterError(f"no row {row!r} in this table")
         if column and column not in [c["key"] for c in self.columns if c.get("pick")]:
             raise ParameterError(f"column {column!r} is not a clickable column of this table")
@@ -101,5 +101,5 @@ class PickTable(anywidget.AnyWidget):
         if not isinstance(content, dict) or content.get("action") != "pick":
             return
         row, column = str(content.get("row", "")), str(content.get("column") or "")
-        if row in self.keys:  # a click on a row the kernel has since replaced is dropped
+        if row in self.row_keys:  # a click on a row the kernel has since replaced is dropped
             self.pick(row, column)
