@@ -348,3 +348,23 @@ def test_pick_tables_sync_their_traits(pair):
         state = table.get_state()
         assert {"columns", "rows", "active", "caption", "note", "max_height", "empty", "_esm"} <= set(state)
         assert state["rows"] == table.rows
+
+
+def test_out_of_sight_the_compare_tab_waits_and_catches_up(pair, mailroom, tmp_path: Path):
+    a, b, _ = pair
+    dash = Dashboard(a, relabel_path=tmp_path / "m.json", compare_to=b)
+    view = dash.comparison
+    assert view is not None and not view.live  # the Explore tab is in sight
+    dash.selected = [1, 2, 3]
+    drawn = view.image.copy()  # reading the image draws it for the current selection
+    # a new frame with fewer rows, in another order: nothing may index the old rows meanwhile
+    nxt = _later(mailroom, seed=7).subset(np.arange(100, mailroom.n_samples)[::-1])
+    dash.update(nxt)
+    dash.selected = np.arange(nxt.n_samples - 5, nxt.n_samples)
+    dash.tabs.selected_index = 3
+    assert view.live and view.frame is nxt
+    back = {sid: i for i, sid in enumerate(b.ids.tolist())}
+    ref = _loop_cells(np.asarray(nxt.logits), np.asarray(b.logits)[[back[s] for s in nxt.ids.tolist()]], nxt.labels)
+    assert view.flip_table["count"].to_dict() == {c: ref.count(c) for c in view.flip_table.index}
+    assert "5 samples selected from Python; 5 of them are in this comparison" in view.note.value
+    assert view.image.shape == drawn.shape

@@ -147,6 +147,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
     selected_cell = traitlets.Unicode(None, allow_none=True, help="the flip-table cell this view selected, if any")
     selected_class = traitlets.Int(None, allow_none=True, help="the class whose changed samples this view selected")
     selected_part = traitlets.Unicode(None, allow_none=True, help="'changed', 'fixed' or 'broken' of selected_class")
+    live = traitlets.Bool(True, help="redraw on every change; False while out of sight (catches up when True again)")
 
     def __init__(
         self,
@@ -170,6 +171,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         self.link(comparison.a if frame is None else frame, state, name)
         self._last_box: tuple[float, float, float, float] | None = None
         self._error = ""
+        self._stale = False  # a new frame arrived while the view was not live
         self._turn = 0
         self._base_widgets: tuple[widgets.Image, widgets.Image] | None = None
         self._top_widgets = (widgets.Image(format="png"), widgets.Image(format="png"))
@@ -253,12 +255,31 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         widgets.VBox.__init__(self, children=list(self._content), **kwargs)
         self.add_class("logitscope-comparison")
         self._set_comparison(comparison)
+        self.observe(self._on_live, "live")
 
     # ------------------------------------------------------------------ the comparison shown
+
+    def _fresh(self) -> None:
+        """Compare the frame on screen with B now if a new frame arrived while the view was not live."""
+        if self._stale:
+            self._stale = False
+            self._recompare()
+
+    def _on_live(self, change: Any) -> None:
+        if not change["new"]:
+            return
+        if self._stale:
+            self._fresh()
+            return
+        self._mark_active()
+        self._draw()
+        self._show_focus()
+        self._describe_selection()
 
     @property
     def comparison(self) -> FrameComparison:
         """The comparison the view shows."""
+        self._fresh()
         return self._comparison
 
     @property
@@ -272,29 +293,35 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
 
         Without labels: two rows, the samples both checkpoints predict alike and those they do not.
         """
+        self._fresh()
         return self._flip_frame.copy()
 
     @property
     def per_class(self) -> pd.DataFrame:
         """The per-class accuracy change as a DataFrame indexed by class name (needs labels)."""
+        self._fresh()
         return self._comparison.per_class_frame()
 
     @property
     def mcnemar_p(self) -> float | None:
         """McNemar's exact p-value of fixed against broken (None without labels)."""
+        self._fresh()
         return None if self._comparison.flips is None else float(self._comparison.flips.mcnemar_p)
 
     @property
     def rows_apart(self) -> np.ndarray:
         """Rows of the view's frame whose id is not in the comparison (the other checkpoint lacks them)."""
+        self._fresh()
         return np.flatnonzero(self._inverse < 0)
 
     @property
     def error(self) -> str:
         """Why the frame on screen could not be compared with B after a dashboard update ("" when it could)."""
+        self._fresh()
         return self._error
 
     def _check_ok(self) -> None:
+        self._fresh()
         if self._error:
             raise ParameterError(self._error)
 
@@ -559,12 +586,16 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
     @property
     def image(self) -> np.ndarray:
         """What the scatter shows, as one straight-alpha RGBA uint8 image ``(height, width, 4)``."""
+        self._fresh()
+        if not self.live:
+            self._draw()
         assert self._base is not None
         bottom = 1.0 if self.state.rows.size == 0 else FADED
         return PointRaster.to_rgba8(PointRaster.over(self._top, self._base, bottom))
 
     def pixel_of(self, row: int) -> tuple[int, int]:
         """(column, row) of the image pixel where frame row ``row`` is painted (it must be in the comparison)."""
+        self._fresh()
         i = int(self._inverse[int(row)])
         if i < 0:
             raise ParameterError(f"row {row} is not in the comparison (the other checkpoint lacks its id)")
@@ -676,6 +707,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
 
     def select_apart(self) -> np.ndarray:
         """Select the rows of the view's frame that the other checkpoint lacks."""
+        self._check_ok()
         rows = self.rows_apart
         with self.quietly():
             self.selected_cell = self.selected_class = self.selected_part = None
@@ -774,6 +806,12 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         self.note.value = css("views") + f"<span class='ls-note'>{text}</span>"
 
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        if not self.live:
+            if not mine:
+                with self.quietly():
+                    self.selected_cell = self.selected_class = self.selected_part = None
+                self._last_box = None
+            return  # drawn when live again
         if not mine:
             with self.quietly():
                 self.selected_cell = self.selected_class = self.selected_part = None
@@ -784,10 +822,20 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         self._describe_selection()
 
     def on_focus(self, row: int | None) -> None:
-        self._show_focus()
+        if self.live:
+            self._show_focus()
 
     def on_frame(self) -> None:
-        """A dashboard shows another frame: compare it with B again (ids B lacks are shown apart)."""
+        """A dashboard shows another frame: compare it with B again (ids B lacks are shown apart).
+
+        While the view is not live (its tab out of sight) the comparison is made when it is next needed.
+        """
+        if not self.live:
+            self._stale = True
+            return
+        self._recompare()
+
+    def _recompare(self) -> None:
         c = self._comparison
         try:
             fresh = compare_frames(self.frame, c.b, missing="drop", names=c.aligned.names)

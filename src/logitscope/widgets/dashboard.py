@@ -266,7 +266,9 @@ class Dashboard(LinkedView, widgets.VBox):
             self.tabs.titles = [*titles, COMPARE_TITLE]
         else:
             old.close()
-        if self.tabs.selected_index == self._compare_index:
+        # out of sight the view neither redraws on each selection nor recompares on each update
+        view.live = self.tabs.selected_index == self._compare_index
+        if view.live:
             self._compare_box.children = [view]
         return view
 
@@ -417,8 +419,10 @@ class Dashboard(LinkedView, widgets.VBox):
         if change["new"] == _HISTORY_TAB:
             self.history_tab.children = [self.history_view, self.forgetting_list]
             self._refresh_forgetting()
-        if change["new"] == self._compare_index and self.comparison is not None:
-            self._compare_box.children = [self.comparison]
+        if self.comparison is not None:
+            self.comparison.live = change["new"] == self._compare_index
+            if self.comparison.live:
+                self._compare_box.children = [self.comparison]
 
     def _on_rows(self, change: Any = None) -> None:
         rows = self.state.rows
