@@ -261,5 +261,3 @@ def collect(
         split=split,
         histogram=histogram,
     )
-
-
