@@ -229,7 +229,8 @@ def histogram_figure(hist: ConfidenceHistogram, threshold: float | None, ids: Id
         for b in np.flatnonzero(c).tolist():
             x0 = float(edges[b]) + j * width
             tip = f"{label}, confidence {edges[b]:.2f}–{edges[b + 1]:.2f}: {int(c[b]):,}"
-            ch.rect(x0 + width * 0.08, x0 + width * 0.92, y_domain[0], float(c[b]), cls=cls, tooltip=tip)
+            data = {"data-part": cls.split()[-1], "data-bin": b, "data-count": int(c[b])}
+            ch.rect(x0 + width * 0.08, x0 + width * 0.92, y_domain[0], float(c[b]), cls=cls, data=data, tooltip=tip)
     if threshold is not None and math.isfinite(threshold):
         ch.vline(min(max(threshold, lo), 1.0), cls="chosen", label=f"threshold {threshold:.4g}")
     ch.legend([(cls, label) for cls, _, label in parts])
