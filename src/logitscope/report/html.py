@@ -50,6 +50,8 @@ __all__ = ["CSP", "CSS", "build_report", "mark_rows"]
 THUMBNAIL_SIZE = 48
 #: Characters of a text sample shown in a table cell.
 SNIPPET_LIMIT = 140
+#: Beyond this many classes the per-class tables start folded.
+MANY_CLASSES = 30
 
 CSS = resources.files(__package__).joinpath("report.css").read_text(encoding="utf-8")
 _CSS_HASH = base64.b64encode(hashlib.sha256(CSS.encode("utf-8")).digest()).decode("ascii")
@@ -339,6 +341,7 @@ def build_report(
         interval_names=INTERVAL_NAMES,
         share_bar=fig.share_bar,
         nav=nav,
+        many_classes=MANY_CLASSES,
         marks=marks_context,
         **context,
     )
