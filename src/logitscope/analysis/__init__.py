@@ -20,10 +20,12 @@ from .calibration import (
     reliability_bins,
 )
 from .class_mix import (
+    ClassMixCheck,
     ClassMixTest,
     PriorEstimate,
     adjust_to_new_priors,
     class_counts,
+    class_mix_check,
     class_mix_test,
     compare_class_mix,
     estimate_priors,
@@ -68,6 +70,7 @@ __all__ = [
     "CAUTION",
     "SCORE_COLUMNS",
     "CheckpointComparison",
+    "ClassMixCheck",
     "ClassMixTest",
     "ConfusedPair",
     "LabelIssueRanking",
@@ -92,6 +95,7 @@ __all__ = [
     "check_probabilities",
     "check_temperature",
     "class_counts",
+    "class_mix_check",
     "class_mix_test",
     "classwise_calibration_error",
     "compare_checkpoints",
