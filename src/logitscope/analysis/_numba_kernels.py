@@ -122,9 +122,12 @@ def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, l
         lmargin[i] = -g
         energy[i] = -(top * beta + log_s) / beta
         if has_y:
-            zy = np.float64(row[y[i]])
+            yi = y[i]
+            zy = np.float64(row[yi])
             above = 0
-            for j in range(k):
+            for j in range(yi):  # ties: an equal logit at a lower index ranks above the label (as argmax)
+                above += np.float64(row[j]) >= zy
+            for j in range(yi + 1, k):
                 above += np.float64(row[j]) > zy
             lp = (zy - top) * beta - log_s
             logptrue[i] = lp

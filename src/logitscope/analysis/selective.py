@@ -95,7 +95,7 @@ def risk_coverage_curve(confidence: ArrayLike, correct: ArrayLike) -> RiskCovera
     ([0.9, 0.8, 0.6], [1, 3, 4], [0, 1, 2])
     """
     conf, ok = _check_pair(confidence, correct)
-    order = np.argsort(-conf, kind="stable")
+    order = np.argsort(-conf)  # the order within a run of ties does not matter: only run ends are read
     c = conf[order]
     errors = np.cumsum(~ok[order])
     # last index of each run of equal confidence
@@ -104,22 +104,27 @@ def risk_coverage_curve(confidence: ArrayLike, correct: ArrayLike) -> RiskCovera
 
 
 def aurc(confidence: ArrayLike, correct: ArrayLike) -> float:
-    """Area under the risk-coverage curve, ``(1/N) sum_{n=1}^{N} errors(n) / n``.
+    """Area under the risk-coverage curve (Geifman, Uziel and El-Yaniv 2019).
 
-    ``errors(n)`` counts the errors among the ``n`` most confident samples
-    (Geifman, Uziel and El-Yaniv 2019). Ties in confidence are ordered
-    pessimistically (errors first) so that the value cannot flatter a score
-    that does not separate them.
+    Without ties this is ``(1/N) sum_{n=1}^{N} errors(n) / n``, where
+    ``errors(n)`` counts the errors among the ``n`` most confident samples.
+    A threshold cannot split samples of equal confidence, so tied samples
+    are accepted together, as in :func:`risk_coverage_curve`: each group of
+    ties contributes its share of the samples times the selective risk of
+    accepting it with everything more confident. Equivalently, AURC is the
+    mean over samples of the risk of the threshold at each sample's own
+    confidence; a constant confidence gives the error rate.
 
     Examples
     --------
     >>> round(aurc([0.9, 0.8, 0.7, 0.6], [1, 1, 0, 0]), 6)  # (0 + 0 + 1/3 + 2/4) / 4
     0.208333
+    >>> aurc([0.8, 0.8, 0.8, 0.8], [1, 1, 1, 0])  # no ranking at all: the error rate
+    0.25
     """
-    conf, ok = _check_pair(confidence, correct)
-    order = np.lexsort((ok, -conf))  # by confidence descending, errors (False) first among ties
-    errors = np.cumsum(~ok[order])
-    return float(np.mean(errors / np.arange(1, conf.size + 1)))
+    rc = risk_coverage_curve(confidence, correct)
+    share = np.diff(rc.n_accepted, prepend=0) / rc.n_total
+    return float(np.sum(share * rc.n_errors / rc.n_accepted))
 
 
 def binomial_interval(
