@@ -205,7 +205,9 @@ def test_evaluate_threshold_against_brute_force(conf_correct):
         assert c.accuracy == pytest.approx(ok[m].mean())
         ref = binomtest(int(ok[m].sum()), int(m.sum())).proportion_ci(confidence_level=0.9, method="exact")
         assert c.interval == pytest.approx((ref.low, ref.high), abs=1e-12)
-    nothing = evaluate_threshold(conf, ok, 2.0)
+    nothing = evaluate_threshold(conf, ok, np.inf)  # documented: inf accepts nothing
+    with pytest.raises(ParameterError, match=r"threshold must lie in \[0, 1\]"):
+        evaluate_threshold(conf, ok, 2.0)
     assert nothing.n_accepted == 0 and np.isnan(nothing.accuracy) and nothing.to_dict()["accuracy"] is None
 
 
@@ -230,7 +232,7 @@ def test_selective_input_errors():
         threshold_for_accuracy([0.5], [True], 1.5)
     with pytest.raises(ParameterError, match=r"target accuracy must lie in \(0, 1\]"):
         threshold_for_accuracy([0.5], [True], 0.0)
-    with pytest.raises(ParameterError, match="costs must be non-negative"):
+    with pytest.raises(ParameterError, match=r"error cost must lie in \[0, 1e\+09\]"):
         threshold_for_cost([0.5], [True], -1.0, 1.0)
     with pytest.raises(ShapeError, match="predicted must have shape"):
         per_class_thresholds([0.5, 0.6], [True, True], [0], 0.9, 2)

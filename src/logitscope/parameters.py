@@ -24,8 +24,8 @@ or raises; it never shows 40. A range whose upper end depends on the data
     slider = widgets.IntSlider(value=check(n_bins, "n_bins"), min=lo, max=hi, step=step)
     k_box = widgets.BoundedIntText(min=1, max=RANGES["k"].control_bounds(upper=frame.n_classes)[1])
 
-This module imports nothing from the rest of logitscope except the errors,
-so every layer may import it.
+This module imports nothing from the rest of logitscope except the errors
+(and numpy), so every layer may import it.
 
 Examples
 --------
@@ -49,6 +49,8 @@ from collections.abc import Mapping
 from dataclasses import dataclass
 from types import MappingProxyType
 from typing import Literal
+
+import numpy as np
 
 from .errors import InputTypeError, ParameterError
 
@@ -134,7 +136,9 @@ class ParameterRange:
             parameter) not a whole number. The message names the range.
         """
         where = f" {context}" if context else ""
-        if isinstance(value, bool) or not isinstance(value, numbers.Real):
+        if not isinstance(value, numbers.Real) and getattr(value, "ndim", None) == 0 and hasattr(value, "item"):
+            value = value.item()  # a 0-d numpy array or tensor
+        if isinstance(value, bool | np.bool_) or not isinstance(value, numbers.Real):
             noun = "an integer" if self.kind == "int" else "a number"
             raise InputTypeError(f"{self.label} must be {noun}, got {value!r}")
         if self.kind == "int":

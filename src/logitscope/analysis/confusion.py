@@ -8,6 +8,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ..errors import ShapeError
+from ..parameters import check as check_parameter
 from ._blocks import block_slices
 from ._validation import check_k, check_labels, check_logits
 
@@ -110,6 +111,7 @@ def most_confused_pairs(matrix: ArrayLike, n: int = 10, class_counts: ArrayLike 
     >>> [(p.true, p.other, p.count) for p in most_confused_pairs([[5, 2, 0], [3, 4, 0], [0, 1, 6]], n=2)]
     [(1, 0, 3), (0, 1, 2)]
     """
+    n = int(check_parameter(n, "n_pairs"))
     m = np.asarray(matrix)
     if m.ndim != 2 or m.shape[0] != m.shape[1]:
         raise ShapeError(f"a confusion matrix must be square, got shape {m.shape}")

@@ -23,6 +23,7 @@ from numpy.typing import ArrayLike
 from scipy import stats
 
 from ..errors import ParameterError, ShapeError
+from ..parameters import check as check_parameter
 
 __all__ = [
     "CAUTION",
@@ -141,8 +142,7 @@ def binomial_interval(
     >>> [round(v, 4) for v in binomial_interval(8, 10)]
     [0.4902, 0.9433]
     """
-    if not 0 < level < 1:
-        raise ParameterError(f"level must lie in (0, 1), got {level!r}")
+    level = float(check_parameter(level, "level"))
     k, n = int(successes), int(trials)
     if n < 0 or not 0 <= k <= max(n, 0):
         raise ParameterError(f"need 0 <= successes <= trials, got {k} of {n}")
@@ -225,12 +225,18 @@ def evaluate_threshold(
 ) -> ThresholdChoice:
     """Coverage and accuracy (with a binomial interval) of accepting ``confidence >= threshold``.
 
+    ``threshold`` lies in [0, 1], or is ``inf``: accept nothing (what an
+    unreachable target gives, see :func:`threshold_for_accuracy`).
+
     Examples
     --------
     >>> c = evaluate_threshold([0.9, 0.8, 0.8, 0.6], [1, 1, 0, 0], 0.8)
     >>> c.coverage, round(c.accuracy, 4), c.n_review
     (0.75, 0.6667, 1)
     """
+    if not (isinstance(threshold, float | np.floating) and threshold == np.inf):
+        threshold = float(check_parameter(threshold, "threshold"))
+    level = float(check_parameter(level, "level"))
     conf, ok = _check_pair(confidence, correct)
     acc = conf >= threshold
     n_acc = int(acc.sum())
@@ -259,8 +265,8 @@ def threshold_for_accuracy(
     >>> c.threshold, c.coverage, c.accuracy
     (0.6, 1.0, 0.8)
     """
-    if not 0 < target <= 1:
-        raise ParameterError(f"target accuracy must lie in (0, 1], got {target!r}")
+    target = float(check_parameter(target, "target_accuracy"))
+    level = float(check_parameter(level, "level"))
     conf, ok = _check_pair(confidence, correct)
     rc = risk_coverage_curve(conf, ok)
     right = rc.n_accepted - rc.n_errors
@@ -299,8 +305,9 @@ def threshold_for_cost(
     >>> c.threshold, c.n_review, c.expected_cost
     (0.8, 2, 0.4)
     """
-    if not (np.isfinite(error_cost) and np.isfinite(review_cost)) or error_cost < 0 or review_cost < 0:
-        raise ParameterError(f"costs must be non-negative numbers, got {error_cost!r} and {review_cost!r}")
+    error_cost = float(check_parameter(error_cost, "error_cost"))
+    review_cost = float(check_parameter(review_cost, "review_cost"))
+    level = float(check_parameter(level, "level"))
     conf, ok = _check_pair(confidence, correct)
     rc = risk_coverage_curve(conf, ok)
     n = conf.size
