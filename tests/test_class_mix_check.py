@@ -322,15 +322,18 @@ def _em_dense(z: np.ndarray, pt: np.ndarray, t: float, tol: float = 1e-8, max_it
 
 
 @pytest.mark.parametrize("dtype", [np.float16, np.float32, np.float64])
-def test_estimate_priors_in_blocks_matches_the_dense_em(make_logits, dtype):
+def test_estimate_priors_in_blocks_matches_the_dense_em(make_logits, backend, dtype):
     z, _ = make_logits(n=9000, k=6, scale=2.0)
     z = z.astype(dtype)
     pt = np.array([0.3, 0.2, 0.2, 0.1, 0.1, 0.1])
     est = estimate_priors(z, pt, temperature=1.3)
     np.testing.assert_allclose(est.priors, _em_dense(z, pt, 1.3), rtol=1e-9, atol=1e-12)
+    # a prior that reaches 0 stays 0 (its logit shift is -inf) and the others stay finite
+    zero = estimate_priors(np.c_[z[:, :5], np.full(z.shape[0], -1e4, dtype=dtype)], pt, max_iter=50)
+    assert np.all(np.isfinite(zero.priors)) and zero.priors[5] < 1e-12
 
 
-def test_estimate_priors_needs_no_copy_of_the_matrix(rng):
+def test_estimate_priors_needs_no_copy_of_the_matrix(rng, backend):
     z = rng.normal(size=(100_000, 50)).astype(np.float32)
     pt = np.full(50, 1 / 50)
     tracemalloc.start()

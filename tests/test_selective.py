@@ -236,3 +236,53 @@ def test_selective_input_errors():
         threshold_for_cost([0.5], [True], -1.0, 1.0)
     with pytest.raises(ShapeError, match="predicted must have shape"):
         per_class_thresholds([0.5, 0.6], [True, True], [0], 0.9, 2)
+
+
+def _lower_bounds_loop(conf: np.ndarray, ok: np.ndarray, level: float, method: str) -> tuple[np.ndarray, np.ndarray]:
+    """Every distinct confidence and the lower end of scipy.stats.binomtest's interval for accepting it, a loop."""
+    thresholds = np.unique(conf)
+    lows = []
+    for t in thresholds:
+        m = conf >= t
+        test = binomtest(int(ok[m].sum()), int(m.sum()))
+        lows.append(test.proportion_ci(confidence_level=level, method=SCIPY_METHOD[method]).low)
+    return thresholds, np.array(lows)
+
+
+@pytest.mark.parametrize("method", ["wilson", "clopper-pearson"])
+def test_vectorised_lower_bound_rule_against_binomtest(rng, method):
+    # the rule is computed on arrays (Wilson's closed form; Clopper-Pearson through the binomial tail with
+    # Chernoff and Ash bounds deciding most rows); reference: scipy.stats.binomtest(k, n).proportion_ci
+    # at every distinct confidence, the lowest one whose lower bound reaches the target
+    cases = 0
+    for n in (1, 3, 40, 600):
+        for quality in (0.6, 0.9, 0.99):
+            conf = np.round(rng.uniform(0.2, 1.0, n), 2)  # ties included
+            ok = rng.random(n) < np.clip(conf + quality - 0.8, 0.0, 1.0)
+            for level in (0.9, 0.95):
+                thresholds, lows = _lower_bounds_loop(conf, ok, level, method)
+                for target in (0.5, 0.8, 0.9, 0.95, 0.99):
+                    reached = thresholds[lows >= target - 1e-12]
+                    want = reached.min() if reached.size else np.inf
+                    c = threshold_for_accuracy(conf, ok, target, level=level, method=method, use_lower_bound=True)
+                    assert c.threshold == want, (n, quality, target, level)
+                    assert c.feasible == np.isfinite(want)
+                    if c.feasible:
+                        assert c.interval[0] >= target - 1e-12
+                    cases += c.feasible
+    assert cases > 20  # the comparison covers feasible choices, not only empty ones
+
+
+def test_lower_bound_rule_edges():
+    # all right: the Clopper-Pearson lower bound of n out of n is (alpha / 2) ** (1 / n) (Clopper and Pearson 1934)
+    conf = np.linspace(1.0, 0.5, 200)
+    ok = np.ones(200, bool)
+    c = threshold_for_accuracy(conf, ok, 0.98, method="clopper-pearson", use_lower_bound=True)
+    n_needed = int(np.ceil(np.log(0.025) / np.log(0.98)))  # smallest n with 0.025 ** (1 / n) >= 0.98
+    assert c.n_accepted == 200 and 0.025 ** (1 / 200) >= 0.98 and n_needed <= 200
+    few = threshold_for_accuracy(conf[:100], ok[:100], 0.98, method="clopper-pearson", use_lower_bound=True)
+    assert few.feasible == (0.025 ** (1 / 100) >= 0.98 - 1e-12)
+    # target 1: no finite sample reaches a lower bound of 1
+    assert not threshold_for_accuracy(conf, ok, 1.0, use_lower_bound=True).feasible
+    with pytest.raises(ParameterError, match="method must be"):
+        threshold_for_accuracy(conf, ok, 0.9, method="normal", use_lower_bound=True)

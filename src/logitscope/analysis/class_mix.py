@@ -42,6 +42,7 @@ from ..errors import ParameterError, ShapeError
 from ..parameters import check as check_parameter
 from ._blocks import block_slices
 from ._validation import check_logits, check_temperature
+from .scores import available_backends
 
 __all__ = [
     "ClassMixCheck",
@@ -178,13 +179,7 @@ class PriorEstimate:
     converged: bool
 
 
-def _em_step(z: np.ndarray, beta: float, shift: np.ndarray) -> np.ndarray:
-    """Column sums of ``softmax(beta z + shift)`` over all rows, one row block at a time.
-
-    Each block is copied once into a float64 temporary (extra memory O(block x K));
-    the column sums are a matrix-vector product ``(1 / s) @ exp(...)``, so the
-    normalised block is never formed.
-    """
+def _em_step_numpy(z: np.ndarray, beta: float, shift: np.ndarray) -> np.ndarray:
     n, k = z.shape
     total = np.zeros(k)
     for rows in block_slices(n, k):
@@ -192,7 +187,30 @@ def _em_step(z: np.ndarray, beta: float, shift: np.ndarray) -> np.ndarray:
         b += shift
         b -= b.max(axis=1, keepdims=True)
         np.exp(b, out=b)
-        total += (1.0 / b.sum(axis=1)) @ b
+        total += np.einsum("i,ij->j", 1.0 / b.sum(axis=1), b)
+    return total
+
+
+def _em_step(z: np.ndarray, beta: float, shift: np.ndarray) -> np.ndarray:
+    """Column sums of ``softmax(beta z + shift)`` over all rows: one pass over the logits.
+
+    The numba kernel (when installed) runs over row chunks in parallel threads;
+    the numpy path works in row blocks, each copied once into a float64
+    temporary. Either way the extra memory is O(block x K), and the normalised
+    rows are summed as ``sum_i exp(...)_i / s_i`` without being stored.
+    """
+    if "numba" not in available_backends():
+        return _em_step_numpy(z, beta, shift)
+    from . import _numba_kernels as nb
+
+    n, k = z.shape
+    chunks = 4 * max(1, nb.numba.get_num_threads())
+    if z.dtype in (np.float32, np.float64) and z.flags.c_contiguous:
+        return np.asarray(nb.prior_em_kernel(z, float(beta), shift, chunks))
+    total = np.zeros(k)
+    wide = np.float64 if z.dtype == np.float64 else np.float32  # float16 widens exactly to float32
+    for rows in block_slices(n, k, budget=1 << 22):
+        total += nb.prior_em_kernel(np.ascontiguousarray(z[rows], dtype=wide), float(beta), shift, chunks)
     return total
 
 
