@@ -168,7 +168,7 @@ def binomial_interval(
         return 0.0, 1.0
     alpha = 1.0 - level
     if method == "wilson":
-        lo, hi = _wilson(np.float64(k), np.float64(n), alpha)
+        lo, hi = _wilson(np.asarray(float(k)), np.asarray(float(n)), alpha)
         return float(lo), float(hi)
     if method == "clopper-pearson":
         lo_cp = 0.0 if k == 0 else float(stats.beta.ppf(alpha / 2, k, n - k + 1))
