@@ -286,3 +286,28 @@ def test_lower_bound_rule_edges():
     assert not threshold_for_accuracy(conf, ok, 1.0, use_lower_bound=True).feasible
     with pytest.raises(ParameterError, match="method must be"):
         threshold_for_accuracy(conf, ok, 0.9, method="normal", use_lower_bound=True)
+
+
+def test_the_tail_bounds_the_clopper_pearson_rule_relies_on():
+    # The vectorised Clopper-Pearson rule decides most rows by two bounds on P(X >= k), X ~ Bin(n, t),
+    # k / n = lam > t, D = KL(Bernoulli(lam) || Bernoulli(t)) (the bounds as recalled from memory:
+    # Chernoff's bound, and Ash 1990, Lemma 4.7.2 / MacWilliams and Sloane 1977, Ch. 10, Lemma 7 for the
+    # binomial coefficient). Checked here against scipy.stats.binom on a grid.
+    from scipy import stats
+
+    for n in (1, 2, 5, 17, 60, 250, 1000):
+        k = np.arange(1, n + 1)
+        for t in (0.05, 0.3, 0.5, 0.8, 0.95, 0.999):
+            lam = k / n
+            m = lam > t
+            if not m.any():
+                continue
+            kk, lm = k[m], lam[m]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                d = lm * np.log(lm / t) + np.where(lm < 1, (1 - lm) * np.log((1 - lm) / (1 - t)), 0.0)
+            tail = stats.binom.sf(kk - 1, n, t)  # P(X >= k)
+            assert np.all(tail <= np.exp(-n * d) * (1 + 1e-12))  # Chernoff
+            inner = lm < 1
+            pmf = stats.binom.pmf(kk[inner], n, t)
+            lower = np.exp(-n * d[inner]) / np.sqrt(8 * n * lm[inner] * (1 - lm[inner]))
+            assert np.all(pmf >= lower * (1 - 1e-12))  # Ash: P(X >= k) >= P(X = k) >= this

@@ -635,8 +635,9 @@ def _sweep_grid(ch: ReportChoices) -> np.ndarray:
     marks = [ch.base_temperature, ch.temperature]
     if ch.fitted is not None:
         marks.append(ch.fitted.temperature)
-    lo = min(0.25, *(m / 2 for m in marks))
-    hi = max(4.0, *(m * 2 for m in marks))
+    t_lo, t_hi = an.temperature.T_MIN, an.temperature.T_MAX  # the accepted range of a temperature
+    lo = max(t_lo, min(0.25, *(m / 2 for m in marks)))
+    hi = min(t_hi, max(4.0, *(m * 2 for m in marks)))
     return np.unique(np.r_[np.geomspace(lo, hi, 41), marks])
 
 

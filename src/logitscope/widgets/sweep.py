@@ -244,8 +244,9 @@ class TemperatureSweepView(widgets.VBox):
         if self._grid_given is not None:
             return np.sort(self._grid_given)
         marks = [self.state.temperature] + ([self.fitted.temperature] if self.fitted else [])
-        lo = min(0.25, *(m / 2 for m in marks))
-        hi = max(4.0, *(m * 2 for m in marks))
+        t_lo, t_hi = an.temperature.T_MIN, an.temperature.T_MAX  # the accepted range of a temperature
+        lo = max(t_lo, min(0.25, *(m / 2 for m in marks)))
+        hi = min(t_hi, max(4.0, *(m * 2 for m in marks)))
         return np.geomspace(lo, hi, 41)
 
     def _compute(self) -> None:
