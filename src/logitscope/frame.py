@@ -602,6 +602,94 @@ class LogitFrame:
             text_key=text_key, frame_type=cls,
         )  # fmt: skip
 
+    def class_mix_check(
+        self,
+        reference: LogitFrame | ArrayLike,
+        *,
+        alpha: float = 0.05,
+        temperature: float | None = None,
+        counts: Literal["predicted", "labels"] = "predicted",
+        statistic: Literal["pearson", "g"] = "pearson",
+        n_draws: int = 10_000,
+        seed: int = 0,
+    ) -> an.ClassMixCheck:
+        """Has this batch's class mix moved away from ``reference``? (see :func:`logitscope.analysis.class_mix_check`)
+
+        Like is compared with like. Against a reference *frame*, the batch's
+        predicted classes are compared with the reference's predicted classes
+        (``counts="labels"``: labels with labels, both frames labelled) by the
+        two-sample chi-square test of homogeneity, since the reference is a
+        sample too. Against an *array*, the array holds proportions known in
+        advance (summing to 1) and the batch's counts are tested by the
+        multinomial goodness-of-fit test. Where an expected count is below 5
+        the p-value is a seeded Monte Carlo estimate from ``n_draws`` draws.
+
+        For an unlabelled batch and a labelled reference frame the check also
+        carries ``priors``: the batch's class mix estimated by EM from its
+        probabilities at ``temperature`` (default: the batch's own), starting
+        from the reference's label proportions (Saerens et al. 2002).
+
+        Parameters
+        ----------
+        reference : LogitFrame or array_like of shape (K,)
+            A frame with the same classes, or known proportions.
+        alpha : float
+            Significance level; the check's ``shifted`` is ``p_value < alpha``.
+        temperature : float, optional
+            Temperature of the probabilities the EM prior estimate uses.
+        counts : {"predicted", "labels"}
+            What is counted in each row.
+        statistic : {"pearson", "g"}
+        n_draws, seed : int
+            Monte Carlo draws and their seed, used where an expected count is below 5.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> ref = LogitFrame(np.eye(3)[[0, 1, 2, 2] * 10] * 12, labels=[0, 1, 2, 2] * 10)
+        >>> new = LogitFrame(np.eye(3)[[0, 0, 0, 2] * 10] * 12)
+        >>> check = new.class_mix_check(ref)
+        >>> check.test, check.observed.tolist(), check.shifted
+        ('homogeneity', [30.0, 0.0, 10.0], True)
+        >>> check.priors.round(2).tolist()
+        [0.75, 0.0, 0.25]
+        """
+        from .errors import ParameterError
+
+        if counts not in ("predicted", "labels"):
+            raise ParameterError(f"counts must be 'predicted' or 'labels', got {counts!r}")
+        k = self.n_classes
+        t = self._t(temperature)
+
+        def counted(frame: LogitFrame, what: str) -> np.ndarray:
+            if counts == "labels":
+                return an.class_counts(frame._require_labels(f"counts='labels' ({what})"), k)
+            return an.class_counts(frame.sample_scores().predicted, k)
+
+        options: dict[str, Any] = dict(alpha=alpha, statistic=statistic, counted=counts, n_draws=n_draws, seed=seed)
+        if isinstance(reference, LogitFrame):
+            if reference.classes != self.classes:
+                raise ClassNameError("the reference and the batch must have the same classes in the same order")
+            check = an.class_mix_check(
+                counted(self, "the batch"), reference_counts=counted(reference, "the reference"), **options
+            )
+            if self._labels is None and reference._labels is not None:
+                ref_mix = an.class_counts(reference._labels, k)
+                if np.any(ref_mix == 0):
+                    missing = ", ".join(repr(self._classes[i]) for i in np.flatnonzero(ref_mix == 0)[:5])
+                    return check.with_priors(None, f"no EM prior estimate: the reference has no labels of {missing}")
+                with assume_valid():
+                    est = an.estimate_priors(self._logits, ref_mix / ref_mix.sum(), temperature=t)
+                note = None if est.converged else f"the EM prior estimate did not converge in {est.iterations} steps"
+                return check.with_priors(est, note)
+            return check
+        props = _to_numpy(reference, "reference")
+        if props.dtype.kind not in "biuf":
+            raise InputTypeError(f"reference must be a LogitFrame or numbers (proportions), got dtype {props.dtype}")
+        if props.shape != (k,):
+            raise ShapeError(f"reference proportions must have shape ({k},) for {k} classes, got {props.shape}")
+        return an.class_mix_check(counted(self, "the batch"), proportions=props, **options)
+
 
 def _decision_is_logit(estimator: Any) -> bool:
     est = estimator

@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
-import math
+import dataclasses
 from collections.abc import Iterator
 from typing import Any
 
@@ -21,11 +21,12 @@ from ..errors import (
     InputTypeError,
     LabelError,
     NonFiniteError,
-    ParameterError,
     ProbabilityError,
     ShapeError,
     describe_rows,
 )
+from ..parameters import check as check_parameter
+from ..parameters import get_range
 
 _ASSUME_VALID: contextvars.ContextVar[bool] = contextvars.ContextVar("assume_valid", default=False)
 
@@ -199,26 +200,19 @@ def check_probabilities(p: Any, atol: float | None = None, what: str = "probabil
 
 
 def check_temperature(temperature: Any) -> float:
-    """Return ``temperature`` as a positive finite float.
+    """Return ``temperature`` as a float in its accepted range (:data:`logitscope.parameters.RANGES`).
 
     Examples
     --------
     >>> check_temperature(2)
     2.0
     """
-    try:
-        t = float(temperature)
-    except (TypeError, ValueError) as exc:
-        raise InputTypeError(f"temperature must be a number, got {temperature!r}") from exc
-    if not math.isfinite(t) or t <= 0:
-        raise ParameterError(f"temperature must be positive and finite, got {temperature!r}")
-    return t
+    return float(check_parameter(temperature, "temperature"))
 
 
 def check_k(k: int, n_classes: int, what: str = "k") -> int:
-    """Return ``k`` if ``1 <= k <= n_classes``."""
-    if isinstance(k, bool) or not isinstance(k, int | np.integer):
-        raise InputTypeError(f"{what} must be an integer, got {k!r}")
-    if not 1 <= int(k) <= n_classes:
-        raise ParameterError(f"{what} must lie in [1, {n_classes}] for {n_classes} classes, got {k}")
-    return int(k)
+    """Return ``k`` if ``1 <= k <= n_classes`` (the range of ``k`` in :mod:`logitscope.parameters`)."""
+    rng = get_range("k")
+    if what != rng.label:
+        rng = dataclasses.replace(rng, label=what)
+    return int(rng.check(k, upper=n_classes, context=f"for {n_classes} classes"))
