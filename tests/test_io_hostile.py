@@ -153,3 +153,17 @@ def test_a_file_of_probabilities_under_logits_warns_naming_the_file(tmp_path):
     np.savez(tmp_path / "p.npz", logits=np.array([[0.2, 0.8], [0.9, 0.1]]))
     with pytest.warns(LooksLikeProbabilitiesWarning, match=r"p\.npz: every row .*from_probabilities"):
         LogitFrame.read(tmp_path / "p.npz")
+
+
+def test_a_damaged_page_of_a_written_parquet_file_is_found(tmp_path, batch):
+    # Parquet's page CRC (written by LogitFrame.write, checked on reading): one flipped bit in a stored logit
+    frame, z, _ = batch
+    path = tmp_path / "a.parquet"
+    frame.write(path)
+    raw = bytearray(path.read_bytes())
+    at = raw.find(np.float64(z[5, 1]).tobytes())
+    assert at > 0  # the value is stored as it is (no compression of random floats)
+    raw[at] ^= 0x01
+    path.write_bytes(bytes(raw))
+    with pytest.raises(FileFormatError, match=r"a\.parquet: not a readable Parquet file .*CRC"):
+        LogitFrame.read(path)

@@ -119,7 +119,7 @@ def write_frame(frame: LogitFrame, path: str | os.PathLike[str]) -> None:
         stored = json.dumps({"classes": list(frame.classes)}, ensure_ascii=False).encode()
         arrow = arrow.replace_schema_metadata({**(arrow.schema.metadata or {}), _KEY: stored})
         with atomic_write(target, "wb") as fh:
-            pq.write_table(arrow, fh)
+            pq.write_table(arrow, fh, write_page_checksum=True)  # a damaged page is found when read
     except (TypeError, ValueError, pa.ArrowException) as exc:  # pyarrow's conversion errors
         raise FileFormatError(f"{target}: the frame cannot be stored as Parquet ({exc})") from exc
 
@@ -242,10 +242,10 @@ def _read_parquet(source: Path) -> LogitFrame:
     from .frame import LogitFrame
 
     try:
-        arrow = pq.read_table(source)
+        arrow = pq.read_table(source, page_checksum_verification=True)
+        names = [str(c) for c in arrow.column_names]  # a name that is not UTF-8 fails here
     except Exception as exc:  # pyarrow raises several kinds
         raise FileFormatError(f"{source}: not a readable Parquet file ({exc})") from exc
-    names = [str(c) for c in arrow.column_names]
     if len(set(names)) != len(names):
         dup = next(c for c in names if names.count(c) > 1)
         raise FileFormatError(f"{source}: the column {dup!r} appears more than once")
