@@ -33,6 +33,8 @@ from logitscope.relabel_store import RelabelStore
 
 OURS = (LogitscopeError, InputTypeError)
 FUZZ = settings(max_examples=45, deadline=None, suppress_health_check=[HealthCheck.too_slow], derandomize=True)
+#: the same for a test run once per key or operation (every one of them gets its own examples)
+FUZZ_EACH = settings(FUZZ, max_examples=12)
 TIME_LIMIT = 20  # seconds per example; a reader that hangs fails here
 
 
@@ -138,11 +140,13 @@ def _odd_array(data: st.DataObject, n: int, k: int) -> np.ndarray:
     }[kind]()
 
 
-@FUZZ
+@pytest.mark.parametrize("first", NPZ_KEYS)
+@FUZZ_EACH
 @given(n=st.integers(1, 6), k=st.integers(2, 4), data=st.data())
-def test_npz_reader_fuzz(n: int, k: int, data: st.DataObject) -> None:
+def test_npz_reader_fuzz(first: str, n: int, k: int, data: st.DataObject) -> None:
     arrays = _valid_npz(n, k)
-    for _ in range(data.draw(st.integers(0, 3), label="mutations")):
+    arrays[first] = _odd_array(data, n, k)  # this key for sure, then a few mutations of any kind
+    for _ in range(data.draw(st.integers(0, 2), label="mutations")):
         op = data.draw(st.sampled_from(["drop", "replace", "rename", "add"]), label="op")
         key = data.draw(st.sampled_from(NPZ_KEYS), label="key")
         if op == "drop":
@@ -166,14 +170,14 @@ def test_npz_reader_fuzz(n: int, k: int, data: st.DataObject) -> None:
 CASTS = [pa.string(), pa.int64(), pa.float16(), pa.bool_(), pa.null()]
 
 
-def _mutate_table(table: pa.Table, data: st.DataObject) -> pa.Table:
+TABLE_OPS = ["drop", "rename", "cast", "nulls", "reorder", "metadata", "duplicate", "rows", "labels"]
+
+
+def _mutate_table(table: pa.Table, data: st.DataObject, op: str | None = None) -> pa.Table:
     names = table.column_names
     col = data.draw(st.sampled_from(names), label="column")
     i = names.index(col)
-    op = data.draw(
-        st.sampled_from(["drop", "rename", "cast", "nulls", "reorder", "metadata", "duplicate", "rows", "labels"]),
-        label="op",
-    )
+    op = op or data.draw(st.sampled_from(TABLE_OPS), label="op")
     n = table.num_rows
     if op == "drop" and len(names) > 1:
         return table.remove_column(i)
@@ -214,20 +218,38 @@ def _mutate_table(table: pa.Table, data: st.DataObject) -> pa.Table:
     return table
 
 
-@FUZZ
+def _check_label_classes(f: LogitFrame, table: pa.Table) -> None:
+    """Each sample's label names the class the file says: by name, or by index in the stored class order."""
+    column = table.column("label")
+    read = [f.classes[i] for i in f.labels.tolist()]
+    if pa.types.is_string(column.type) or pa.types.is_large_string(column.type):
+        assert read == column.to_pylist()
+        return
+    try:
+        stored = json.loads((table.schema.metadata or {})[b"logitscope"])["classes"]
+    except (KeyError, ValueError, TypeError, RecursionError):
+        stored = None
+    assert isinstance(stored, list), "index labels were read although the file stores no class order"
+    assert read == [stored[i] for i in column.to_pylist()]
+
+
+@pytest.mark.parametrize("first", TABLE_OPS)
+@FUZZ_EACH
 @given(n=st.integers(1, 6), k=st.integers(2, 4), data=st.data())
-def test_parquet_reader_fuzz(n: int, k: int, data: st.DataObject) -> None:
+def test_parquet_reader_fuzz(first: str, n: int, k: int, data: st.DataObject) -> None:
     arrays = _valid_npz(n, k)
     frame = LogitFrame(arrays["logits"], arrays["labels"], list(arrays["classes"]), arrays["ids"], texts=list(arrays["texts"]))
     with tempfile.TemporaryDirectory() as folder:
         path = Path(folder) / "batch.parquet"
         frame.write(path)
-        table = pq.read_table(path)
-        for _ in range(data.draw(st.integers(0, 3), label="mutations")):
+        table = _mutate_table(pq.read_table(path), data, first)
+        for _ in range(data.draw(st.integers(0, 2), label="mutations")):
             table = _mutate_table(table, data)
         pq.write_table(table, path, write_page_checksum=True)
         damaged = _flip_bytes(path, data)
         f = _read(path)
+        if f is not None and not damaged and "label" in table.column_names:
+            _check_label_classes(f, table)
         if f is not None and not damaged and f.n_samples == n and set(f.classes) == set(frame.classes):
             # columns are matched by name: each class keeps its own logits, whatever the column order
             for j, c in enumerate(frame.classes):
