@@ -75,7 +75,9 @@ def main() -> None:
     print(f"{'':50s} {'time':>9s} {'x floor':>8s} {'peak memory':>12s} {'x matrix':>9s}")
     for name, fn in cases:
         peak = peak_bytes(fn)
-        print(f"{name:50s} {times[name]:8.3f}s {times[name] / floor:8.2f} {peak / 2**20:10.0f}MB {peak / z.nbytes:9.2f}")
+        print(
+            f"{name:50s} {times[name]:8.3f}s {times[name] / floor:8.2f} {peak / 2**20:10.0f}MB {peak / z.nbytes:9.2f}"
+        )
     copied, shared = times[cases[2][0]], times[cases[3][0]]
     print(
         f"\nthe copy costs {copied - shared:.3f} s ({(copied - shared) / floor:.2f} floor passes, "

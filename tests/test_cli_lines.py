@@ -132,7 +132,15 @@ def test_warnings_are_one_line_each_on_stderr_of_a_real_process(tmp_path):
     # bound. Both warnings must be one line on stderr, no source line after them, and stdout pure JSON.
     p = np.array([[0.9, 0.1], [0.2, 0.8], [0.7, 0.3]])
     np.savez(tmp_path / "probs.npz", logits=p, labels=np.array([0, 1, 0]))
-    argv = [sys.executable, "-m", "logitscope.cli", "summary", str(tmp_path / "probs.npz"), "--json", "--fit-temperature"]
+    argv = [
+        sys.executable,
+        "-m",
+        "logitscope.cli",
+        "summary",
+        str(tmp_path / "probs.npz"),
+        "--json",
+        "--fit-temperature",
+    ]
     r = subprocess.run(argv, capture_output=True, text=True, timeout=300)
     assert r.returncode == 0, r.stderr
     lines = r.stderr.splitlines()

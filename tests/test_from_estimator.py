@@ -9,6 +9,7 @@ their decision function is no set of softmax logits and log(predict_proba) is us
 from __future__ import annotations
 
 import warnings
+from typing import Any
 
 import numpy as np
 import pandas as pd
@@ -30,7 +31,7 @@ def _data(name: str) -> tuple[np.ndarray, np.ndarray]:
     return StandardScaler().fit_transform(x), y
 
 
-def _model(kind: str):  # noqa: ANN202 - any scikit-learn classifier
+def _model(kind: str) -> Any:  # any scikit-learn classifier
     from sklearn.calibration import CalibratedClassifierCV
     from sklearn.discriminant_analysis import LinearDiscriminantAnalysis
     from sklearn.ensemble import HistGradientBoostingClassifier, RandomForestClassifier

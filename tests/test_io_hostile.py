@@ -78,10 +78,14 @@ def test_parquet_index_labels_need_the_stored_class_order(tmp_path, batch):
 
 
 def test_parquet_nulls_and_non_numbers_name_the_file_column_and_rows(tmp_path):
-    pd.DataFrame({"logit:a": [0.0, None, 1.0, None], "logit:b": [1.0, 0.0, 2.0, 0.5]}).to_parquet(tmp_path / "n.parquet")
+    pd.DataFrame({"logit:a": [0.0, None, 1.0, None], "logit:b": [1.0, 0.0, 2.0, 0.5]}).to_parquet(
+        tmp_path / "n.parquet"
+    )
     with pytest.raises(FileFormatError, match=r"n\.parquet: column 'logit:a' has missing values \(null\) at rows 1, 3"):
         LogitFrame.read(tmp_path / "n.parquet")
-    pq.write_table(pa.table({"logit:a": pa.array([None, None], pa.null()), "logit:b": [1.0, 0.0]}), tmp_path / "a.parquet")
+    pq.write_table(
+        pa.table({"logit:a": pa.array([None, None], pa.null()), "logit:b": [1.0, 0.0]}), tmp_path / "a.parquet"
+    )
     with pytest.raises(FileFormatError, match="column 'logit:a' must hold numbers, but holds null"):
         LogitFrame.read(tmp_path / "a.parquet")
     pd.DataFrame({"logit:a": ["1", "2"], "logit:b": [1.0, 0.0]}).to_parquet(tmp_path / "s.parquet")
@@ -95,7 +99,9 @@ def test_parquet_nulls_and_non_numbers_name_the_file_column_and_rows(tmp_path):
 @pytest.mark.parametrize("shape", [(3, 2), ()])
 def test_npz_meta_of_the_wrong_shape(tmp_path, shape):
     np.savez(tmp_path / "m.npz", logits=np.eye(3) * 2, **{"meta/desk": np.zeros(shape)})
-    with pytest.raises(FileFormatError, match=r"m\.npz: meta/desk must be 1-D .*\(3 samples\), got shape " + re.escape(str(shape))):
+    with pytest.raises(
+        FileFormatError, match=r"m\.npz: meta/desk must be 1-D .*\(3 samples\), got shape " + re.escape(str(shape))
+    ):
         LogitFrame.read(tmp_path / "m.npz")
     np.savez(tmp_path / "short.npz", logits=np.eye(3) * 2, **{"meta/desk": np.zeros(2)})
     with pytest.raises(FileFormatError, match="got shape"):
@@ -112,7 +118,7 @@ def test_npz_zero_d_strings_are_refused(tmp_path, key):
 def test_npz_member_that_is_not_an_array(tmp_path):
     with zipfile.ZipFile(tmp_path / "z.npz", "w") as zf:
         zf.writestr("logits.txt", "1,2\n3,4\n")
-    with pytest.raises(FileFormatError, match="'logits.txt' is not a numpy array"):
+    with pytest.raises(FileFormatError, match=r"'logits\.txt' is not a numpy array"):
         LogitFrame.read(tmp_path / "z.npz")
 
 

@@ -112,8 +112,29 @@ def _valid_npz(n: int, k: int) -> dict[str, np.ndarray]:
 
 def _odd_array(data: st.DataObject, n: int, k: int) -> np.ndarray:
     kind = data.draw(
-        st.sampled_from(["0-d", "1-D", "2-D", "3-D", "short", "long", "empty", "str", "bool", "complex", "uint64",
-                         "float16", "nan", "inf", "huge", "negative", "bytes", "datetime", "dup"]),  # fmt: skip
+        st.sampled_from(
+            [
+                "0-d",
+                "1-D",
+                "2-D",
+                "3-D",
+                "short",
+                "long",
+                "empty",
+                "str",
+                "bool",
+                "complex",
+                "uint64",
+                "float16",
+                "nan",
+                "inf",
+                "huge",
+                "negative",
+                "bytes",
+                "datetime",
+                "dup",
+            ]
+        ),
         label="array",
     )
     rng = np.random.default_rng(n + k)
@@ -160,7 +181,13 @@ def test_npz_reader_fuzz(first: str, n: int, k: int, data: st.DataObject) -> Non
         np.savez(path, **arrays)
         damaged = _flip_bytes(path, data)
         f = _read(path)
-        if f is not None and not damaged and "logits" in arrays and arrays["logits"].dtype.kind == "f" and arrays["logits"].ndim == 2:
+        if (
+            f is not None
+            and not damaged
+            and "logits" in arrays
+            and arrays["logits"].dtype.kind == "f"
+            and arrays["logits"].ndim == 2
+        ):
             # a frame read from a file holds the numbers stored in it
             np.testing.assert_array_equal(f.logits, arrays["logits"])
 
@@ -200,8 +227,17 @@ def _mutate_table(table: pa.Table, data: st.DataObject, op: str | None = None) -
         return table.select(list(order))
     if op == "metadata":
         meta = data.draw(
-            st.sampled_from([b"", b"{", b'{"classes": 5}', b'{"classes": ["a"]}', b"[" * 5000 + b"]" * 5000,
-                             b'{"classes": ["desk 1", "desk 0", "desk 2", "desk 3"]}', b"\xff\xfe"]),  # fmt: skip
+            st.sampled_from(
+                [
+                    b"",
+                    b"{",
+                    b'{"classes": 5}',
+                    b'{"classes": ["a"]}',
+                    b"[" * 5000 + b"]" * 5000,
+                    b'{"classes": ["desk 1", "desk 0", "desk 2", "desk 3"]}',
+                    b"\xff\xfe",
+                ]
+            ),
             label="metadata",
         )
         return table.replace_schema_metadata({b"logitscope": meta})
@@ -238,7 +274,9 @@ def _check_label_classes(f: LogitFrame, table: pa.Table) -> None:
 @given(n=st.integers(1, 6), k=st.integers(2, 4), data=st.data())
 def test_parquet_reader_fuzz(first: str, n: int, k: int, data: st.DataObject) -> None:
     arrays = _valid_npz(n, k)
-    frame = LogitFrame(arrays["logits"], arrays["labels"], list(arrays["classes"]), arrays["ids"], texts=list(arrays["texts"]))
+    frame = LogitFrame(
+        arrays["logits"], arrays["labels"], list(arrays["classes"]), arrays["ids"], texts=list(arrays["texts"])
+    )
     with tempfile.TemporaryDirectory() as folder:
         path = Path(folder) / "batch.parquet"
         frame.write(path)
@@ -260,7 +298,11 @@ def test_parquet_reader_fuzz(first: str, n: int, k: int, data: st.DataObject) ->
 # --------------------------------------------------------------------------- relabel JSON
 
 JSON_VALUES = st.recursive(
-    st.none() | st.booleans() | st.integers() | st.floats() | st.text(max_size=8)
+    st.none()
+    | st.booleans()
+    | st.integers()
+    | st.floats()
+    | st.text(max_size=8)
     | st.sampled_from(["\ud800", "=cmd()", "\r\n", "x" * 300]),
     lambda inner: st.lists(inner, max_size=3) | st.dictionaries(st.text(max_size=5), inner, max_size=3),
     max_leaves=8,
@@ -318,8 +360,9 @@ def test_relabel_reader_fuzz(data: st.DataObject) -> None:
                 doc = _replace(doc, where, json.loads("[" * 50 + "1" + "]" * 50))
         text = json.dumps(doc, ensure_ascii=data.draw(st.booleans(), label="ascii"))
         text = data.draw(
-            st.sampled_from([text, text, text[: len(text) // 2], text.replace("1", "9" * 5000, 1),
-                             "[" * 100_000 + "]" * 100_000]),  # fmt: skip
+            st.sampled_from(
+                [text, text, text[: len(text) // 2], text.replace("1", "9" * 5000, 1), "[" * 100_000 + "]" * 100_000]
+            ),
             label="text",
         )
         path.write_bytes(text.encode("utf-8", "surrogatepass"))
@@ -350,7 +393,9 @@ def test_fuzz_starting_points_are_valid(tmp_path: Path, maker: str) -> None:
         np.savez(tmp_path / "a.npz", **arrays)
         f = LogitFrame.read(tmp_path / "a.npz")
     else:
-        LogitFrame(arrays["logits"], arrays["labels"], list(arrays["classes"]), arrays["ids"]).write(tmp_path / "a.parquet")
+        LogitFrame(arrays["logits"], arrays["labels"], list(arrays["classes"]), arrays["ids"]).write(
+            tmp_path / "a.parquet"
+        )
         f = LogitFrame.read(tmp_path / "a.parquet")
     np.testing.assert_array_equal(f.logits, arrays["logits"])
     np.testing.assert_array_equal(f.labels, arrays["labels"])

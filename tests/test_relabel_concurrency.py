@@ -59,9 +59,7 @@ def _writer(path: str, who: str, n: int, pace: bool, ack: str, seed: int) -> Non
 
 def _run_writers(path: Path, n_procs: int, n: int, pace: bool) -> list[Path]:
     acks = [path.parent / f"ack-{w}.txt" for w in range(n_procs)]
-    procs = [
-        CTX.Process(target=_writer, args=(str(path), f"w{w}", n, pace, str(acks[w]), w)) for w in range(n_procs)
-    ]
+    procs = [CTX.Process(target=_writer, args=(str(path), f"w{w}", n, pace, str(acks[w]), w)) for w in range(n_procs)]
     for p in procs:
         p.start()
     for p in procs:
@@ -139,7 +137,9 @@ def _fast_writer(path: str, who: str, ack: str) -> None:
 def test_kill_minus_nine_at_random_moments(tmp_path: Path) -> None:
     path = tmp_path / "marks.json"
     # a list of some size, so a write takes a few milliseconds and kills land inside writes too
-    RelabelStore(path).add_many([{"id": f"old-{i}", "suggested_label": "billing", "note": "n" * 60} for i in range(1500)])
+    RelabelStore(path).add_many(
+        [{"id": f"old-{i}", "suggested_label": "billing", "note": "n" * 60} for i in range(1500)]
+    )
     rng = random.Random(8)
     acked: set[str] = {f"old-{i}" for i in range(1500)}
     leftovers_seen = 0

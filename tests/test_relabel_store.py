@@ -270,8 +270,10 @@ GOOD = {"id": "T-1", "row": 0, "given_label": "billing", "suggested_label": "har
         ("[" * 200_000 + "]" * 200_000, "nested too deeply"),  # the json module's parser recurses
         ('{"format": "logitscope-relabel", "version": ' + "9" * 5000 + ', "marks": []}', "cannot be read"),
         ('{"format": "logitscope-relabel", "version": 1e999, "marks": []}', "cannot be read"),
-        ('{"format": "logitscope-relabel", "version": 1, "marks": [{"id": NaN, "suggested_label": "a"}]}',
-         "cannot be read"),  # fmt: skip
+        (
+            '{"format": "logitscope-relabel", "version": 1, "marks": [{"id": NaN, "suggested_label": "a"}]}',
+            "cannot be read",
+        ),
         (_doc([{**GOOD, "row": "seven"}]), "mark 0 has the row 'seven'"),
         (_doc([{**GOOD, "row": 2.5}]), "mark 0 has the row 2.5"),
         (_doc([{**GOOD, "row": -1}]), "mark 0 has the row -1"),
@@ -311,7 +313,7 @@ def test_marks_with_bad_text_or_rows_are_refused(tmp_path: Path) -> None:
 
 HOSTILE = [
     "ok\r=SUM(1+1)",
-    "line one\n=HYPERLINK(\"http://x\")",
+    'line one\n=HYPERLINK("http://x")',
     "=cmd|' /C calc'!A0",
     "+1+2",
     "-1+cmd",

@@ -58,7 +58,9 @@ def _sequence_of_items(value: Any, what: str) -> list[Any]:
             "a string would be read as a list of its characters"
         )
     if isinstance(value, set | frozenset | dict):
-        raise InputTypeError(f"{what} must be an ordered sequence (a list, tuple or array), got a {type(value).__name__}")
+        raise InputTypeError(
+            f"{what} must be an ordered sequence (a list, tuple or array), got a {type(value).__name__}"
+        )
     if hasattr(value, "ndim") and getattr(value, "ndim", 1) != 1:
         raise InputTypeError(f"{what} must be one-dimensional (a sequence of items), got shape {value.shape}")
     try:
@@ -236,7 +238,7 @@ class LogitFrame:
         n, k = z.shape
         if source == "logits" and _looks_like_probabilities(z):
             warnings.warn(
-                f"every row of these logits is non-negative and sums to 1: they look like probabilities. "
+                "every row of these logits is non-negative and sums to 1: they look like probabilities. "
                 "Pass probabilities to LogitFrame.from_probabilities, which takes their logarithm; "
                 "as logits they give other probabilities, NLL and calibration",
                 LooksLikeProbabilitiesWarning,
@@ -306,7 +308,9 @@ class LogitFrame:
         if arr.dtype.kind == "f":
             nan = np.flatnonzero(np.isnan(arr))
             if nan.size:
-                raise NonFiniteError(f"ids must not be NaN (every sample needs its own id); NaN at {describe_rows(nan)}")
+                raise NonFiniteError(
+                    f"ids must not be NaN (every sample needs its own id); NaN at {describe_rows(nan)}"
+                )
         if arr.dtype.kind == "O":
             arr = arr.astype(str)
         arr = np.array(arr, copy=True)

@@ -214,7 +214,12 @@ def _read_npz(source: Path) -> LogitFrame:
     for k in ("texts", "image_paths"):
         if k in payload:
             payload[k] = _as_names(payload[k])
-    common: dict[str, Any] = {"labels": arrays.get("labels"), "classes": classes, "ids": arrays.get("ids"), "meta": meta}
+    common: dict[str, Any] = {
+        "labels": arrays.get("labels"),
+        "classes": classes,
+        "ids": arrays.get("ids"),
+        "meta": meta,
+    }
     if "logits" in arrays:
         return LogitFrame(matrix, **common, **payload, copy=False)
     return LogitFrame.from_probabilities(matrix, **common, **payload, copy=False)
@@ -280,8 +285,10 @@ def _read_parquet(source: Path) -> LogitFrame:
     labels = None
     if "label" in names:
         label = arrow.column("label")
-        as_names = pa.types.is_string(label.type) or pa.types.is_large_string(label.type) or (
-            pa.types.is_dictionary(label.type) and pa.types.is_string(label.type.value_type)
+        as_names = (
+            pa.types.is_string(label.type)
+            or pa.types.is_large_string(label.type)
+            or (pa.types.is_dictionary(label.type) and pa.types.is_string(label.type.value_type))
         )
         if not as_names and stored is None:
             raise FileFormatError(
