@@ -125,6 +125,12 @@ def test_strings_are_not_taken_as_lists_of_characters(kwargs, needle):
         LogitFrame(np.zeros((5, 5)), **kwargs)
 
 
+def test_numeric_class_names_are_still_names():
+    # scikit-learn's classes_ may be integers or floats: they become names, as str() writes them
+    assert LogitFrame(np.array([[0.0, 1.0, 2.0]]), classes=np.array([0.0, 1.0, 2.5])).classes == ("0.0", "1.0", "2.5")
+    assert LogitFrame(np.array([[0.0, 1.0]]), classes=[np.int64(3), 7]).classes == ("3", "7")
+
+
 def test_integer_image_paths_name_the_rows():
     with pytest.raises(InputTypeError, match=r"image_paths must be file paths.*rows 1, 3 \(first int 7\)"):
         LogitFrame(np.zeros((4, 2)), image_paths=["a.png", 7, "c.png", 8])

@@ -245,7 +245,7 @@ def test_csv_export_defuses_spreadsheet_formulas(tmp_path):
     from logitscope import LogitFrame
     from logitscope.relabel_store import RelabelStore
 
-    frame = LogitFrame(np.eye(3), labels=[0, 1, 2], classes=["a", "b", "c"], ids=["=cmd()", "-2", "ok"])
+    frame = LogitFrame(np.eye(3) * 3, labels=[0, 1, 2], classes=["a", "b", "c"], ids=["=cmd()", "-2", "ok"])
     store = RelabelStore(tmp_path / "marks.json", frame=frame)
     store.add("=cmd()", suggested_label="b", note="@SUM(A1)")
     store.add("-2", suggested_label="c", note="fine")

@@ -262,7 +262,7 @@ class LogitFrame:
             default = tuple(str(i) for i in range(k))
             return _classes_from_labels(labels, default) if labels is not None else default
         items = _sequence_of_items(classes, "classes")
-        odd = [i for i, c in enumerate(items) if not isinstance(c, str | int | np.integer | np.str_)]
+        odd = [i for i, c in enumerate(items) if not isinstance(c, str | int | float | np.generic)]
         if odd:
             raise InputTypeError(
                 f"classes must be names (strings), one per logit column; item {odd[0]} is a "
