@@ -21,6 +21,7 @@ from ..errors import (
     InputTypeError,
     LabelError,
     NonFiniteError,
+    ParameterError,
     ProbabilityError,
     ShapeError,
     describe_rows,
@@ -162,14 +163,13 @@ def check_labels(y: Any, n_samples: int, n_classes: int, what: str = "labels") -
             f"{what} must be integer class indices, got dtype {arr.dtype}; "
             "pass class names through LogitFrame(labels=..., classes=...)"
         )
-    out = arr.astype(np.int64, copy=False)
-    bad = np.flatnonzero((out < 0) | (out >= n_classes))
+    bad = np.flatnonzero((arr < 0) | (arr >= n_classes))  # on the values as given: uint64 or 1e30 do not wrap
     if bad.size:
         raise LabelError(
             f"{what} must lie in [0, {n_classes}) for {n_classes} classes; "
-            f"out of range at {describe_rows(bad)} (values {out[bad[:5]].tolist()})"
+            f"out of range at {describe_rows(bad)} (values {arr[bad[:5]].tolist()})"
         )
-    return out
+    return arr.astype(np.int64, copy=False)
 
 
 def check_probabilities(p: Any, atol: float | None = None, what: str = "probabilities") -> np.ndarray:
@@ -183,6 +183,13 @@ def check_probabilities(p: Any, atol: float | None = None, what: str = "probabil
     >>> check_probabilities([[0.25, 0.75], [1.0, 0.0]]).shape
     (2, 2)
     """
+    if atol is not None:
+        try:
+            atol = float(atol)
+        except (TypeError, ValueError) as exc:
+            raise InputTypeError(f"atol must be a number, got {atol!r}") from exc
+        if not 0.0 <= atol < 1.0:  # NaN fails too
+            raise ParameterError(f"atol, the tolerance on each row's sum, must lie in [0, 1), got {atol!r}")
     arr = check_logits(p, what=what)
     if atol is None:
         atol = 1e-6 if arr.dtype == np.float64 else 1e-3

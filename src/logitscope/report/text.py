@@ -14,14 +14,13 @@ from typing import Any
 
 import numpy as np
 
-__all__ = ["HOVER_LIMIT", "fmt_value", "hover", "raw_value", "short", "temp_label"]
+from ..text import HOVER_LIMIT, hover, shorten
 
-#: Most characters of a text put in a hover title; a longer one is cut and its length said.
-HOVER_LIMIT = 2000
+__all__ = ["HOVER_LIMIT", "fmt_value", "hover", "raw_value", "short", "temp_label"]
 
 
 def short(text: Any, limit: int = 40) -> str:
-    """``text`` cut to at most ``limit`` characters (an ellipsis marks the cut).
+    """``text`` cut to at most ``limit`` characters (an ellipsis marks the cut); see :func:`logitscope.text.shorten`.
 
     Examples
     --------
@@ -30,20 +29,7 @@ def short(text: Any, limit: int = 40) -> str:
     >>> short("seven")
     'seven'
     """
-    s = str(text)
-    return s if len(s) <= limit else s[: max(limit - 1, 1)] + "…"
-
-
-def hover(text: Any) -> str:
-    """The text for a ``title`` attribute: all of it, up to :data:`HOVER_LIMIT` characters.
-
-    Examples
-    --------
-    >>> hover("x" * 2500).endswith("… (2,500 characters in all)")
-    True
-    """
-    s = str(text)
-    return s if len(s) <= HOVER_LIMIT else s[:HOVER_LIMIT] + f"… ({len(s):,} characters in all)"
+    return shorten(text, max(limit, 2))
 
 
 def fmt_value(v: Any, digits: int = 4, pct: bool = False) -> str:
