@@ -1,4 +1,4 @@
-"""Command line: ``logitscope summary | demo-data | report``.
+"""Command line: ``logitscope summary | demo-data | report | demo``.
 
 Errors in the input end with exit code 2 and one readable line on stderr.
 Progress of steps longer than a second goes to stderr, never to stdout.
@@ -146,7 +146,26 @@ def _parser() -> argparse.ArgumentParser:
     g2.add_argument("--target-accuracy", type=float)
     g2.add_argument("--costs", type=_parse_costs, metavar="ERROR,REVIEW")
     r.add_argument("--title")
+
+    _add_demo_parser(sub)
     return p
+
+
+def _add_demo_parser(sub: Any) -> None:
+    from .launch import DEFAULT_FOLDER, DEMO_NOTEBOOKS
+
+    j = sub.add_parser(
+        "demo",
+        help="open a demo notebook in JupyterLab (a working copy, so the bundled one stays clean)",
+        description="Copy the example notebooks into a working folder (an edited copy is kept) and start "
+        "JupyterLab on one of them; adds --allow-root when run as root.",
+    )
+    j.add_argument("name", nargs="?", choices=list(DEMO_NOTEBOOKS), default="mailroom", help="which demo to open")
+    j.add_argument("--dir", default=DEFAULT_FOLDER, help=f"working folder for the copies (default ./{DEFAULT_FOLDER})")
+    j.add_argument("--port", type=int, help="port for JupyterLab (default: its own, 8888 or the next free one)")
+    j.add_argument("--no-browser", action="store_true", help="do not open a web browser; open the printed address")
+    j.add_argument("--reset", action="store_true", help="replace edited copies (each is kept as a backup beside it)")
+    j.add_argument("--print-command", action="store_true", help="prepare the copies and print the command, not run it")
 
 
 def _cmd_summary(args: argparse.Namespace) -> int:
@@ -204,10 +223,19 @@ def _cmd_report(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_launch(args: argparse.Namespace) -> int:
+    from .launch import run_demo
+
+    return run_demo(
+        args.name, args.dir, port=args.port, no_browser=args.no_browser, reset=args.reset,
+        print_command=args.print_command,
+    )  # fmt: skip
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``logitscope`` command."""
     args = _parser().parse_args(argv)
-    handlers = {"summary": _cmd_summary, "demo-data": _cmd_demo, "report": _cmd_report}
+    handlers = {"summary": _cmd_summary, "demo-data": _cmd_demo, "report": _cmd_report, "demo": _cmd_launch}
     try:
         return handlers[args.command](args)
     except (LogitscopeError, TypeError) as exc:
