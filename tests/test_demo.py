@@ -27,6 +27,7 @@ import signal
 import socket
 import subprocess
 import sys
+import sysconfig
 import time
 import tomllib
 import urllib.error
@@ -63,8 +64,11 @@ def readme_demo_command() -> list[str]:
 
 
 def _cli_argv(words: list[str]) -> list[str]:
-    """``logitscope ...`` as this Python runs it (the script is ``logitscope.cli:main``)."""
+    """``logitscope ...``: the installed script of this Python, else ``python -m logitscope.cli`` (the same main)."""
     assert words[0] == "logitscope"
+    script = Path(sysconfig.get_path("scripts")) / ("logitscope.exe" if os.name == "nt" else "logitscope")
+    if script.is_file():
+        return [str(script), *words[1:]]
     return [sys.executable, "-m", "logitscope.cli", *words[1:]]
 
 
