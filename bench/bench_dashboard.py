@@ -17,9 +17,12 @@ measures, in the page (``performance.now()``):
   linked view shows the new selection (scatter image, histogram bars, heat-map
   note, gallery tiles, selection bar), median over ``--brushes`` brushes; the
   drag moves the mouse every 20 ms, as a hand does;
+- update: from pressing Shift+Enter on ``dash.update(next_epoch)`` (the same
+  parcels scored by a later checkpoint, selection held) until the scatter
+  and the histogram show the new frame and the kernel is idle;
 - render with ``--k-large`` classes (heat map shows the top classes plus "other").
 
-Targets: render < 3 s and brush median < 150 ms at N = 100,000, K = 100.
+Targets: render < 3 s, brush median < 150 ms and update < 1 s at N = 100,000, K = 100.
 
 Run: ``python bench/bench_dashboard.py`` (about two minutes; needs
 /usr/bin/chromium and playwright). ``--n``, ``--k``, ``--k-large``,
@@ -44,6 +47,7 @@ sys.path.insert(0, str(REPO))
 
 TARGET_RENDER_S = 3.0
 TARGET_BRUSH_MS = 150.0
+TARGET_UPDATE_S = 1.0
 
 
 def parcel_camera_frame(n: int = 100_000, k: int = 100, seed: int = 2024):  # type: ignore[no-untyped-def]
@@ -126,6 +130,16 @@ UPDATED_JS = (
     " return performance.now() - window.__lsMouseUp; }"
 )
 
+# JS: the scatter and the histogram show another frame and the cell has finished; returns performance.now().
+NEW_FRAME_JS = (
+    "([cell, before, run]) => { const now = (" + SIGNATURES_JS.strip() + ")(cell);"
+    " if (now[0] === before[0] || now[1] === before[1]) return false;"
+    " const c = document.querySelectorAll('.jp-Notebook .jp-Cell')[run];"
+    " const p = c ? c.querySelector('.jp-InputPrompt') : null;"
+    " if (!p || p.textContent.includes('*') || !/[0-9]/.test(p.textContent)) return false;"
+    " return performance.now(); }"
+)
+
 MOUSEUP_JS = "() => { window.addEventListener('mouseup', () => { window.__lsMouseUp = performance.now(); }, true); }"
 
 
@@ -185,6 +199,20 @@ def _brushes(page, index: int, count: int) -> list[float]:  # type: ignore[no-un
     return times
 
 
+def _update(page, run: int, dash: int) -> float:  # type: ignore[no-untyped-def]
+    """Seconds from Shift+Enter on the update cell ``run`` until the dashboard of cell ``dash`` shows the frame."""
+    from tests.browser.harness import cell
+
+    before = page.evaluate(SIGNATURES_JS, dash)
+    editor = cell(page, run).locator(".jp-InputArea-editor").first
+    editor.scroll_into_view_if_needed()
+    editor.click()
+    t0 = page.evaluate("performance.now()")
+    page.keyboard.press("Shift+Enter")
+    t1 = page.wait_for_function(NEW_FRAME_JS, arg=[dash, before, run], polling="raf", timeout=120_000)
+    return (float(t1.json_value()) - float(t0)) / 1000.0
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--n", type=int, default=100_000)
@@ -225,6 +253,11 @@ def main(argv: list[str] | None = None) -> int:
         "dash",
         "print(json.dumps({'python_s': python_s, 'cells': dash.confusion.n_positions ** 2,"
         " 'selected': int(dash.selected.size)}))",
+        f"later = parcel_camera_frame({args.n}, {args.k}, seed=2025)\n"
+        "t0 = time.perf_counter()\n"
+        "dash.update(later, 'next epoch')\n"
+        "update_python_s = time.perf_counter() - t0",
+        "print(json.dumps({'update_python_s': update_python_s, 'selected': int(dash.selected.size)}))",
         f"big = parcel_camera_frame({args.n}, {args.k_large}, seed=7)",
         "t0 = time.perf_counter()\n"
         "dash_big = logitscope.explore(big, relabel_path='marks-big.json')\n"
@@ -253,11 +286,16 @@ def main(argv: list[str] | None = None) -> int:
                 run_cell(page, 2)
                 after = json.loads(read_cell_text(page, 2))
 
-                run_cell(page, 3, timeout_ms=600_000)
+                update_s = _update(page, 3, 1)
+                run_cell(page, 4)
+                info_update = json.loads(read_cell_text(page, 4))
+                page.screenshot(path=str(shots / "bench-dashboard-updated.png"))
+
+                run_cell(page, 5, timeout_ms=600_000)
                 cells_big = min(args.k_large, 30) + (1 if args.k_large > 30 else 0)
-                render_big_s = _render(page, 4, cells_big**2)
-                run_cell(page, 5)
-                info_big = json.loads(read_cell_text(page, 5))
+                render_big_s = _render(page, 6, cells_big**2)
+                run_cell(page, 7)
+                info_big = json.loads(read_cell_text(page, 7))
                 page.screenshot(path=str(shots / "bench-dashboard-k-large.png"))
             finally:
                 browser.close()
@@ -274,6 +312,8 @@ def main(argv: list[str] | None = None) -> int:
         (f"brush to all views updated, median of {len(brush_ms)} (ms)", median, TARGET_BRUSH_MS),
         ("  fastest brush (ms)", min(brush_ms) if brush_ms else float("nan"), None),
         ("  slowest brush (ms)", max(brush_ms) if brush_ms else float("nan"), None),
+        ("update to a new frame, Shift+Enter to views redrawn (s)", update_s, TARGET_UPDATE_S),
+        ("  of which Python shows the new frame (s)", info_update["update_python_s"], None),
         (f"render with K = {args.k_large:,} (s)", render_big_s, TARGET_RENDER_S),
         ("  of which Python builds the dashboard (s)", info_big["python_s"], None),
     ]
@@ -282,7 +322,7 @@ def main(argv: list[str] | None = None) -> int:
         tgt = "" if target is None else f"< {target:g}"
         print(f"{name:48s} {value:10.3f} {tgt:>10s}  {verdict}")
     print(f"brush times (ms): {', '.join(f'{v:.0f}' for v in brush_ms)}")
-    print(f"last selection after the brushes: {after['selected']:,} rows")
+    print(f"last selection after the brushes: {after['selected']:,} rows; after the update {info_update['selected']:,}")
     return 0
 
 

@@ -36,8 +36,11 @@ def test_signature_is_explicit_and_covers_the_dashboard() -> None:
 
 def test_options_reach_the_dashboard(mailroom: LogitFrame, tmp_path: Path) -> None:
     state = SharedState(mailroom.n_samples)
-    dash = logitscope.explore(mailroom, relabel_path=tmp_path / "marks.json", max_classes=4, state=state)
-    assert isinstance(dash, Dashboard) and dash.state is state
+    dash = logitscope.explore(
+        mailroom, relabel_path=tmp_path / "marks.json", max_classes=4, state=state, label="epoch 3", keep_frames=2
+    )
+    assert isinstance(dash, Dashboard) and dash.state is state and dash.keep_frames == 2
+    assert dash.history.shape[0] == 1 and "epoch 3" in dash.history.to_string()
     assert dash.queue.path == str((tmp_path / "marks.json").resolve())
     # four classes on their own plus "other": the four with the most errors in scikit-learn's matrix
     reference = sk_confusion_matrix(mailroom.labels, mailroom.logits.argmax(axis=1), labels=range(10))
@@ -66,5 +69,7 @@ def test_mistakes_fail_clearly(mailroom: LogitFrame, tmp_path: Path) -> None:
         logitscope.explore(np.zeros((3, 2)))  # type: ignore[arg-type]
     with pytest.raises(ParameterError, match="max_classes must be at least 1"):
         logitscope.explore(mailroom, relabel_path=tmp_path / "m.json", max_classes=0)
+    with pytest.raises(ParameterError, match="keep_frames must be a positive integer"):
+        logitscope.explore(mailroom, relabel_path=tmp_path / "m.json", keep_frames=0)
     with pytest.raises(ParameterError, match="1797"):
         logitscope.explore(mailroom, relabel_path=tmp_path / "m.json", state=SharedState(10))

@@ -20,6 +20,7 @@ import logitscope
 from logitscope import LogitFrame, LogitscopeError, ParameterError
 from logitscope.analysis import CAUTION
 from logitscope.analysis.split import random_split
+from logitscope.findings import Binning
 from logitscope.widgets.calibration_panel import CalibrationPanel
 from logitscope.widgets.reliability import ReliabilityDiagram
 from logitscope.widgets.state import SharedState
@@ -53,9 +54,9 @@ def _scipy_temperature(z: np.ndarray, y: np.ndarray) -> float:
     return math.exp(res.x)
 
 
-def _click(mark_owner: ReliabilityDiagram, rect_index: int) -> None:
-    """What bqplot sends when rectangle ``rect_index`` of the accuracy bars is clicked."""
-    mark_owner._on_click(mark_owner.bars, {"event": "element_click", "data": {"index": rect_index}})
+def _click(mark_owner: ReliabilityDiagram, dot_index: int) -> None:
+    """What bqplot sends when dot ``dot_index`` of the diagram (one per non-empty bin) is clicked."""
+    mark_owner._on_click(mark_owner.dots, {"event": "element_click", "data": {"index": dot_index}})
 
 
 # --------------------------------------------------------------------------- reliability diagram
@@ -70,20 +71,23 @@ def test_diagram_bins_and_numbers_match_pandas_sklearn_torchmetrics(mailroom: Lo
         p = _probs(mailroom, t)
         conf, ok = p.max(axis=1), p.argmax(axis=1) == mailroom.labels
         ref_bin = _pandas_bin(conf)
-        assert np.array_equal(view.bins.bin_of, ref_bin)  # pandas.cut
-        assert np.array_equal(view.bins.count, np.bincount(ref_bin, minlength=15))
-        # drawn rectangles: one per non-empty bin, top at the bin's accuracy (pandas groupby mean)
+        bins = view.finding.bins
+        assert np.array_equal(bins.bin_of, ref_bin)  # pandas.cut
+        assert np.array_equal(bins.count, np.bincount(ref_bin, minlength=15))
+        # drawn dots: one per non-empty bin, at (mean confidence, accuracy) (pandas groupby mean)
         acc = pd.Series(ok.astype(float)).groupby(ref_bin).mean()
-        assert np.allclose(np.asarray(view.bars.y)[:, 1], acc.to_numpy())
+        mean_conf = pd.Series(conf).groupby(ref_bin).mean()
+        assert np.allclose(np.asarray(view.dots.y), acc.to_numpy())
+        assert np.allclose(np.asarray(view.dots.x), mean_conf.to_numpy())
         assert np.asarray(view.count_bars.y)[:, 1].tolist() == np.bincount(ref_bin)[acc.index].tolist()
-        n = view.numbers
-        assert n["nll"] == pytest.approx(log_loss(mailroom.labels, p), rel=1e-7)  # sklearn
-        assert n["brier"] == pytest.approx(brier_score_loss(mailroom.labels, p, labels=range(10)), rel=1e-7)
+        n = view.finding
+        assert n.nll == pytest.approx(log_loss(mailroom.labels, p), rel=1e-7)  # sklearn
+        assert n.brier == pytest.approx(brier_score_loss(mailroom.labels, p, labels=range(10)), rel=1e-7)
         ece = tm.multiclass_calibration_error(
             torch.from_numpy(p), torch.from_numpy(np.array(mailroom.labels)), num_classes=10, n_bins=15, norm="l1"
         )
-        assert n["ece"] == pytest.approx(float(ece), abs=1e-5)  # torchmetrics
-        assert f"{n['ece']:.4f}" in view.numbers_html.value
+        assert n.ece == pytest.approx(float(ece), abs=1e-5)  # torchmetrics
+        assert f"{n.ece:.4f}" in view.numbers_html.value
 
 
 def test_clicking_a_bin_selects_its_samples_and_a_second_click_clears(mailroom: LogitFrame) -> None:
@@ -95,9 +99,12 @@ def test_clicking_a_bin_selects_its_samples_and_a_second_click_clears(mailroom: 
     b = int(drawn[3])
     assert view.selected_bin == b
     assert np.array_equal(state.rows, np.flatnonzero(ref_bin == b))
-    assert state.origin == "reliability"
+    assert state.origin_name == "reliability diagram"
     assert view.selected_bars.visible is False  # no feedback of its own selection
-    assert view.bars.fill_colors[3] != view.bars.fill_colors[0]  # the clicked bin is highlighted
+    assert view.dots.colors[3] != view.dots.colors[0]  # the clicked bin is highlighted
+    # the note names the bin by its confidence range (pandas.cut edges of Guo et al. 2017's bins)
+    lo, hi = b / 15, (b + 1) / 15
+    assert f"confidence {lo:.2f}–{hi:.2f} selected" in view.note.value
     _click(view, 3)
     assert state.rows.size == 0 and view.selected_bin is None
     with pytest.raises(ParameterError, match="bin must lie"):
@@ -113,34 +120,63 @@ def test_another_views_selection_is_counted_per_bin(mailroom: LogitFrame) -> Non
     per_bin = np.bincount(ref_bin[chosen], minlength=15)[np.unique(ref_bin)]
     assert view.selected_bars.visible is True
     assert np.asarray(view.selected_bars.y)[:, 1].tolist() == per_bin.tolist()
-    assert f"{chosen.size:,} of these samples selected by scatter" in view.note.value
+    assert f"{chosen.size:,} of these samples selected" in view.note.value
     _click(view, 0)  # a click replaces the other view's selection
-    assert state.origin == "reliability" and view.selected_bars.visible is False
+    assert state.origin_name == "reliability diagram" and view.selected_bars.visible is False
 
 
 def test_equal_mass_bins_and_a_row_subset(mailroom: LogitFrame) -> None:
     rows = random_split(mailroom.n_samples, 0.4, seed=2).held_out
     view = ReliabilityDiagram(mailroom, rows=rows, n_bins=10, strategy="quantile")
-    assert view.bins.count.sum() == rows.size
-    assert view.bins.count.max() - view.bins.count.min() <= 1  # equal mass, up to one sample
+    assert view.finding.bins.count.sum() == rows.size
+    assert view.finding.bins.count.max() - view.finding.bins.count.min() <= 1  # equal mass, up to one sample
     p = _probs(mailroom, 1.0, rows)
-    assert view.numbers["nll"] == pytest.approx(log_loss(mailroom.labels[rows], p), rel=1e-7)  # sklearn
+    assert view.finding.nll == pytest.approx(log_loss(mailroom.labels[rows], p), rel=1e-7)  # sklearn
     _click(view, 0)
     conf = p.max(axis=1)
     picked = view.state.rows
     assert np.all(np.isin(picked, rows))
     # the lowest-confidence bin holds the samples of the subset with the smallest confidences
     assert np.sort(conf)[: picked.size].max() == pytest.approx(_probs(mailroom, 1.0)[picked].max(axis=1).max())
-    view.strategy = "uniform"
+    view.state.binning = Binning(10, "uniform")
     assert view._strategy_buttons.value == "equal width"
     view._bins_slider.value = 20
-    assert view.n_bins == 20 and view.bins.count.size == 20
+    assert view.binning.n_bins == 20 and view.finding.bins.count.size == 20
+
+
+def test_two_diagrams_on_one_state_keep_their_own_selections(mailroom: LogitFrame) -> None:
+    # issue: two views of one kind took each other's selection for their own ("bin None")
+    state = SharedState(mailroom.n_samples)
+    split = random_split(mailroom.n_samples, 0.5, seed=1)
+    fit = ReliabilityDiagram(mailroom, state, rows=split.fit)
+    held = ReliabilityDiagram(mailroom, state, rows=split.held_out)
+    assert fit.origin != held.origin and fit.name == held.name == "reliability diagram"
+    _click(fit, 2)
+    assert fit.owns_selection and not held.owns_selection
+    assert held.selected_bars.visible and "None" not in held.note.value
+    assert "None" not in fit.note.value and "confidence" in fit.note.value
+    _click(held, 1)
+    assert held.owns_selection and fit.selected_bin is None and fit.selected_bars.visible
+
+
+@pytest.mark.parametrize("n_bins", [1, 2, 50, 100])
+def test_every_accepted_number_of_bins_is_kept(mailroom: LogitFrame, n_bins: int) -> None:
+    # issue: n_bins=50 became 40 and n_bins=2 became 3 (the slider's bounds clamped them)
+    view = ReliabilityDiagram(mailroom, n_bins=n_bins)
+    assert view.binning.n_bins == n_bins == view.finding.bins.count.size == view._bins_slider.value
+    assert (view._bins_slider.min, view._bins_slider.max) == Binning.N_BINS_RANGE
+
+
+@pytest.mark.parametrize("n_bins", [0, 101, 2.5, True])
+def test_a_number_of_bins_outside_the_range_is_refused(mailroom: LogitFrame, n_bins: object) -> None:
+    with pytest.raises(ParameterError, match="n_bins must be an integer from 1 to 100"):
+        ReliabilityDiagram(mailroom, n_bins=n_bins)  # type: ignore[arg-type]
 
 
 def test_diagram_without_labels_says_so() -> None:
     frame = logitscope.load_demo("helpdesk").with_labels(None)
     view = ReliabilityDiagram(frame)
-    assert view.bins is None and "needs labels" in view.note.value
+    assert view.finding is None and "needs labels" in view.note.value
     with pytest.raises(ParameterError, match="labels"):
         view.rows_of_bin(0)
 
@@ -153,7 +189,7 @@ def test_sweep_curves_and_fit_match_sklearn_and_scipy(mailroom: LogitFrame) -> N
     z, y = np.asarray(mailroom.logits, dtype=np.float64), mailroom.labels
     assert view.fitted.temperature == pytest.approx(_scipy_temperature(z, y), rel=1e-5)
     grid = np.asarray(view.curves["nll"].x)
-    assert grid.size == 41 and grid.min() <= 0.25 and grid.max() >= 4
+    assert grid.size >= 41 and grid.min() <= 0.25 and grid.max() >= 4
     for i in (0, 10, 20, 40):
         p = _probs(mailroom, float(grid[i]))
         assert view.curves["nll"].y[i] == pytest.approx(log_loss(y, p), rel=1e-7)  # sklearn
@@ -171,7 +207,9 @@ def test_dragging_the_marker_or_the_slider_sets_the_shared_temperature(mailroom:
     sweep._on_drag_end(sweep.marker, {"event": "drag_end", "point": {"x": 1.7, "y": 0.4}, "index": 0})
     assert state.temperature == 1.7
     # the linked diagram follows (sklearn log_loss at the new temperature)
-    assert diagram.numbers["nll"] == pytest.approx(log_loss(mailroom.labels, _probs(mailroom, 1.7)), rel=1e-7)
+    assert diagram.finding.nll == pytest.approx(log_loss(mailroom.labels, _probs(mailroom, 1.7)), rel=1e-7)
+    # the dot's own label follows the drag (its tooltip kept the first value)
+    assert sweep.marker_label.text == ["T 1.700"]
     # the marker moved to the NLL curve at that temperature, the slider with it
     assert sweep.marker.x[0] == pytest.approx(1.7)
     assert sweep.marker.y[0] == pytest.approx(log_loss(mailroom.labels, _probs(mailroom, 1.7)), rel=1e-7)
@@ -261,7 +299,7 @@ def test_picker_readouts_by_predicted_class_and_per_class_thresholds(mailroom: L
     # the rule by brute force over every distinct confidence
     t = min(c for c in np.unique(conf) if ok[conf >= c].mean() >= 0.98)
     assert picker.threshold == pytest.approx(t, rel=1e-9)
-    for k, c in enumerate(picker.class_choices):
+    for k, c in enumerate(picker.decision.by_class):
         m = pred == k
         acc = m & (conf >= t)
         assert c.n_accepted == acc.sum() and c.n_review == (m & (conf < t)).sum()
@@ -269,7 +307,7 @@ def test_picker_readouts_by_predicted_class_and_per_class_thresholds(mailroom: L
         assert c.interval == pytest.approx((ci.low, ci.high))
         assert mailroom.classes[k] in picker.class_table.value
     picker._per_class.value = True
-    own = picker.class_thresholds
+    own = np.array([c.threshold for c in picker.decision.own])
     ref_own = np.empty(10)
     for k in range(10):
         m = pred == k
@@ -277,8 +315,8 @@ def test_picker_readouts_by_predicted_class_and_per_class_thresholds(mailroom: L
         assert own[k] == pytest.approx(ref_own[k], rel=1e-9)
     # (compare with the reference thresholds: a sample sitting exactly on one may differ in the last bit)
     accepted = conf >= ref_own[pred]
-    assert picker.combined["coverage"] == pytest.approx(accepted.mean())
-    assert picker.combined["accuracy"] == pytest.approx(ok[accepted].mean())
+    assert picker.decision.own_combined.coverage == pytest.approx(accepted.mean())
+    assert picker.decision.own_combined.accuracy == pytest.approx(ok[accepted].mean())
     assert "own threshold" in picker.class_table.value and "per-class thresholds" in picker.readout.value
 
 
@@ -290,7 +328,7 @@ def test_picker_by_hand_follows_and_writes_the_shared_threshold() -> None:
     assert picker.mode == "by hand" and state.threshold == pytest.approx(0.895)
     # confidence >= 0.895 accepts the first four samples: 3 of 4 right (hand-worked table)
     assert picker.choice.n_accepted == 4 and picker.choice.accuracy == pytest.approx(0.75)
-    assert list(picker.rule.x) == pytest.approx([0.4, 0.4])
+    assert list(picker.rule_line.x) == pytest.approx([0.4, 0.4])
     state.threshold = 0.7  # from outside
     assert picker.threshold == pytest.approx(0.7) and picker.choice.n_accepted == 7
     picker.y_kind = "risk"
@@ -321,7 +359,7 @@ def test_brushing_the_curve_selects_the_samples_in_the_brushed_confidence_range(
     coverage = np.array([(conf >= c).mean() for c in distinct])
     inside = distinct[(coverage >= c0) & (coverage <= c1)]
     expected = np.flatnonzero((conf >= inside.min()) & (conf <= inside.max()))
-    assert np.array_equal(state.rows, expected) and state.origin == "threshold"
+    assert np.array_equal(state.rows, expected) and state.origin_name == "threshold picker"
     assert inside.min() <= picker.threshold <= inside.max()  # samples just below and above the threshold
     assert "accepted" in picker.note.value and "sent for review" in picker.note.value
     picker.brush.selected = None  # brush cleared: selection cleared
@@ -373,10 +411,11 @@ def test_panel_random_split_fits_on_one_part_and_judges_on_the_other(mailroom: L
     panel.sweep.use_fitted()
     panel.picker.mode = "target accuracy"
     panel.picker.target_accuracy = 0.98
-    nums = panel.held_out_numbers()
+    check = panel.held_out
     t = panel.state.temperature
+    assert check.fitted.temperature == pytest.approx(t_fit, rel=1e-5)  # the T the check fits = the sweep's
     ph = _probs(mailroom, t, split.held_out)
-    assert nums["calibration"]["nll"] == pytest.approx(log_loss(y[split.held_out], ph), rel=1e-7)  # sklearn
+    assert check.held["fitted"].nll == pytest.approx(log_loss(y[split.held_out], ph), rel=1e-7)  # sklearn
     # the threshold comes from the fit part (brute force) and is judged on the held-out part
     pf = _probs(mailroom, t, split.fit)
     cf, okf = pf.max(axis=1), pf.argmax(axis=1) == y[split.fit]
@@ -384,8 +423,8 @@ def test_panel_random_split_fits_on_one_part_and_judges_on_the_other(mailroom: L
     assert panel.picker.threshold == pytest.approx(thr, rel=1e-9)
     ch, okh = ph.max(axis=1), ph.argmax(axis=1) == y[split.held_out]
     acc = ch >= thr
-    assert nums["threshold"].coverage == pytest.approx(acc.mean())
-    assert nums["threshold"].accuracy == pytest.approx(okh[acc].mean())
+    assert check.judged_on_held.coverage == pytest.approx(acc.mean())
+    assert check.judged_on_held.accuracy == pytest.approx(okh[acc].mean())
     assert f"{100 * acc.mean():.2f}%" in panel.held_numbers.value
     panel.split_mode = "no split"
     assert panel.split is None and panel.diagram.rows.size == mailroom.n_samples
@@ -431,7 +470,7 @@ def test_write_report_button_uses_the_current_choices(mailroom: LogitFrame, tmp_
     # T fitted on all rows, while the split fits on its fit part: the report says what it is
     assert page.text("decision-how") == "set by hand, equal to the fitted temperature"
     assert page.value("split-held-coverage") == pytest.approx(np.mean(conf[panel.split.held_out] >= 0.9))
-    assert page.value("split-held-coverage") == pytest.approx(panel.held_out_numbers()["threshold"].coverage)
+    assert page.value("split-held-coverage") == pytest.approx(panel.held_out.judged_on_held.coverage)
     panel.report_path.value = "  "
     with pytest.raises(LogitscopeError):
         panel.write_report()
@@ -444,7 +483,7 @@ def test_panel_without_labels_still_writes_a_report(tmp_path: Path) -> None:
     assert panel._split_mode.disabled and "need labels" in panel.children[0].value
     page = read_report(Path(panel.write_report(tmp_path / "u.html")))
     assert "needs-labels" in page.by_id
-    assert panel.report_options() == {"temperature": 1.0}
+    assert panel.report_options()["choices"].rule is None
 
 
 def test_hand_example_is_the_one_of_the_report_tests() -> None:

@@ -50,7 +50,7 @@ def test_bar_click_selects_the_class_rows(mailroom, shifted_batch):
     view.bars.selected = [7]  # what a click on the "seven" bars sends
     expected = np.flatnonzero(shifted_batch.sample_scores().predicted == 7)
     np.testing.assert_array_equal(state.rows, expected)
-    assert state.origin == "class mix"
+    assert state.origin_name == "class mix"
     assert view.bars.selected is None  # ready for the next click
 
 

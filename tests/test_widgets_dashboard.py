@@ -69,7 +69,7 @@ def test_calibration_tab_is_built_on_first_open(dash):
 def test_selected_from_python_reaches_every_view(dash, mailroom):
     rows = [3, 40, 41, 900, 1500]
     dash.selected = rows
-    assert dash.selected.tolist() == rows and dash.state.origin == "python"
+    assert dash.selected.tolist() == rows and dash.state.origin_name == "Python"
     assert sorted(dash.gallery.page_rows.tolist()) == rows
     # the scatter draws the selected rows opaque, over the others faded
     col, line = dash.scatter.pixel_of(rows[0])
@@ -85,7 +85,7 @@ def test_selected_from_python_reaches_every_view(dash, mailroom):
     np.testing.assert_array_equal(sel[1], np.histogram(conf[rows][~right], edges)[0])
     cells = sorted({(int(y[r]), int(pred[r])) for r in rows})
     assert sorted(map(tuple, dash.confusion._grid.selected.tolist())) == cells
-    assert dash._selection.value.startswith("5 of 1,797 samples selected by python")
+    assert dash._selection.value.startswith("5 of 1,797 samples selected from Python")
     dash._clear.click()
     assert dash.selected.size == 0 and dash.gallery.n_shown == mailroom.n_samples
 
@@ -95,7 +95,7 @@ def test_a_brush_updates_the_other_views(dash, mailroom):
     dash.histogram._brush.selected = np.array([0.2, 0.5])  # as the browser's interval brush sends it
     expected = np.flatnonzero((conf >= 0.2) & (conf <= 0.5))
     np.testing.assert_array_equal(dash.selected, expected)
-    assert dash.state.origin == "histogram"
+    assert dash.state.origin_name == "histogram"
     assert dash.gallery.n_shown == expected.size
     assert dash.confusion._note.value.startswith(f"{expected.size:,} selected rows")
 
@@ -159,7 +159,7 @@ def test_sweep_selection_curve_waits_while_its_tab_is_hidden(dash):
     assert not sweep.live  # built while the Explore tab is shown
     rows = np.arange(0, dash.frame.n_samples, 5)
     dash.selected = rows
-    assert sweep.selection_sweep is None
+    assert sweep.selection_finding is None
     dash.tabs.selected_index = 1
     assert sweep.live and sweep.selection_curve.visible
     t = float(sweep.selection_curve.x[10])

@@ -346,7 +346,7 @@ def test_picker_selects_top_candidates(mailroom: LogitFrame, tmp_path: Path) -> 
     # self-confidence: the 15 samples whose given label has the lowest probability (scipy softmax)
     p_label = scipy_probs(mailroom, 1.0)[np.arange(mailroom.n_samples), mailroom.labels]
     assert set(state.rows.tolist()) == set(np.argsort(p_label, kind="stable")[:15].tolist())
-    assert state.origin == "label issue picker"
+    assert state.origin_name == "label issue picker"
     assert gallery.n_shown == 15 and gallery.scope == "15 selected (label issue picker)"
 
     picker.method = "confident_learning"

@@ -62,7 +62,7 @@ class Recorder:
         original = state.select
 
         def select(rows, origin=""):  # type: ignore[no-untyped-def]
-            self.calls.append(origin)
+            self.calls.append(state.name_of(origin))
             original(rows, origin)
 
         state.select = select  # type: ignore[method-assign]
@@ -119,7 +119,7 @@ def test_scatter_box_selects_over_all_rows(parcels):
     expected = np.flatnonzero((conf >= 0.3) & (conf <= 0.7) & (ent >= 0.5) & (ent <= 2.0))
     assert 0 < expected.size < parcels.n_samples
     np.testing.assert_array_equal(view.state.rows, expected)
-    assert view.state.origin == "scatter"
+    assert view.state.origin_name == "score scatter"
     # selected points stay opaque; a point far from every selected one is faded
     assert min(_alpha_at(view, r) for r in expected[::25]) >= int(one) - 1
     px = np.array([view.pixel_of(r) for r in expected], dtype=float)
@@ -137,7 +137,7 @@ def test_scatter_lasso_rows_come_from_the_all_rows_probe(parcels):
     picked = np.array([4, 17, 4000, 4999])
     view._probe.selected = picked.astype(np.uint32)  # what the browser's lasso sends back
     np.testing.assert_array_equal(view.state.rows, picked)
-    assert view.state.origin == "scatter"
+    assert view.state.origin_name == "score scatter"
     view._probe.selected = None  # lasso deleted in the browser
     assert view.state.rows.size == 0
     view.mode = "rectangle"
@@ -217,25 +217,25 @@ def test_selection_from_another_view_is_highlighted_without_feedback(parcels):
 
     # a scatter brush replaces the selection; the histogram's own interval is dropped, not re-applied
     scatter.select_box((0.5, 1.0), (0.0, 5.0))
-    assert rec.calls == ["histogram", "scatter"]
+    assert rec.calls == ["histogram", "score scatter"]
     assert hist._interval is None
     # the browser answers the reset of the histogram brush with an empty interval: no write
     hist._brush.selected = None
-    assert rec.calls == ["histogram", "scatter"]
-    assert state.origin == "scatter"
+    assert rec.calls == ["histogram", "score scatter"]
+    assert state.origin_name == "score scatter"
     # the same for the scatter's brush after another view selects
     scatter._brush.selected_x = np.array([0.5, 1.0])
     scatter._brush.selected_y = np.array([0.0, 5.0])
     n_calls = len(rec.calls)
     hist.select_interval(0.6, 0.9)
     scatter._brush.selected_x = None  # reset seen by the browser
-    assert len(rec.calls) == n_calls + 1 and state.origin == "histogram"
+    assert len(rec.calls) == n_calls + 1 and state.origin_name == "histogram"
 
 
 def test_own_brush_removed_clears_own_selection(parcels):
     view = ConfidenceHistogram(parcels)
     view._brush.selected = np.array([0.3, 0.6])
-    assert view.state.rows.size > 0 and view.state.origin == "histogram"
+    assert view.state.rows.size > 0 and view.state.origin_name == "histogram"
     view._brush.selected = None
     assert view.state.rows.size == 0
 
@@ -303,7 +303,7 @@ def test_confusion_cell_row_column_against_sklearn(mailroom):
         assert np.all(y[rows] == i) and np.all(pred[rows] == j)
     # a click in the browser sends the cell's row and column numbers
     view._on_cell_click(view._grid, {"event": "element_click", "data": {"rowNum": 4, "columnNum": 9}})
-    assert view.state.rows.size == ref[4, 9] and view.state.origin == "confusion"
+    assert view.state.rows.size == ref[4, 9] and view.state.origin_name == "confusion matrix"
     assert view.clicked == (4, 9) and not view._row_button.disabled
     view._row_button.click()
     assert view.state.rows.size == ref[4].sum() and np.all(y[view.state.rows] == 4)

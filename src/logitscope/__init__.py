@@ -59,15 +59,19 @@ def explore(
     relabel_path: str | os.PathLike[str] | None = None,
     max_classes: int = 30,
     state: SharedState | None = None,
+    label: str | None = None,
+    keep_frames: int = 10,
 ) -> Dashboard:
-    """Open the linked dashboard on ``frame``: every view in two tabs, one selection shared by all.
+    """Open the linked dashboard on ``frame``: every view in three tabs, one selection shared by all.
 
     The "Explore" tab holds the score scatter, the confidence histogram, the
     sample card and gallery, the confusion matrix, the relabel queue and the
     label-issue candidates; "Calibrate and decide" holds the reliability
-    diagram, the temperature sweep and the threshold choice. Brush, click or
-    assign ``dashboard.selected`` and every view follows. Show the returned
-    widget by leaving it as the last expression of a notebook cell.
+    diagram, the temperature sweep and the threshold choice; "History" plots
+    the set-level numbers of every frame shown. Brush, click or assign
+    ``dashboard.selected`` and every view follows; ``dashboard.update(frame)``
+    shows a new frame (the next epoch's logits, say) in place. Show the
+    returned widget by leaving it as the last expression of a notebook cell.
 
     Parameters
     ----------
@@ -87,6 +91,12 @@ def explore(
     state : SharedState, optional
         The shared selection, focus and temperature, to link this dashboard to
         views made earlier on the same frame; a new one when None.
+    label : str, optional
+        Name of this first frame in the history (``"update 0"`` when None).
+    keep_frames : int, default 10
+        How many of the most recent frames :meth:`Dashboard.update` keeps to
+        step back to (each holds its logit matrix; the numbers of every
+        update are kept). At least 1.
 
     Returns
     -------
@@ -100,7 +110,8 @@ def explore(
     InputTypeError
         When ``frame`` is not a :class:`LogitFrame` or ``state`` not a ``SharedState``.
     ParameterError
-        When ``state`` was made for another number of samples, or ``max_classes`` is out of range.
+        When ``state`` was made for another number of samples, or ``max_classes``
+        or ``keep_frames`` is out of range.
     FileFormatError
         When ``relabel_path`` exists but is not a relabel list; the file is left as it is.
 
@@ -122,4 +133,4 @@ def explore(
     """
     from .widgets import Dashboard
 
-    return Dashboard(frame, state, relabel_path, max_classes=max_classes)
+    return Dashboard(frame, state, relabel_path, max_classes=max_classes, label=label, keep_frames=keep_frames)

@@ -1,4 +1,4 @@
-"""Command line: ``logitscope summary | demo-data | report | demo``.
+"""Command line: ``logitscope summary | demo-data | report | compare | demo``.
 
 Errors in the input end with exit code 2 and one readable line on stderr.
 Progress of steps longer than a second goes to stderr, never to stdout.
@@ -15,13 +15,13 @@ import threading
 import time
 from collections.abc import Callable, Sequence
 from pathlib import Path
-from typing import Any, TypeVar
+from typing import Any, Literal, TypeVar
 
-from .errors import LogitscopeError
+from .errors import LogitscopeError, ShapeError
 
 T = TypeVar("T")
 
-__all__ = ["format_summary", "main"]
+__all__ = ["format_comparison", "format_summary", "main"]
 
 
 def _progress_wanted(stream: Any) -> bool:
@@ -146,9 +146,17 @@ def _parser() -> argparse.ArgumentParser:
     g2.add_argument("--target-accuracy", type=float)
     g2.add_argument("--costs", type=_parse_costs, metavar="ERROR,REVIEW")
     r.add_argument("--title")
-
+    _add_compare_parser(sub)
     _add_demo_parser(sub)
     return p
+
+
+def _add_compare_parser(sub: Any) -> None:
+    c = sub.add_parser("compare", help="compare two checkpoints' files of the same samples (matched by id)")
+    c.add_argument("file_a", metavar="A")
+    c.add_argument("file_b", metavar="B")
+    c.add_argument("--drop-missing", action="store_true", help="compare the shared ids when the files differ")
+    c.add_argument("--json", action="store_true", help="print one JSON object")
 
 
 def _add_demo_parser(sub: Any) -> None:
@@ -232,10 +240,91 @@ def _cmd_launch(args: argparse.Namespace) -> int:
     )  # fmt: skip
 
 
+def format_comparison(result: dict[str, Any]) -> str:
+    """Render :meth:`logitscope.checkpoints.FrameComparison.to_dict` as readable text.
+
+    Examples
+    --------
+    >>> print(format_comparison({"names": ["a.npz", "b.npz"], "n_samples": 4, "n_only_in_a": 0, "n_only_in_b": 0,
+    ...                          "labelled": False, "agreement": 0.75, "n_changed": 1}))
+    samples compared  4
+    agreement         0.7500
+    changed           1
+    """
+    from .analysis import FLIP_CELLS, FLIP_DESCRIPTIONS
+
+    rows: list[tuple[str, str]] = [("samples compared", str(result["n_samples"]))]
+    name_a, name_b = result["names"]
+    for key, name in (("n_only_in_a", name_a), ("n_only_in_b", name_b)):
+        if result[key]:
+            rows.append((f"left out, only in {name}", str(result[key])))
+    if result["labelled"]:
+        rows += [
+            (f"accuracy A ({name_a})", _fmt(result["accuracy_a"])),
+            (f"accuracy B ({name_b})", _fmt(result["accuracy_b"])),
+            ("change", f"{result['accuracy_change']:+.4f}"),
+        ]
+    rows += [("agreement", _fmt(result["agreement"])), ("changed", str(result["n_changed"]))]
+    if result["labelled"]:
+        cells = result["flips"]["cells"]
+        rows += [(FLIP_DESCRIPTIONS[c], f"{cells[c]['count']}  ({cells[c]['share']:.1%})") for c in FLIP_CELLS]
+        rows.append(("McNemar exact p", f"{result['mcnemar_p']:.4g}"))
+    width = max(len(k) for k, _ in rows) + 2
+    text = "\n".join(f"{k:<{width}}{v}" for k, v in rows)
+    if result["labelled"]:
+        text += "\n\nper class\n" + _per_class_table(result["per_class"])
+    return text
+
+
+def _per_class_table(per_class: list[dict[str, Any]]) -> str:
+    def signed(v: float | None) -> str:
+        return "n/a" if v is None else f"{v:+.4f}"
+
+    def p_value(v: float | None) -> str:
+        return "n/a" if v is None else f"{v:.4g}"
+
+    table = [("class", "n", "acc A", "acc B", "change", "fixed", "broken", "p (Holm)")]
+    for r in per_class:
+        accuracies = (_fmt(r["accuracy_a"]), _fmt(r["accuracy_b"]), signed(r["change"]))
+        counts = (str(r["fixed"]), str(r["broken"]), p_value(r["mcnemar_p_holm"]))
+        table.append((str(r["class"]), str(r["support"]), *accuracies, *counts))
+    widths = [max(len(line[i]) for line in table) for i in range(len(table[0]))]
+    lines = []
+    for line in table:
+        cells = [line[0].ljust(widths[0])] + [v.rjust(w) for v, w in zip(line[1:], widths[1:], strict=True)]
+        lines.append("  ".join(cells).rstrip())
+    return "\n".join(lines)
+
+
+def _cmd_compare(args: argparse.Namespace) -> int:
+    from .checkpoints import compare_frames
+    from .frame import LogitFrame
+
+    a = _Progress(f"reading {args.file_a}").run(lambda: LogitFrame.read(args.file_a))
+    b = _Progress(f"reading {args.file_b}").run(lambda: LogitFrame.read(args.file_b))
+    missing: Literal["raise", "drop"] = "drop" if args.drop_missing else "raise"
+    names = (Path(args.file_a).name, Path(args.file_b).name)
+    try:
+        result = _Progress("comparing").run(lambda: compare_frames(a, b, missing=missing, names=names)).to_dict()
+    except ShapeError as exc:
+        raise ShapeError(str(exc).replace("Pass missing='drop'", "Pass --drop-missing")) from exc
+    if args.json:
+        print(json.dumps(result, allow_nan=False, default=_json_default))
+    else:
+        print(format_comparison(result))
+    return 0
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``logitscope`` command."""
     args = _parser().parse_args(argv)
-    handlers = {"summary": _cmd_summary, "demo-data": _cmd_demo, "report": _cmd_report, "demo": _cmd_launch}
+    handlers = {
+        "summary": _cmd_summary,
+        "demo-data": _cmd_demo,
+        "report": _cmd_report,
+        "compare": _cmd_compare,
+        "demo": _cmd_launch,
+    }
     try:
         return handlers[args.command](args)
     except (LogitscopeError, TypeError) as exc:

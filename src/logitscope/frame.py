@@ -573,6 +573,35 @@ class LogitFrame:
 
         write_report(self, path, **options)
 
+    @classmethod
+    def from_torch(
+        cls, model: Any, loader: Any, *, classes: Sequence[str] | None = None, device: Any = None,
+        ids: ArrayLike | None = None, progress: bool = True, keep_inputs: bool = False, text_key: str | None = None,
+    ) -> LogitFrame:  # fmt: skip
+        """Run a torch model over a data loader (eval mode, no gradients) and gather its logits.
+
+        Batches may be ``(inputs, labels)``, ``(inputs, labels, ids)`` or dicts
+        of tensors (text models); see :func:`logitscope.torch_adapter.frame_from_torch`
+        for every option. torch is imported only here.
+
+        Examples
+        --------
+        >>> import torch
+        >>> from torch.utils.data import DataLoader, TensorDataset
+        >>> tickets = TensorDataset(torch.randn(6, 16), torch.tensor([0, 1, 2, 0, 1, 2]))
+        >>> net = torch.nn.Sequential(torch.nn.Dropout(0.5), torch.nn.Linear(16, 3)).train()
+        >>> f = LogitFrame.from_torch(net, DataLoader(tickets, batch_size=4), classes=["billing", "login", "printer"],
+        ...                           progress=False)
+        >>> f.n_samples, f.classes[0], net.training
+        (6, 'billing', True)
+        """
+        from .torch_adapter import frame_from_torch
+
+        return frame_from_torch(
+            model, loader, classes=classes, device=device, ids=ids, progress=progress, keep_inputs=keep_inputs,
+            text_key=text_key, frame_type=cls,
+        )  # fmt: skip
+
 
 def _decision_is_logit(estimator: Any) -> bool:
     est = estimator

@@ -443,6 +443,11 @@ class RelabelStore:
 
     # ------------------------------------------------------------------ views
 
+    def use_frame(self, frame: LogitFrame) -> None:
+        """Check new marks against another frame (a new epoch's outputs): marks stay keyed by sample id."""
+        self.frame = frame
+        self._index = None
+
     def __len__(self) -> int:
         return len(self._marks)
 

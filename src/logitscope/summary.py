@@ -2,11 +2,11 @@
 
 from __future__ import annotations
 
+import warnings
 from typing import TYPE_CHECKING, Any, Literal
 
-import numpy as np
-
 from . import analysis as an
+from .errors import LabelError
 
 if TYPE_CHECKING:
     from .frame import LogitFrame
@@ -74,42 +74,58 @@ def summarize(
     >>> s["accuracy"], s["n_samples"]
     (0.5, 2)
     """
+    from .findings import (
+        Binning,
+        ThresholdRule,
+        calibration_summary,
+        fitted_temperature,
+        prediction_summary,
+        threshold_decision,
+    )
+
     out: dict[str, Any] = {"n_samples": frame.n_samples, "n_classes": frame.n_classes}
     fit = None
     if fit_temperature:
-        fit = frame.fit_temperature()
+        if not frame.has_labels:
+            raise LabelError("fit_temperature needs labels; this frame has none (use with_labels)")
+        fit = fitted_temperature(frame)
+        if fit.at_bound:
+            warnings.warn(
+                f"the fitted temperature reached its bound T = {fit.temperature:g}: the NLL keeps falling "
+                "towards it; treat the fit with care",
+                RuntimeWarning,
+                stacklevel=2,
+            )
         t = fit.temperature
     else:
         t = frame.temperature if temperature is None else an.check_temperature(temperature)
-    s = frame.sample_scores(t)
+    binning = Binning(n_bins, "uniform")
     if frame.has_labels:
-        assert s.correct is not None and s.true_rank is not None
-        assert s.true_log_probability is not None and s.brier is not None
-        bins = an.reliability_bins(s.confidence, s.correct, n_bins=n_bins)
-        out["accuracy"] = float(np.mean(s.correct))
-        ks = an.default_ks(frame.n_classes)
-        out["top_k_accuracy"] = {str(k): v for k, v in an.top_k_accuracies(s.true_rank, ks).items()}
-        out["nll"] = float(-np.mean(s.true_log_probability))
-        out["brier"] = float(np.mean(s.brier))
-        out["ece"] = bins.ece
-        out["mce"] = bins.mce
-    out["mean_confidence"] = float(np.mean(s.confidence))
-    out["mean_entropy"] = float(np.mean(s.entropy))
-    if frame.has_labels:
-        assert s.correct is not None
-        out["aurc"] = an.aurc(s.confidence, s.correct)
+        c = calibration_summary(frame, t, None, binning)
+        out.update(
+            accuracy=c.accuracy,
+            top_k_accuracy={str(k): v for k, v in c.top_k.items()},
+            nll=c.nll,
+            brier=c.brier,
+            ece=c.ece,
+            mce=c.mce,
+            mean_confidence=c.mean_confidence,
+            mean_entropy=c.mean_entropy,
+            aurc=c.aurc,
+        )
+    else:
+        p = prediction_summary(frame, t)
+        out.update(mean_confidence=p.mean_confidence, mean_entropy=p.mean_entropy)
     out["temperature"] = t
     if fit is not None:
         out["fitted_temperature"] = fit.temperature
         out["nll_before_fit"] = fit.nll_before
     if target_accuracy is not None:
         if not frame.has_labels:
-            from .errors import LabelError
-
             raise LabelError("a threshold for a target accuracy needs labels")
-        assert s.correct is not None
-        choice = an.threshold_for_accuracy(s.confidence, s.correct, target_accuracy, method=interval)
-        out["threshold"] = choice.to_dict()
-        out["threshold"]["target_accuracy"] = target_accuracy
-        out["caution"] = an.CAUTION
+        rule = ThresholdRule("accuracy", target_accuracy=target_accuracy, interval=interval)
+        decision = threshold_decision(frame, rule, t)
+        out["threshold"] = decision.choice.to_dict()
+        out["threshold"]["target_accuracy"] = rule.target_accuracy
+        out["caution"] = decision.caution
     return out

@@ -28,7 +28,20 @@ from .class_mix import (
     compare_class_mix,
     estimate_priors,
 )
-from .compare import CheckpointComparison, compare_checkpoints, mcnemar_exact
+from .compare import (
+    FLIP_CELLS,
+    FLIP_DESCRIPTIONS,
+    CheckpointComparison,
+    ClassAccuracyChange,
+    FlipTable,
+    ForgettingRanking,
+    compare_checkpoints,
+    flip_table,
+    holm_adjust,
+    mcnemar_exact,
+    per_class_accuracy_change,
+    rank_forgetting,
+)
 from .confusion import ConfusedPair, confusion_matrix, most_confused_pairs, normalize_rows, top_k_confusion
 from .label_errors import LabelIssueRanking, confident_joint, per_class_thresholds_cl, rank_label_issues
 from .metrics import (
@@ -66,10 +79,15 @@ from .temperature import (
 
 __all__ = [
     "CAUTION",
+    "FLIP_CELLS",
+    "FLIP_DESCRIPTIONS",
     "SCORE_COLUMNS",
     "CheckpointComparison",
+    "ClassAccuracyChange",
     "ClassMixTest",
     "ConfusedPair",
+    "FlipTable",
+    "ForgettingRanking",
     "LabelIssueRanking",
     "PriorEstimate",
     "ReliabilityBins",
@@ -106,6 +124,8 @@ __all__ = [
     "expected_calibration_error",
     "find_nonfinite_rows",
     "fit_temperature",
+    "flip_table",
+    "holm_adjust",
     "log_softmax",
     "logsumexp",
     "maximum_calibration_error",
@@ -115,9 +135,11 @@ __all__ = [
     "most_confused_pairs",
     "nll",
     "normalize_rows",
+    "per_class_accuracy_change",
     "per_class_thresholds",
     "per_class_thresholds_cl",
     "random_split",
+    "rank_forgetting",
     "rank_label_issues",
     "reliability_bins",
     "risk_coverage_curve",

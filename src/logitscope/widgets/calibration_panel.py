@@ -12,9 +12,13 @@ sweep fits T on the fit part and draws the held-out part's curves dashed,
 two diagrams show the fit part and the held-out part, and the threshold
 chosen on the fit part is judged on the held-out part.
 
-The "write report" button writes :func:`logitscope.report.write_report` for
-the current choices: the shared temperature, the threshold rule of the
-picker, the interval method, the bins and the split.
+Every number comes from the findings layer: the diagrams render
+calibration summaries, the sweep sweep findings, the picker a threshold
+decision and the held-out table a :class:`~logitscope.findings.HeldOutCheck`,
+all for the panel's :meth:`CalibrationPanel.choices` (the shared temperature
+and binning, the picker's rule, the split). The "write report" button hands
+the same choices to :func:`logitscope.report.write_report`, so the report
+shows the numbers the panel shows.
 """
 
 from __future__ import annotations
@@ -22,20 +26,19 @@ from __future__ import annotations
 import html
 import math
 import os
-from typing import Any, cast
+from typing import Any
 
 import ipywidgets as widgets
 import traitlets
 
-from .. import analysis as an
-from ..analysis.calibration import Strategy
-from ..analysis.selective import IntervalMethod
 from ..analysis.split import Split, random_split, split_by_values
 from ..errors import LogitscopeError
+from ..findings import Choices, HeldOutCheck, held_out_check
 from ..frame import LogitFrame
-from .reliability import _TABLE_CSS, ReliabilityDiagram, calibration_numbers
-from .scatter import view_state
+from .base import LinkedView
+from .reliability import ReliabilityDiagram
 from .state import SharedState
+from .style import css
 from .sweep import TemperatureSweepView
 from .threshold import ThresholdPicker
 
@@ -44,21 +47,12 @@ __all__ = ["SPLIT_MODES", "CalibrationPanel"]
 SPLIT_MODES = ("no split", "random split", "by a column")
 _MAX_VALUES = 200  # metadata columns with more distinct values are not offered for a split
 
-_HEAD_CSS = (
-    "<style>.logitscope-head{font-size:14px;font-weight:600;margin:10px 0 2px;color:#1f2933;"
-    "border-bottom:1px solid #e3e7ec;padding-bottom:3px}"
-    ".logitscope-held{font-size:12.5px;border-collapse:collapse}"
-    ".logitscope-held th{font-weight:normal;color:#5f6b7a;text-align:left;padding:2px 12px 2px 0}"
-    ".logitscope-held td{text-align:right;font-variant-numeric:tabular-nums;padding:2px 10px 2px 0}"
-    ".logitscope-held thead th{font-weight:600;color:#334}</style>"
-)
-
 
 def _head(text: str) -> widgets.HTML:
-    return widgets.HTML(_HEAD_CSS + f"<div class='logitscope-head'>{html.escape(text)}</div>")
+    return widgets.HTML(css("views") + f"<div class='ls-head'>{html.escape(text)}</div>")
 
 
-class CalibrationPanel(widgets.VBox):
+class CalibrationPanel(LinkedView, widgets.VBox):
     """Reliability diagram, temperature sweep and threshold picker over one frame, with a split and a report.
 
     Parameters
@@ -92,8 +86,11 @@ class CalibrationPanel(widgets.VBox):
     40
     >>> panel.sweep.use_fitted() == panel.state.temperature
     True
+    >>> panel.held_out.fitted.temperature == panel.sweep.fitted.temperature
+    True
     """
 
+    kind = "calibration panel"
     split_mode = traitlets.Enum(list(SPLIT_MODES), default_value="no split", help="how rows are split")
 
     def __init__(
@@ -104,23 +101,23 @@ class CalibrationPanel(widgets.VBox):
         report_path: str = "logitscope-report.html",
         **kwargs: Any,
     ) -> None:
-        self.frame = frame
-        self.state = view_state(frame, state)
+        self.state = state = LinkedView.link(self, frame, state, name=None)
         self.split: Split | None = None
+        self.held_out: HeldOutCheck | None = None
         self.last_report: str | None = None
+        self.relabel_store: Any = None  # the dashboard hands over its relabel list for the report
         labelled = frame.has_labels
 
-        self.diagram = ReliabilityDiagram(frame, self.state, title="All rows", name="reliability")
+        self.diagram = ReliabilityDiagram(frame, state, title="All rows")
         self.held_diagram = ReliabilityDiagram(
-            frame, self.state, title="Held-out part", name="reliability (held out)", show_controls=False
+            frame, state, title="Held-out part", name="reliability diagram (held out)", show_controls=False
         )
         # the held-out diagram joins the row only with a split (a hidden bqplot figure draws with a
         # negative size and fills the browser console with errors)
         self._diagrams = widgets.HBox([self.diagram], layout={"flex_flow": "row wrap"})
         self._diagrams.add_class("logitscope-diagrams")
-        self.sweep = TemperatureSweepView(frame, self.state, name="temperature sweep")
-        self.picker = ThresholdPicker(frame, self.state, mode="target accuracy", name="threshold")
-        self.diagram.observe(self._mirror_bins, ["n_bins", "strategy"])
+        self.sweep = TemperatureSweepView(frame, state)
+        self.picker = ThresholdPicker(frame, state, mode="target accuracy")
         self.held_numbers = widgets.HTML()
 
         # split controls
@@ -205,15 +202,15 @@ class CalibrationPanel(widgets.VBox):
             widgets.HBox([self.report_path, self.report_button], layout={"align_items": "center"}),
             self.report_status,
         ]
-        super().__init__(children=children, **kwargs)
+        widgets.VBox.__init__(self, children=children, **kwargs)
         self.add_class("logitscope-calibration")
         widgets.link((self._split_mode, "value"), (self, "split_mode"))
         self.observe(self._on_split_controls, "split_mode")
         for control in (self._fraction, self._seed, self._stratify, self._values):
             control.observe(self._on_split_controls, "value")
         self._column.observe(self._on_column, "value")
-        self.state.observe(self._on_change, ["temperature", "threshold"])
-        self.picker.observe(self._on_change, ["threshold", "mode", "interval", "level"])
+        self.state.observe(self._on_change, ["temperature", "threshold", "binning"])
+        self.picker.observe(self._on_change, ["threshold", "mode", "interval", "level", "per_class"])
         self._on_column()
         self._show_split_controls()
 
@@ -236,6 +233,8 @@ class CalibrationPanel(widgets.VBox):
         self._values.value = (values[0],) if values else ()
 
     def _on_split_controls(self, change: Any = None) -> None:
+        if self.is_quiet:
+            return
         self._show_split_controls()
         try:
             if self.split_mode == "no split":
@@ -245,7 +244,7 @@ class CalibrationPanel(widgets.VBox):
             elif self._column.value is not None and self._values.value:
                 self.use_column_split(self._column.value, list(self._values.value))
         except LogitscopeError as exc:
-            self.split_note.value = f"<span style='color:#c23b3b'>{html.escape(str(exc))}</span>"
+            self.split_note.value = f"{css('views')}<span class='ls-error'>{html.escape(str(exc))}</span>"
 
     def use_random_split(self, held_out_fraction: float = 0.5, seed: int = 0, stratify: bool = True) -> None:
         """Split the rows at random (seeded), keeping class shares when ``stratify``."""
@@ -278,82 +277,74 @@ class CalibrationPanel(widgets.VBox):
             self.picker.set_rows(split.fit)
             fitted = self.sweep.fitted.temperature if self.sweep.fitted else float("nan")
             self.split_note.value = (
-                f"<span style='color:#5f6b7a'>{html.escape(split.description)}: {len(split.fit):,} rows to fit, "
+                f"{css('views')}<span class='ls-note'>{html.escape(split.description)}: "
+                f"{len(split.fit):,} rows to fit, "
                 f"{len(split.held_out):,} held out; T fitted on the fit part: {fitted:.4f} "
                 "(press “use fitted T” to apply it).</span>"
             )
         self._on_change()
 
-    def _mirror_bins(self, change: Any) -> None:
-        self.held_diagram.n_bins, self.held_diagram.strategy = self.diagram.n_bins, self.diagram.strategy
+    # ------------------------------------------------------------------ held-out check
 
-    # ------------------------------------------------------------------ held-out numbers
-
-    def held_out_numbers(self) -> dict[str, Any] | None:
-        """Calibration numbers and the threshold's readouts on the held-out part (None without a split)."""
-        if self.split is None or not self.frame.has_labels or self.picker.choice is None:
-            return None
-        held = self.split.held_out
-        t = self.state.temperature
-        s = self.frame.sample_scores(t)
-        assert s.correct is not None
-        strategy = cast(Strategy, self.diagram.strategy)  # a traitlets.Enum of the two strategies
-        bins = an.reliability_bins(s.confidence[held], s.correct[held], self.diagram.n_bins, strategy)
-        out: dict[str, Any] = {"calibration": calibration_numbers(self.frame, held, t, bins)}
-        base = self.frame.sample_scores(self.frame.temperature)
-        assert base.correct is not None
-        b0 = an.reliability_bins(base.confidence[held], base.correct[held], self.diagram.n_bins, strategy)
-        out["calibration_as_given"] = calibration_numbers(self.frame, held, self.frame.temperature, b0)
-        thr = self.picker.choice.threshold
-        out["threshold"] = an.evaluate_threshold(
-            s.confidence[held], s.correct[held], thr, self.picker.level, cast(IntervalMethod, self.picker.interval)
+    def choices(self) -> Choices:
+        """The panel's current choices: shared temperature and binning, the picker's rule, the split."""
+        rule = self.picker.rule if self.frame.has_labels else None
+        return Choices(
+            temperature=self.state.temperature,
+            temperature_how=self._temperature_how(),
+            binning=self.state.binning,
+            rule=rule,
+            split=self.split,
         )
-        return out
+
+    def _temperature_how(self) -> str:
+        fitted = self.sweep.fitted
+        if fitted is not None and math.isclose(self.state.temperature, fitted.temperature, rel_tol=1e-9):
+            part = "all labelled rows" if self.split is None else "the fit part of the split"
+            return f"fitted: minimum NLL on {part}"
+        if math.isclose(self.state.temperature, self.frame.temperature, rel_tol=1e-12):
+            return "as given"
+        return "set in the panel"
 
     def _on_change(self, change: Any = None) -> None:
-        nums = self.held_out_numbers()
-        if nums is None:
+        if self.split is None or not self.frame.has_labels:
+            self.held_out = None
             self.held_numbers.value = ""
             return
-        a, b, c = nums["calibration_as_given"], nums["calibration"], nums["threshold"]
-        lo, hi = c.interval
-        method = "Wilson" if c.interval_method == "wilson" else "Clopper-Pearson"
-        acc = "n/a" if not math.isfinite(c.accuracy) else f"{c.accuracy:.4f}"
-        self.held_numbers.value = (
-            _HEAD_CSS + _TABLE_CSS + "<table class='logitscope-held'><thead><tr><th>held-out part</th>"
-            f"<th>T = {a['temperature']:.4g} (as given)</th><th>T = {b['temperature']:.4g} (current)</th></tr></thead>"
-            + "".join(
-                f"<tr><th>{name}</th><td>{a[key]:.4f}</td><td>{b[key]:.4f}</td></tr>"
-                for key, name in (("nll", "NLL"), ("ece", "ECE"), ("brier", "Brier"))
+        c = self.choices()
+        h = self.held_out = held_out_check(self.frame, self.split, c.temperature, c.rule, c.binning)
+        head = "".join(f"<th>{html.escape(label)}, T = {t:.4g}</th>" for _, t, label in h.columns)
+        body = "".join(
+            f"<tr><th>{name} ({part_name})</th>"
+            + "".join(f"<td>{getattr(part[key], metric):.4f}</td>" for key, _, _ in h.columns)
+            + "</tr>"
+            for part, part_name in ((h.fit, "fit part"), (h.held, "held out"))
+            for metric, name in (("nll", "NLL"), ("ece", "ECE"), ("brier", "Brier"))
+        )
+        text = ""
+        if h.judged_on_held is not None and h.decision_on_fit is not None:
+            j = h.judged_on_held
+            lo, hi = j.interval
+            acc = "n/a" if not math.isfinite(j.accuracy) else f"{j.accuracy:.4f}"
+            thr = h.decision_on_fit.threshold
+            text = (
+                f"<p class='ls-note'>The threshold {thr:.4f} chosen on the fit part accepts "
+                f"{100 * j.coverage:.2f}% of the held-out rows with accuracy {acc} "
+                f"[{lo:.4f}, {hi:.4f}] ({j.level:.0%} {j.interval_method}); {j.n_review:,} go to review.</p>"
             )
-            + "</table>"
-            f"<p style='font-size:12.5px'>The threshold {c.threshold:.4f} chosen on the fit part accepts "
-            f"{100 * c.coverage:.2f}% of the held-out rows with accuracy {acc} "
-            f"[{lo:.4f}, {hi:.4f}] ({c.level:.0%} {method}); {c.n_review:,} go to review.</p>"
+        self.held_numbers.value = (
+            css("views") + f"<table class='ls-held'><thead><tr><th>{html.escape(c.binning.describe())}</th>{head}"
+            f"</tr></thead>{body}</table>{text}"
         )
 
     # ------------------------------------------------------------------ report
 
     def report_options(self) -> dict[str, Any]:
         """The options :func:`logitscope.report.write_report` gets for the current choices."""
-        opts: dict[str, Any] = {"temperature": self.state.temperature}
-        if not self.frame.has_labels:
-            return opts
-        p = self.picker
-        if p.mode == "target accuracy":
-            opts["target_accuracy"] = p.target_accuracy
-            opts["use_lower_bound"] = p.use_lower_bound
-        elif p.mode == "costs":
-            opts["costs"] = (p.error_cost, p.review_cost)
-        elif p.choice is not None and math.isfinite(p.choice.threshold):
-            opts["threshold"] = min(max(p.choice.threshold, 0.0), 1.0)
-        opts.update(interval=p.interval, level=p.level, n_bins=self.diagram.n_bins, strategy=self.diagram.strategy)
-        if self.split is not None:
-            opts["split"] = self.split
-        fitted = self.sweep.fitted
-        if fitted is not None and math.isclose(self.state.temperature, fitted.temperature, rel_tol=1e-9):
-            part = "all labelled rows" if self.split is None else "the fit part of the split"
-            opts["temperature_how"] = f"fitted: minimum NLL on {part}"
+        c = self.choices()
+        opts: dict[str, Any] = {"choices": c}
+        if self.relabel_store is not None:
+            opts["relabel"] = self.relabel_store
         return opts
 
     def write_report(self, path: str | os.PathLike[str] | None = None) -> str:
@@ -362,17 +353,33 @@ class CalibrationPanel(widgets.VBox):
 
         target = os.fspath(path) if path is not None else self.report_path.value.strip()
         if not target:
-            self.report_status.value = "<span style='color:#c23b3b'>Give a file name for the report.</span>"
+            self.report_status.value = f"{css('views')}<span class='ls-error'>Give a file name for the report.</span>"
             raise LogitscopeError("no report path given")
         try:
             write_report(self.frame, target, **self.report_options())
         except (LogitscopeError, OSError) as exc:
-            self.report_status.value = f"<span style='color:#c23b3b'>{html.escape(str(exc))}</span>"
+            self.report_status.value = f"{css('views')}<span class='ls-error'>{html.escape(str(exc))}</span>"
             raise
         self.last_report = os.path.abspath(target)
         size = os.path.getsize(target)
         self.report_status.value = (
-            f"<span style='color:#2f855a'>Wrote {html.escape(self.last_report)} ({size / 1024:.0f} kB) "
+            f"{css('views')}<span class='ls-ok'>Wrote {html.escape(self.last_report)} ({size / 1024:.0f} kB) "
             f"at T = {self.state.temperature:.4g}.</span>"
         )
         return self.last_report
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_frame(self) -> None:
+        labelled = self.frame.has_labels
+        self._split_mode.disabled = not labelled
+        with self.quietly():
+            self.split_mode = "no split"
+        self._show_split_controls()
+        columns = [c for c in self.frame.meta.columns if 1 < self.frame.meta[c].nunique(dropna=False) <= _MAX_VALUES]
+        self._columns = {str(c): c for c in columns}
+        self._column.options = [str(c) for c in columns]
+        self._on_column()
+        self.split = None
+        self.split_note.value = ""
+        self._on_change()

@@ -12,7 +12,8 @@ import traitlets
 from ..errors import ParameterError
 from ..frame import LogitFrame
 from ._assets import esm
-from .gallery import check_frame, page_probabilities
+from .base import LinkedView
+from .gallery import page_probabilities
 from .state import SharedState
 from .thumbnails import ThumbnailCache
 
@@ -40,7 +41,7 @@ def _cell(value: Any) -> str:
     return str(value)
 
 
-class SampleCard(anywidget.AnyWidget):
+class SampleCard(LinkedView, anywidget.AnyWidget):
     """The sample in ``state.focus``, shown large.
 
     The image (enlarged) or the full text, the id, the given label, the
@@ -71,6 +72,7 @@ class SampleCard(anywidget.AnyWidget):
     """
 
     _esm = esm("card.js")
+    kind = "sample card"
 
     sample = traitlets.Dict(help="what the card shows; empty when no sample has the focus").tag(sync=True)
     temperature = traitlets.Float(1.0).tag(sync=True)
@@ -83,16 +85,14 @@ class SampleCard(anywidget.AnyWidget):
         image_size: int = 224,
         **kwargs: Any,
     ) -> None:
-        st = check_frame(frame, state)
+        st = self.link(frame, state)
         if isinstance(top, bool) or not isinstance(top, int | np.integer) or top < 1:
             raise ParameterError(f"top must be a positive integer, got {top!r}")
-        self.frame = frame
-        self.state = st
         self.top = int(top)
+        self._image_size = int(image_size)
         self.images = ThumbnailCache(frame.payload, size=image_size, max_items=64)
         self._meta = frame.meta  # the frame is immutable: one copy serves every focus change
         super().__init__(temperature=st.temperature, **kwargs)
-        st.observe(self._update, ["focus", "temperature"])
         self._update()
 
     def _update(self, change: dict[str, Any] | None = None) -> None:
@@ -149,3 +149,16 @@ class SampleCard(anywidget.AnyWidget):
             if img is not None:
                 out.update(png=img.png, width=img.width, height=img.height, error=img.error)
         return out
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_focus(self, row: int | None) -> None:
+        self._update()
+
+    def on_temperature(self, temperature: float) -> None:
+        self._update()
+
+    def on_frame(self) -> None:
+        self.images = ThumbnailCache(self.frame.payload, size=self._image_size, max_items=64)
+        self._meta = self.frame.meta
+        self._update()

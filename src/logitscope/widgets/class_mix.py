@@ -20,7 +20,7 @@ import numpy as np
 from .. import analysis as an
 from ..errors import ClassNameError, ParameterError
 from ..frame import LogitFrame
-from .scatter import view_state
+from .base import LinkedView
 from .state import SharedState
 
 __all__ = ["ClassMixView"]
@@ -28,7 +28,7 @@ __all__ = ["ClassMixView"]
 _REFERENCE, _BATCH, _ESTIMATE = "#8a94a1", "#3b6ea8", "#d9822b"
 
 
-class ClassMixView(widgets.VBox):
+class ClassMixView(LinkedView, widgets.VBox):
     """Reference class proportions beside a batch's, with a multinomial test of the difference.
 
     Parameters
@@ -58,6 +58,8 @@ class ClassMixView(widgets.VBox):
     [0, 1, 2]
     """
 
+    kind = "class mix"
+
     def __init__(
         self,
         batch: LogitFrame,
@@ -66,12 +68,10 @@ class ClassMixView(widgets.VBox):
         *,
         counts: Literal["predicted", "labels"] = "predicted",
         statistic: an.class_mix.Statistic = "pearson",
-        name: str = "class mix",
+        name: str | None = None,
         **kwargs: Any,
     ) -> None:
-        self.frame = batch
-        self.state = view_state(batch, state)
-        self.name = name
+        self.link(batch, state, name)
         k = batch.n_classes
         if isinstance(reference, LogitFrame):
             if reference.classes != batch.classes:
@@ -119,10 +119,9 @@ class ClassMixView(widgets.VBox):
             for c, t in ((_REFERENCE, "reference"), (_BATCH, "batch"), (_ESTIMATE, "EM estimate (unlabelled batch)"))
         )
         title = widgets.HTML(f"<b>Class mix</b><span style='font-size:12px'>{key}</span>")
-        super().__init__(children=[title, self.figure, self.readout], **kwargs)
+        widgets.VBox.__init__(self, children=[title, self.figure, self.readout], **kwargs)
         self.add_class("logitscope-class-mix")
         self.bars.observe(self._on_bar_click, "selected")
-        self.state.observe(self._recompute, "temperature")
         self._recompute()
 
     # ------------------------------------------------------------------ numbers
@@ -180,8 +179,7 @@ class ClassMixView(widgets.VBox):
         if not 0 <= int(k) < self.frame.n_classes:
             raise ParameterError(f"class index must lie in [0, {self.frame.n_classes}), got {k}")
         rows = np.flatnonzero(self._classes_of_rows == int(k))
-        self.state.select(rows, origin=self.name)
-        return rows
+        return self.select(rows)
 
     def _on_bar_click(self, change: Any) -> None:
         picked = change["new"]
@@ -189,3 +187,6 @@ class ClassMixView(widgets.VBox):
             return
         self.select_class(int(picked[0]))
         self.bars.selected = None
+
+    def on_temperature(self, temperature: float) -> None:
+        self._recompute()

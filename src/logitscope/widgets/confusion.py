@@ -21,8 +21,9 @@ import traitlets
 
 from .. import analysis as an
 from ..errors import ClassNameError, ParameterError
+from ..findings import ConfusionSummary, confusion_summary
 from ..frame import LogitFrame
-from .scatter import view_state
+from .base import LinkedView
 from .state import SharedState
 
 __all__ = ["ConfusionHeatmap", "short_label"]
@@ -45,7 +46,7 @@ def short_label(name: str, limit: int = _LABEL_CHARS) -> str:
     return name if len(name) <= limit else name[: limit - 1] + "…"
 
 
-class ConfusionHeatmap(widgets.VBox):
+class ConfusionHeatmap(LinkedView, widgets.VBox):
     """Heat map of the confusion matrix (rows true class, columns predicted class).
 
     Parameters
@@ -63,8 +64,8 @@ class ConfusionHeatmap(widgets.VBox):
         Entries in the most-confused list.
     k : int, default 1
         Most-confused pairs counted within the top ``k`` (1 = the confusion matrix).
-    name : str, default "confusion"
-        Origin written to the shared state.
+    name : str, optional
+        Readable name shown where the view's selection is described.
 
     Examples
     --------
@@ -80,6 +81,7 @@ class ConfusionHeatmap(widgets.VBox):
     [(2, 0, 1)]
     """
 
+    kind = "confusion matrix"
     normalize = traitlets.Bool(False, help="colour by row share instead of counts")
     hide_diagonal = traitlets.Bool(False, help="draw the diagonal (correct samples) as zero")
     k = traitlets.Int(1, help="most-confused pairs within the top k")
@@ -93,53 +95,26 @@ class ConfusionHeatmap(widgets.VBox):
         normalize: bool = False,
         n_pairs: int = 8,
         k: int = 1,
-        name: str = "confusion",
+        name: str | None = None,
         **kwargs: Any,
     ) -> None:
-        self.frame = frame
-        self.state = view_state(frame, state)
-        self.name = name
+        self.link(frame, state, name)
         if int(max_classes) < 1:
             raise ParameterError(f"max_classes must be at least 1, got {max_classes}")
         self.n_pairs = int(n_pairs)
         self.pairs: list[an.ConfusedPair] = []
         self.clicked: tuple[int, int] | None = None
         if not frame.has_labels:
-            super().__init__(children=[widgets.Label("The confusion matrix needs labels; this frame has none.")])
+            widgets.VBox.__init__(
+                self, children=[widgets.Label("The confusion matrix needs labels; this frame has none.")]
+            )
             self._ready = False
             return
         self._ready = True
+        self._max_classes = int(max_classes)
         kk = frame.n_classes
-        self._labels = np.asarray(frame.labels)
-        self._predicted = np.asarray(frame.sample_scores(self.state.temperature).predicted)
-        self.counts = an.confusion_matrix(self._labels, self._predicted, kk)
-        self._topk: dict[int, np.ndarray] = {1: self.counts}
-        self._class_sizes = self.counts.sum(axis=1)
-
-        # classes drawn individually and the aggregate
-        if kk <= max_classes:
-            self.shown_classes = np.arange(kk)
-        else:
-            off = self.counts.copy()
-            np.fill_diagonal(off, 0)
-            errors = off.sum(axis=0) + off.sum(axis=1)
-            top = np.lexsort((np.arange(kk), -errors))[: int(max_classes)]
-            self.shown_classes = np.sort(top)
-        self.has_other = self.shown_classes.size < kk
-        n_pos = self.shown_classes.size + int(self.has_other)
-        self.position = np.full(kk, n_pos - 1, dtype=np.int64)  # "other" unless shown
-        self.position[self.shown_classes] = np.arange(self.shown_classes.size)
-        self.n_positions = n_pos
-        self.aggregated = np.zeros((n_pos, n_pos), dtype=np.int64)
-        np.add.at(self.aggregated, (self.position[:, None], self.position[None, :]), self.counts)
-        names = frame.classes
-        self.position_names = [names[i] for i in self.shown_classes]
-        if self.has_other:
-            self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
-        self._true_pos = self.position[self._labels]
-        self._pred_pos = self.position[self._predicted]
-        self._cell = self._true_pos * n_pos + self._pred_pos
-
+        self._compute_structure()
+        n_pos = self.n_positions
         ticks = {str(i): short_label(n) for i, n in enumerate(self.position_names)}
         self._s_row = bq.OrdinalScale(reverse=True)
         self._s_col = bq.OrdinalScale()
@@ -218,7 +193,7 @@ class ConfusionHeatmap(widgets.VBox):
         controls = widgets.HBox([self._color_buttons, self._diag_box], layout={"flex_flow": "row wrap"})
         click_row = widgets.HBox([self._row_button, self._col_button], layout={"flex_flow": "row wrap"})
         grid_panel = widgets.VBox([controls, self.figure, click_row, self._note], layout={"flex": "1 1 auto"})
-        super().__init__(children=[widgets.HBox([grid_panel, pair_panel])], **kwargs)
+        widgets.VBox.__init__(self, children=[widgets.HBox([grid_panel, pair_panel])], **kwargs)
         self.add_class("logitscope-confusion")
 
         self.normalize, self.k = bool(normalize), int(self._k_menu.value)
@@ -227,10 +202,47 @@ class ConfusionHeatmap(widgets.VBox):
         self._color_buttons.observe(lambda c: setattr(self, "normalize", c["new"] == "row share"), "value")
         self.observe(self._recolor, ["normalize", "hide_diagonal"])
         self.observe(self._on_k, "k")
-        self.state.observe(self._on_rows, "rows")
         self._recolor()
         self._on_k()
         self._on_rows()
+
+    # ------------------------------------------------------------------ structure
+
+    def _compute_structure(self) -> None:
+        """Counts, the classes drawn on their own, and each row's cell, for the current frame."""
+        frame = self.frame
+        max_classes = self._max_classes
+        kk = frame.n_classes
+        self._labels = np.asarray(frame.labels)
+        self._predicted = np.asarray(frame.sample_scores(self.state.temperature).predicted)
+        self.summary: ConfusionSummary = confusion_summary(frame, self.state.temperature, 1, self.n_pairs)
+        self.counts = self.summary.matrix
+        self._summaries: dict[int, ConfusionSummary] = {1: self.summary}
+        self._class_sizes = self.counts.sum(axis=1)
+
+        # classes drawn individually and the aggregate
+        if kk <= max_classes:
+            self.shown_classes = np.arange(kk)
+        else:
+            off = self.counts.copy()
+            np.fill_diagonal(off, 0)
+            errors = off.sum(axis=0) + off.sum(axis=1)
+            top = np.lexsort((np.arange(kk), -errors))[: int(max_classes)]
+            self.shown_classes = np.sort(top)
+        self.has_other = self.shown_classes.size < kk
+        n_pos = self.shown_classes.size + int(self.has_other)
+        self.position = np.full(kk, n_pos - 1, dtype=np.int64)  # "other" unless shown
+        self.position[self.shown_classes] = np.arange(self.shown_classes.size)
+        self.n_positions = n_pos
+        self.aggregated = np.zeros((n_pos, n_pos), dtype=np.int64)
+        np.add.at(self.aggregated, (self.position[:, None], self.position[None, :]), self.counts)
+        names = frame.classes
+        self.position_names = [names[i] for i in self.shown_classes]
+        if self.has_other:
+            self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
+        self._true_pos = self.position[self._labels]
+        self._pred_pos = self.position[self._predicted]
+        self._cell = self._true_pos * n_pos + self._pred_pos
 
     # ------------------------------------------------------------------ numbers
 
@@ -255,13 +267,17 @@ class ConfusionHeatmap(widgets.VBox):
                 m[-1, -1] = errors
         return m
 
-    def top_k_matrix(self, k: int) -> np.ndarray:
-        """``logitscope.analysis.top_k_confusion`` of the frame (cached per k; k = 1 is the confusion matrix)."""
-        hit = self._topk.get(k)
+    def summary_at(self, k: int) -> ConfusionSummary:
+        """The confusion finding within the top ``k`` (cached per k; k = 1 is the confusion matrix)."""
+        hit = self._summaries.get(k)
         if hit is None:
-            hit = an.top_k_confusion(self.frame.logits, self._labels, k)
-            self._topk[k] = hit
+            hit = confusion_summary(self.frame, self.state.temperature, k, self.n_pairs)
+            self._summaries[k] = hit
         return hit
+
+    def top_k_matrix(self, k: int) -> np.ndarray:
+        """The top-``k`` confusion matrix of the frame (k = 1 is the confusion matrix)."""
+        return self.summary_at(k).top_k_matrix
 
     def _recolor(self, change: Any = None) -> None:
         m = self.matrix()
@@ -273,8 +289,7 @@ class ConfusionHeatmap(widgets.VBox):
                 self._grid.display_format = ".2f" if self.normalize else ".0f"
 
     def _on_k(self, change: Any = None) -> None:
-        m = self.top_k_matrix(self.k)
-        self.pairs = an.most_confused_pairs(m, n=self.n_pairs, class_counts=self._class_sizes)
+        self.pairs = list(self.summary_at(self.k).pairs)
         names = self.frame.classes
         buttons = []
         for pair in self.pairs:
@@ -333,18 +348,15 @@ class ConfusionHeatmap(widgets.VBox):
         """
         mask_t = self._true_mask(true)
         mask_p = self._pred_mask(predicted)
-        self.state.select(np.flatnonzero(mask_t & mask_p), origin=self.name)
-        return self.state.rows
+        return self.select(np.flatnonzero(mask_t & mask_p))
 
     def select_row(self, true: int | str | None) -> np.ndarray:
         """Select every sample of true class ``true`` (None: the "other" classes)."""
-        self.state.select(np.flatnonzero(self._true_mask(true)), origin=self.name)
-        return self.state.rows
+        return self.select(np.flatnonzero(self._true_mask(true)))
 
     def select_column(self, predicted: int | str | None) -> np.ndarray:
         """Select every sample predicted as ``predicted`` (None: the "other" classes)."""
-        self.state.select(np.flatnonzero(self._pred_mask(predicted)), origin=self.name)
-        return self.state.rows
+        return self.select(np.flatnonzero(self._pred_mask(predicted)))
 
     def _true_mask(self, value: int | str | None) -> np.ndarray:
         if value is None:
@@ -363,8 +375,7 @@ class ConfusionHeatmap(widgets.VBox):
             raise ParameterError(f"cell positions must lie in [0, {n}), got ({row}, {column})")
         self.clicked = (int(row), int(column))
         self._update_click_buttons()
-        self.state.select(np.flatnonzero((self._true_pos == row) & (self._pred_pos == column)), origin=self.name)
-        return self.state.rows
+        return self.select(np.flatnonzero((self._true_pos == row) & (self._pred_pos == column)))
 
     def select_pair(self, true: int, other: int) -> np.ndarray:
         """Select samples of class ``true`` with ``other`` among their top ``k`` logits (k = 1: predicted)."""
@@ -380,8 +391,7 @@ class ConfusionHeatmap(widgets.VBox):
             # the same top-k rule as logitscope.analysis.top_k_confusion
             top = np.argpartition(-block, self.k - 1, axis=1)[:, : self.k]
             hit = (top == j).any(axis=1)
-        self.state.select(idx[hit], origin=self.name)
-        return self.state.rows
+        return self.select(idx[hit])
 
     def _on_cell_click(self, mark: Any, content: dict[str, Any]) -> None:
         data = content.get("data") if isinstance(content, dict) else None
@@ -407,4 +417,23 @@ class ConfusionHeatmap(widgets.VBox):
             rows = np.flatnonzero(self._true_pos == r)
         else:
             rows = np.flatnonzero(self._pred_pos == c)
-        self.state.select(rows, origin=self.name)
+        self.select(rows)
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        if self._ready:
+            self._on_rows()
+
+    def on_frame(self) -> None:
+        if not self._ready or not self.frame.has_labels:
+            return
+        self._compute_structure()
+        ticks = {str(i): short_label(n) for i, n in enumerate(self.position_names)}
+        self._ax_col.tick_labels = ticks
+        self._ax_row.tick_labels = ticks
+        self.clicked = None
+        self._row_button.disabled = self._col_button.disabled = True
+        self._recolor()
+        self._on_k()
+        self._on_rows()

@@ -5,25 +5,39 @@ heat map, the sample gallery and card, the temperature dial, the relabel
 queue and the label-issue picker. "Calibrate and decide" holds the
 calibration panel; it is built the first time the tab is opened (or
 :attr:`Dashboard.calibration` is read), so the first view appears sooner.
+"History" plots the set-level numbers of every frame the dashboard has shown.
+
+A dashboard opened before or during training follows the model:
+:meth:`Dashboard.update` shows a new frame in place (also from inside a
+running training loop), keeping the selection, the focused sample and the
+relabel marks by sample id, and the temperature unless told otherwise.
 """
 
 from __future__ import annotations
 
 import html
 import os
+from collections import OrderedDict
+from contextlib import ExitStack
 from typing import TYPE_CHECKING, Any
 
 import ipywidgets as widgets
 import numpy as np
+import pandas as pd
 
+from ..analysis import check_temperature
+from ..errors import ClassNameError, InputTypeError, ParameterError
+from ..findings import calibration_summary, count_selection, epoch_record
 from ..frame import LogitFrame
+from .base import LinkedView
 from .card import SampleCard
 from .confusion import ConfusionHeatmap
 from .dial import TemperatureDial
 from .gallery import SampleGallery
 from .histogram import ConfidenceHistogram
+from .history import EpochHistoryView
 from .relabel import LabelIssuePicker, RelabelQueue
-from .scatter import ScoreScatter, view_state
+from .scatter import ScoreScatter
 from .state import SharedState
 
 if TYPE_CHECKING:
@@ -31,7 +45,9 @@ if TYPE_CHECKING:
 
 __all__ = ["Dashboard"]
 
-TAB_TITLES = ("Explore", "Calibrate and decide")
+TAB_TITLES = ("Explore", "Calibrate and decide", "History")
+#: Frames kept for stepping back to an earlier update (the numbers of every update are kept).
+KEEP_FRAMES = 10
 
 
 def _panel(title: str, child: widgets.Widget, **layout: str) -> widgets.VBox:
@@ -45,7 +61,7 @@ def _row(*panels: widgets.Widget) -> widgets.HBox:
     return widgets.HBox(list(panels), layout=widgets.Layout(width="100%", flex_flow="row wrap", align_items="stretch"))
 
 
-class Dashboard(widgets.VBox):
+class Dashboard(LinkedView, widgets.VBox):
     """All linked views on one frame: brush, click or set ``selected`` and every view follows.
 
     Parameters
@@ -59,6 +75,10 @@ class Dashboard(widgets.VBox):
         queue's default file name when None.
     max_classes : int, default 30
         Classes the confusion heat map draws on their own (the rest are "other").
+    label : str, optional
+        Name of the first frame in the history (default ``"update 0"``).
+    keep_frames : int, default 10
+        How many of the most recent frames are kept to step back to (each holds its logit matrix).
 
     Examples
     --------
@@ -66,11 +86,13 @@ class Dashboard(widgets.VBox):
     >>> frame = logitscope.load_demo("mailroom")
     >>> dash = Dashboard(frame, relabel_path=pathlib.Path(tempfile.mkdtemp()) / "marks.json")
     >>> dash.selected = [4, 8, 15]
-    >>> dash.state.origin, sorted(dash.gallery.page_rows.tolist())
-    ('python', [4, 8, 15])
+    >>> dash.state.origin_name, sorted(dash.gallery.page_rows.tolist())
+    ('Python', [4, 8, 15])
     >>> int(dash.confusion.select_cell("four", "nine").size) == int(dash.confusion.counts[4, 9])
     True
     """
+
+    kind = "dashboard"
 
     def __init__(
         self,
@@ -79,11 +101,15 @@ class Dashboard(widgets.VBox):
         relabel_path: str | os.PathLike[str] | None = None,
         *,
         max_classes: int = 30,
+        label: str | None = None,
+        keep_frames: int = KEEP_FRAMES,
         **kwargs: Any,
     ) -> None:
-        self.frame = frame
-        self.state = view_state(frame, state)
-        st = self.state
+        if isinstance(keep_frames, bool) or not isinstance(keep_frames, int | np.integer) or keep_frames < 1:
+            raise ParameterError(f"keep_frames must be a positive integer, got {keep_frames!r}")
+        st = self.link(frame, state)
+        self.keep_frames = int(keep_frames)
+        self._frames: OrderedDict[int, LogitFrame] = OrderedDict([(0, frame)])
         # Views are told of a new selection in the order they are made here. The histogram comes
         # first: bqplot moves bars on the next animation frame, so its update should leave early
         # (measured with bench/bench_dashboard.py: about 15 ms off the median brush).
@@ -101,7 +127,7 @@ class Dashboard(widgets.VBox):
         self._selection = widgets.Label()
         self._selection.add_class("logitscope-selection")
         self._clear = widgets.Button(description="clear selection", icon="times", layout={"width": "auto"})
-        self._clear.on_click(lambda b: self.state.clear(origin="dashboard"))
+        self._clear.on_click(lambda b: self.state.clear(origin=self.origin))
         title = widgets.HTML("<b>logitscope</b>")
         header = widgets.HBox(
             [title, self._summary, self.dial],
@@ -123,13 +149,17 @@ class Dashboard(widgets.VBox):
         row3 = _row(_panel("Confusion matrix", self.confusion, flex="1.4 1 640px"), side)
         self.explore = widgets.VBox([row1, row2, row3], layout=widgets.Layout(width="100%"))
         self._calibrate_box = widgets.VBox([widgets.Label("building the calibration views…")])
-        self.tabs = widgets.Tab(children=[self.explore, self._calibrate_box], titles=list(TAB_TITLES))
+        self.history_view = EpochHistoryView(
+            [epoch_record(frame, 0, label, st.binning)], on_pick=self.show_update, kept=lambda i: i in self._frames
+        )
+        self.tabs = widgets.Tab(
+            children=[self.explore, self._calibrate_box, self.history_view], titles=list(TAB_TITLES)
+        )
         self.tabs.observe(self._on_tab, "selected_index")
-        super().__init__(children=[header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"), **kwargs)
+        widgets.VBox.__init__(
+            self, children=[header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"), **kwargs
+        )
         self.add_class("logitscope-dashboard")
-        st.observe(self._on_rows, "rows")
-        st.observe(self._on_temperature, "temperature")
-        self._on_rows()
         self._on_temperature()
 
     # ------------------------------------------------------------------ public
@@ -144,12 +174,94 @@ class Dashboard(widgets.VBox):
         self.state.select(rows, origin="python")
 
     @property
+    def views(self) -> list[LinkedView]:
+        """Every linked view of the dashboard (the calibration panel's once it is built), panel last."""
+        out: list[LinkedView] = [
+            self.histogram, self.confusion, self.scatter, self.gallery, self.card, self.dial, self.queue, self.issues
+        ]  # fmt: skip
+        if self._calibration is not None:
+            c = self._calibration
+            out += [c.diagram, c.held_diagram, c.sweep, c.picker, c]
+        return out
+
+    @property
+    def history(self) -> pd.DataFrame:
+        """One row per frame shown (the first included): accuracy, NLL, ECE, fitted T, ..."""
+        return self.history_view.table()
+
+    def update(self, frame: LogitFrame, label: str | None = None, *, temperature: float | None = None) -> None:
+        """Show ``frame`` (a new epoch's outputs, say) in every view, in place.
+
+        The selection, the focused sample and the relabel marks follow by sample id
+        (rows whose id the new frame lacks drop out of the selection); the
+        temperature stays as it is unless ``temperature`` is given. The new frame
+        is added to :attr:`history`. Callable from inside a running training loop:
+        the views update while the cell runs.
+
+        Parameters
+        ----------
+        frame : LogitFrame
+            Same classes, in the same order.
+        label : str, optional
+            Its name in the history (default ``"update <n>"``).
+        temperature : float, optional
+            Set the shared temperature to this value.
+        """
+        self._show(frame, temperature)
+        n = len(self.history_view.records)
+        self._frames[n] = frame
+        while len(self._frames) > self.keep_frames:
+            self._frames.popitem(last=False)
+        self.history_view.add(epoch_record(frame, n, label, self.state.binning))
+
+    def show_update(self, index: int) -> None:
+        """Show again the frame of an earlier update (if it is still kept; see ``keep_frames``)."""
+        if index not in self._frames:
+            kept = ", ".join(str(i) for i in self._frames)
+            raise ParameterError(f"the frame of update {index} is not kept; kept: {kept}")
+        self._show(self._frames[index], None)
+        self.history_view.current = int(index)
+
+    def _show(self, frame: LogitFrame, temperature: float | None) -> None:
+        if not isinstance(frame, LogitFrame):
+            raise InputTypeError(f"frame must be a LogitFrame, got {type(frame).__name__}")
+        if frame.classes != self.frame.classes:
+            raise ClassNameError("the new frame must have the same classes in the same order as the dashboard's")
+        t = None if temperature is None else check_temperature(temperature)
+        old = self.frame
+        index = pd.Index(np.asarray(frame.ids))
+        rows = index.get_indexer(pd.Index(np.asarray(old.ids[self.state.rows])))
+        rows = np.sort(rows[rows >= 0])
+        focus = None
+        if self.state.focus is not None:
+            hit = int(index.get_indexer(pd.Index(np.asarray(old.ids[[self.state.focus]])))[0])
+            focus = hit if hit >= 0 else None
+        views = self.views
+        with ExitStack() as quiet:
+            for v in [*views, self]:
+                quiet.enter_context(v.quietly())
+            origin = self.state.origin
+            self.state.resize(frame.n_samples, rows, focus)
+            self.state.origin = origin if rows.size else ""
+            if t is not None:
+                self.state.temperature = t
+            for v in [*views, self]:
+                v.frame = frame
+        for v in views:
+            v.on_frame()
+        self.on_frame()
+
+    def on_frame(self) -> None:
+        self._on_temperature()
+
+    @property
     def calibration(self) -> CalibrationPanel:
         """The calibration panel of the second tab (built on first use)."""
         if self._calibration is None:
             from .calibration_panel import CalibrationPanel
 
             self._calibration = CalibrationPanel(self.frame, self.state)
+            self._calibration.relabel_store = self.queue.store
             self._calibration.sweep.live = self.tabs.selected_index == 1
             self._calibrate_box.children = [self._calibration]
         return self._calibration
@@ -170,14 +282,10 @@ class Dashboard(widgets.VBox):
             self._selection.value = f"nothing selected: views show all {n:,} samples"
             self._clear.disabled = True
             return
-        text = f"{rows.size:,} of {n:,} samples selected"
-        if self.state.origin:
-            text += f" by {self.state.origin}"
-        if self.frame.has_labels:
-            correct = self.frame.sample_scores(self.state.temperature).correct
-            assert correct is not None  # the frame has labels
-            wrong = int((~correct[rows]).sum())
-            text += f"; {wrong:,} of them misclassified ({wrong / rows.size:.0%})"
+        text = f"{rows.size:,} of {n:,} samples selected{self.selected_by()}"
+        count = count_selection(self.frame, rows, self.state.temperature)
+        if count.n_wrong is not None and count.wrong_share is not None:
+            text += f"; {count.n_wrong:,} of them misclassified ({count.wrong_share:.0%})"
         self._selection.value = text
         self._clear.disabled = False
 
@@ -185,9 +293,14 @@ class Dashboard(widgets.VBox):
         f = self.frame
         text = f"{f.n_samples:,} samples × {f.n_classes:,} classes"
         if f.has_labels:
-            correct = f.sample_scores(self.state.temperature).correct
-            assert correct is not None  # the frame has labels
-            acc = float(correct.mean())
-            text += f", accuracy {acc:.1%}"
+            text += f", accuracy {calibration_summary(f, self.state.temperature).accuracy:.1%}"
         self._summary.value = text
         self._on_rows()
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        self._on_rows()
+
+    def on_temperature(self, temperature: float) -> None:
+        self._on_temperature()

@@ -9,14 +9,15 @@ import ipywidgets as widgets
 
 from .. import analysis as an
 from ..errors import ParameterError
+from ..findings import fitted_temperature
 from ..frame import LogitFrame
-from .scatter import view_state
+from .base import LinkedView
 from .state import SharedState
 
 __all__ = ["TemperatureDial"]
 
 
-class TemperatureDial(widgets.HBox):
+class TemperatureDial(LinkedView, widgets.HBox):
     """Set the shared temperature with a log slider, or fit it (:meth:`LogitFrame.fit_temperature`).
 
     Parameters
@@ -40,6 +41,8 @@ class TemperatureDial(widgets.HBox):
     True
     """
 
+    kind = "temperature dial"
+
     def __init__(
         self,
         frame: LogitFrame,
@@ -51,10 +54,8 @@ class TemperatureDial(widgets.HBox):
     ) -> None:
         if not (0 < t_min < t_max and math.isfinite(t_max)):
             raise ParameterError(f"need 0 < t_min < t_max, got t_min={t_min}, t_max={t_max}")
-        self.frame = frame
-        self.state = view_state(frame, state)
+        self.link(frame, state)
         self.fitted: an.TemperatureFit | None = None
-        self._syncing = False
         self.slider = widgets.FloatLogSlider(
             value=min(max(self.state.temperature, t_min), t_max),
             base=10,
@@ -76,7 +77,8 @@ class TemperatureDial(widgets.HBox):
         self.reset_button = widgets.Button(description="reset", tooltip="set T = 1", layout={"width": "64px"})
         self.readout = widgets.Label()
         self.readout.add_class("logitscope-dial-readout")
-        super().__init__(
+        widgets.HBox.__init__(
+            self,
             children=[self.slider, self.fit_button, self.reset_button, self.readout],
             layout=widgets.Layout(align_items="center", flex_flow="row wrap"),
             **kwargs,
@@ -85,29 +87,28 @@ class TemperatureDial(widgets.HBox):
         self.slider.observe(self._on_slider, "value")
         self.fit_button.on_click(lambda b: self.fit())
         self.reset_button.on_click(lambda b: setattr(self.state, "temperature", 1.0))
-        self.state.observe(self._on_temperature, "temperature")
         self._show()
 
     def fit(self) -> an.TemperatureFit:
         """Fit the temperature on the frame's labels and set it as the shared temperature."""
-        self.fitted = self.frame.fit_temperature()
+        self.fitted = fitted_temperature(self.frame)
         self.state.temperature = self.fitted.temperature
         self._show()
         return self.fitted
 
     def _on_slider(self, change: Any) -> None:
-        if self._syncing:
-            return
-        self.state.temperature = float(change["new"])
+        if not self.is_quiet:
+            self.state.temperature = float(change["new"])
 
-    def _on_temperature(self, change: Any) -> None:
-        t = float(change["new"])
+    def on_temperature(self, temperature: float) -> None:
         lo, hi = 10.0**self.slider.min, 10.0**self.slider.max
-        self._syncing = True
-        try:
-            self.slider.value = min(max(t, lo), hi)
-        finally:
-            self._syncing = False
+        with self.quietly():
+            self.slider.value = min(max(temperature, lo), hi)
+        self._show()
+
+    def on_frame(self) -> None:
+        self.fitted = None
+        self.fit_button.disabled = not self.frame.has_labels
         self._show()
 
     def _show(self) -> None:

@@ -9,9 +9,10 @@ import numpy as np
 import traitlets
 
 from .. import analysis as an
-from ..errors import InputTypeError, ParameterError
+from ..errors import ParameterError
 from ..frame import LogitFrame
 from ._assets import esm
+from .base import LinkedView
 from .state import SharedState
 from .thumbnails import ThumbnailCache, snippet
 
@@ -46,27 +47,7 @@ def top_classes(probs: np.ndarray, k: int) -> np.ndarray:
     return order[:, : min(k, probs.shape[1])]
 
 
-def check_frame(frame: Any, state: SharedState | None) -> SharedState:
-    """Check a view's arguments; return the state to use (a new one when ``state`` is None).
-
-    Examples
-    --------
-    >>> import logitscope
-    >>> check_frame(logitscope.load_demo("helpdesk"), None).n_samples
-    1200
-    """
-    if not isinstance(frame, LogitFrame):
-        raise InputTypeError(f"frame must be a LogitFrame, got {type(frame).__name__}")
-    if state is None:
-        return SharedState(frame.n_samples, temperature=frame.temperature)
-    if not isinstance(state, SharedState):
-        raise InputTypeError(f"state must be a SharedState, got {type(state).__name__}")
-    if state.n_samples != frame.n_samples:
-        raise ParameterError(f"the state is for {state.n_samples} samples but the frame has {frame.n_samples}")
-    return state
-
-
-class SampleGallery(anywidget.AnyWidget):
+class SampleGallery(LinkedView, anywidget.AnyWidget):
     """Tiles of the selected samples (all samples when nothing is selected), one page at a time.
 
     Each tile shows the sample's image thumbnail or the start of its text, its
@@ -98,10 +79,11 @@ class SampleGallery(anywidget.AnyWidget):
     (150, 12)
     >>> gallery.state.select([3, 9, 40], origin="python")
     >>> sorted(gallery.page_rows.tolist()), gallery.scope
-    ([3, 9, 40], '3 selected (python)')
+    ([3, 9, 40], '3 selected (Python)')
     """
 
     _esm = esm("gallery.js")
+    kind = "gallery"
 
     tiles = traitlets.List(traitlets.Dict(), help="the visible page, one dict per tile").tag(sync=True)
     page = traitlets.Int(0, help="visible page, from 0").tag(sync=True)
@@ -123,12 +105,11 @@ class SampleGallery(anywidget.AnyWidget):
         thumbnail_size: int = 64,
         **kwargs: Any,
     ) -> None:
-        st = check_frame(frame, state)
+        st = self.link(frame, state)
         if isinstance(page_size, bool) or not isinstance(page_size, int | np.integer) or page_size < 1:
             raise ParameterError(f"page_size must be a positive integer, got {page_size!r}")
-        self.frame = frame
-        self.state = st
         self.page_size = int(page_size)
+        self._thumbnail_size = int(thumbnail_size)
         self.thumbnails = ThumbnailCache(frame.payload, size=thumbnail_size)
         cols = [c for c in an.SCORE_COLUMNS if c != "predicted" and (frame.has_labels or c in _UNLABELLED)]
         cols.append("row")
@@ -139,9 +120,6 @@ class SampleGallery(anywidget.AnyWidget):
         self._page_rows = np.zeros(0, dtype=np.int64)
         self._busy = False
         super().__init__(sort_columns=cols, sort_by=sort_by, descending=bool(descending), focus=st.focus, **kwargs)
-        st.observe(self._back_to_first_page, "rows")
-        st.observe(self._on_temperature, "temperature")
-        st.observe(self._on_state_focus, "focus")
         self.observe(self._on_page, "page")
         self.observe(self._back_to_first_page, ["sort_by", "descending"])
         self.observe(self._on_focus, "focus")
@@ -179,7 +157,7 @@ class SampleGallery(anywidget.AnyWidget):
         tiles = self._tiles(rows)
         k = int(self.state.rows.size)
         if k:
-            origin = self.state.origin
+            origin = self.selection_source
             scope = f"{k:,} selected" + (f" ({origin})" if origin else "")
         else:
             scope = f"all {n:,} samples"
@@ -266,9 +244,6 @@ class SampleGallery(anywidget.AnyWidget):
             self._busy = False
         self.refresh()
 
-    def _on_temperature(self, change: dict[str, Any]) -> None:
-        self.refresh()
-
     def _on_page(self, change: dict[str, Any]) -> None:
         if not self._busy:
             self.refresh()
@@ -280,15 +255,33 @@ class SampleGallery(anywidget.AnyWidget):
             self._check_sort(value, list(self.sort_columns))
         return value
 
-    def _on_state_focus(self, change: dict[str, Any]) -> None:
-        self.focus = change["new"]
-
     def _on_focus(self, change: dict[str, Any]) -> None:
+        if self.is_quiet:
+            return
         new = change["new"]
         if new is not None and not 0 <= int(new) < self.frame.n_samples:
             self.focus = change["old"]
             return
         self.state.focus = new
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        self._back_to_first_page({})
+
+    def on_temperature(self, temperature: float) -> None:
+        self.refresh()
+
+    def on_focus(self, row: int | None) -> None:
+        self.focus = row
+
+    def on_frame(self) -> None:
+        self.thumbnails = ThumbnailCache(self.frame.payload, size=self._thumbnail_size)
+        self._order_key = None
+        self._order_rows = None
+        with self.quietly():
+            self.focus = self.state.focus
+        self._back_to_first_page({})
 
 
 _UNLABELLED = {"confidence", "entropy", "margin", "logit_margin", "energy"}

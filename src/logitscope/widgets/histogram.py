@@ -19,8 +19,9 @@ from traittypes import Array  # the array trait bqplot declares its own with
 
 from ..errors import ParameterError
 from ..frame import LogitFrame
-from .scatter import COLOR_RIGHT, COLOR_WRONG, SCATTER_SCORES, view_state
+from .base import LinkedView
 from .state import SharedState
+from .style import RIGHT, SELECTED, WRONG, css, score_menu
 
 __all__ = ["ConfidenceHistogram", "QuietIntervalBrush"]
 
@@ -32,11 +33,10 @@ class QuietIntervalBrush(BrushIntervalSelector):
     selected = Array(None, allow_none=True).tag(sync=True, echo_update=False, **array_serialization)
 
 
-_LABEL_SCORES = {"true_probability", "true_log_probability", "true_rank", "brier"}
 _FADED = 0.3
 
 
-class ConfidenceHistogram(widgets.VBox):
+class ConfidenceHistogram(LinkedView, widgets.VBox):
     """Histogram of a per-sample score with correct and wrong samples apart.
 
     Parameters
@@ -51,8 +51,8 @@ class ConfidenceHistogram(widgets.VBox):
         Number of equal-width bins between the smallest and largest value.
     layout_mode : {"stacked", "side by side"}
         How the correct and wrong counts are drawn.
-    name : str, default "histogram"
-        Origin written to the shared state.
+    name : str, optional
+        Readable name shown where the view's selection is described.
 
     Examples
     --------
@@ -66,6 +66,7 @@ class ConfidenceHistogram(widgets.VBox):
     ([0, 0, 1, 1], [1, 0, 0, 0])
     """
 
+    kind = "histogram"
     score = traitlets.Unicode("confidence", help="the score binned")
     layout_mode = traitlets.Enum(["stacked", "side by side"], default_value="stacked")
 
@@ -77,13 +78,11 @@ class ConfidenceHistogram(widgets.VBox):
         score: str = "confidence",
         bins: int = 30,
         layout_mode: str = "stacked",
-        name: str = "histogram",
+        name: str | None = None,
         **kwargs: Any,
     ) -> None:
-        self.frame = frame
-        self.state = view_state(frame, state)
-        self.name = name
-        self.scores_offered = tuple(s for s in SCATTER_SCORES if frame.has_labels or s not in _LABEL_SCORES)
+        self.link(frame, state, name)
+        self.scores_offered = score_menu(frame.has_labels, frame.source)
         if score not in self.scores_offered:
             raise ParameterError(f"score={score!r} is not offered; choose from {self.scores_offered}")
         if int(bins) < 1:
@@ -97,7 +96,7 @@ class ConfidenceHistogram(widgets.VBox):
         self._sy = bq.LinearScale(min=0.0)
         labelled = frame.has_labels
         series = ["correct", "wrong"] if labelled else ["all samples"]
-        colors = [COLOR_RIGHT, COLOR_WRONG] if labelled else [COLOR_RIGHT]
+        colors = [RIGHT, WRONG] if labelled else [RIGHT]
         self._bars = bq.Bars(
             x=np.zeros(1),
             y=np.zeros((len(series), 1)),
@@ -112,7 +111,7 @@ class ConfidenceHistogram(widgets.VBox):
             x=np.zeros(1),
             y=np.zeros((len(series), 1)),
             scales={"x": self._sx, "y": self._sy},
-            colors=["#1f3f66", "#9e1b1b"] if labelled else ["#1f3f66"],
+            colors=[SELECTED, "#7a2e0b"] if labelled else [SELECTED],
             labels=[f"{s}, selected" for s in series],
             padding=0.05,
             type="stacked",
@@ -138,11 +137,11 @@ class ConfidenceHistogram(widgets.VBox):
             options=["stacked", "side by side"], value=layout_mode, style={"button_width": "106px"}
         )
         key = "".join(
-            f'<span style="display:inline-block;width:10px;height:10px;background:{c};margin:0 4px 0 10px"></span>{s}'
-            for c, s in zip(colors, series, strict=True)
+            f"<span class='ls-swatch' style='background:{c}'></span>{s}" for c, s in zip(colors, series, strict=True)
         )
-        self._key = widgets.HTML(f'<span style="font-size:12px">{key} (darker: selected)</span>')
-        super().__init__(
+        self._key = widgets.HTML(f"{css('views')}<span class='ls-key'>{key} (darker: selected)</span>")
+        widgets.VBox.__init__(
+            self,
             children=[
                 widgets.HBox([self._menu, self._mode_buttons], layout={"flex_flow": "row wrap"}),
                 self._key,
@@ -156,8 +155,6 @@ class ConfidenceHistogram(widgets.VBox):
         widgets.link((self._mode_buttons, "value"), (self, "layout_mode"))
         self.observe(self._on_score, "score")
         self.observe(self._on_layout_mode, "layout_mode")
-        self.state.observe(self._on_temperature, "temperature")
-        self.state.observe(self._on_rows, "rows")
         self._on_layout_mode()
         self._redraw()
 
@@ -218,7 +215,7 @@ class ConfidenceHistogram(widgets.VBox):
 
     def _on_rows(self, change: Any = None) -> None:
         rows = self.state.rows
-        if self.state.origin != self.name and self._interval is not None:
+        if not self.owns_selection and self._interval is not None:
             self._interval = None
             self._brush.selected = None  # bqplot redraws the brush from it (its reset does nothing)
         n_series = len(self._groups())
@@ -253,8 +250,7 @@ class ConfidenceHistogram(widgets.VBox):
         lo, hi = sorted((float(low), float(high)))
         v = self.values()
         self._interval = (lo, hi)
-        self.state.select(np.flatnonzero((v >= lo) & (v <= hi)), origin=self.name)
-        return self.state.rows
+        return self.select(np.flatnonzero((v >= lo) & (v <= hi)))
 
     def _on_brush(self, change: Any) -> None:
         b = self._brush
@@ -262,11 +258,24 @@ class ConfidenceHistogram(widgets.VBox):
             return
         sel = b.selected
         if sel is None or len(sel) < 2:
-            if self._interval is not None and self.state.origin == self.name:
+            if self._interval is not None and self.owns_selection:
                 self._interval = None
-                self.state.clear(origin=self.name)
+                self.clear_selection()
             return
         interval = tuple(sorted((float(sel[0]), float(sel[1]))))
         if interval == self._interval:
             return
         self.select_interval(*interval)
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        self._on_rows()
+
+    def on_temperature(self, temperature: float) -> None:
+        self._on_temperature(None)
+
+    def on_frame(self) -> None:
+        self._interval = None
+        self._brush.selected = None
+        self._redraw()

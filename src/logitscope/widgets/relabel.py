@@ -17,7 +17,7 @@ from ..errors import ClassNameError, LabelError, LogitscopeError, ParameterError
 from ..frame import LogitFrame
 from ..relabel_store import RelabelStore, RelabelStoreWarning, default_path
 from ._assets import esm
-from .gallery import check_frame
+from .base import LinkedView
 from .state import SharedState
 
 __all__ = ["LabelIssuePicker", "RelabelQueue"]
@@ -29,7 +29,7 @@ METHODS = ("confident_learning", "self_confidence", "normalized_margin")
 UI_MARK_LIMIT = 5000
 
 
-class RelabelQueue(anywidget.AnyWidget):
+class RelabelQueue(LinkedView, anywidget.AnyWidget):
     """Mark samples for relabeling with a suggested label and a note; the list lives in a JSON file.
 
     Marks are made on the current selection or on the focused sample. Every
@@ -66,6 +66,7 @@ class RelabelQueue(anywidget.AnyWidget):
     """
 
     _esm = esm("relabel.js")
+    kind = "relabel list"
 
     _kind = traitlets.Unicode("queue").tag(sync=True)
     path = traitlets.Unicode("", help="the JSON file the marks are saved to").tag(sync=True)
@@ -85,9 +86,7 @@ class RelabelQueue(anywidget.AnyWidget):
         path: str | os.PathLike[str] | None = None,
         **kwargs: Any,
     ) -> None:
-        st = check_frame(frame, state)
-        self.frame = frame
-        self.state = st
+        self.link(frame, state)
         target = default_path(frame) if path is None else Path(path)
         with warnings.catch_warnings(record=True) as caught:
             warnings.simplefilter("always", RelabelStoreWarning)
@@ -104,7 +103,6 @@ class RelabelQueue(anywidget.AnyWidget):
             self.status = f"reopened {loaded:,} mark{'s' if loaded != 1 else ''} from the file"
         else:
             self.status = "no marks yet; the list is saved to the file on every change"
-        st.observe(self._on_state, ["rows", "focus", "temperature"])
         self.on_msg(self._on_msg)
         self._on_state()
         self._show()
@@ -269,8 +267,23 @@ class RelabelQueue(anywidget.AnyWidget):
         except (LogitscopeError, OSError) as exc:
             self.status = f"not done: {exc}"
 
+    # ------------------------------------------------------------------ hooks of the linked view
 
-class LabelIssuePicker(anywidget.AnyWidget):
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        self._on_state()
+
+    def on_focus(self, row: int | None) -> None:
+        self._on_state()
+
+    def on_frame(self) -> None:
+        self.store.use_frame(self.frame)
+        self._suggestions = {}
+        self.classes = list(self.frame.classes)
+        self._on_state()
+        self._show()
+
+
+class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
     """Select the samples whose given label is most likely wrong.
 
     Ranks the frame with :func:`logitscope.analysis.rank_label_issues` (method
@@ -294,11 +307,12 @@ class LabelIssuePicker(anywidget.AnyWidget):
     >>> frame = logitscope.load_demo("mailroom")
     >>> picker = LabelIssuePicker(frame, n=10)
     >>> picker.pick()
-    >>> picker.state.rows.size, picker.state.origin
+    >>> picker.state.rows.size, picker.state.origin_name
     (10, 'label issue picker')
     """
 
     _esm = esm("relabel.js")
+    kind = "label issue picker"
 
     _kind = traitlets.Unicode("picker").tag(sync=True)
     methods = traitlets.List(traitlets.Unicode(), list(METHODS)).tag(sync=True)
@@ -316,9 +330,7 @@ class LabelIssuePicker(anywidget.AnyWidget):
         queue: RelabelQueue | None = None,
         **kwargs: Any,
     ) -> None:
-        st = check_frame(frame, state)
-        self.frame = frame
-        self.state = st
+        self.link(frame, state)
         self.queue = queue
         self.ranking: an.LabelIssueRanking | None = None
         self._cache: dict[tuple[str, float], an.LabelIssueRanking] = {}
@@ -362,7 +374,7 @@ class LabelIssuePicker(anywidget.AnyWidget):
         self.ranking = top
         if self.queue is not None:
             self.queue.set_suggestions(top.index, top.suggested)
-        self.state.select(top.index, origin=PICKER_NAME)
+        self.select(top.index)
         flagged = (
             f" of {len(ranking):,} flagged" if self.method == "confident_learning" else f" of {len(ranking):,} ranked"
         )
@@ -375,3 +387,8 @@ class LabelIssuePicker(anywidget.AnyWidget):
                 self.pick()
             except LogitscopeError as exc:
                 self.status = f"not done: {exc}"
+
+    def on_frame(self) -> None:
+        self.ranking = None
+        self._cache = {}
+        self.enabled = self.frame.has_labels

@@ -29,54 +29,23 @@ from bqplot.traits import array_serialization
 from PIL import Image as PILImage
 from traittypes import Array  # the array trait bqplot declares its own with
 
-from ..errors import InputTypeError, ParameterError
+from ..errors import ParameterError
 from ..frame import LogitFrame
+from .base import LinkedView
 from .state import SharedState
+from .style import CLASS_COLORS, RIGHT, SELECTED, WRONG, css, score_menu
 
 __all__ = [
-    "CLASS_COLORS",
-    "COLOR_RIGHT",
-    "COLOR_WRONG",
-    "SCATTER_SCORES",
+    "FADED",
     "PointRaster",
     "QuietBrush",
     "QuietLines",
     "ScoreScatter",
-    "view_state",
 ]
 
-#: Per-sample scores offered as axes, in menu order (label-dependent ones need labels).
-SCATTER_SCORES = (
-    "confidence",
-    "entropy",
-    "margin",
-    "logit_margin",
-    "energy",
-    "true_probability",
-    "true_log_probability",
-    "true_rank",
-    "brier",
-)
-_LABEL_SCORES = {"true_probability", "true_log_probability", "true_rank", "brier"}
 _COLOR_MODES = {"correct / wrong": "correct", "true class": "label", "predicted class": "predicted"}
-
-COLOR_RIGHT = "#4c78a8"
-COLOR_WRONG = "#e45756"
-#: Ten categorical colours (cycled for more classes).
-CLASS_COLORS = (
-    "#4c78a8",
-    "#f58518",
-    "#54a24b",
-    "#e45756",
-    "#72b7b2",
-    "#eeca3b",
-    "#b279a2",
-    "#ff9da6",
-    "#9d755d",
-    "#79706e",
-)
 #: Alpha factor of the points outside the selection while a selection is shown.
-FADED = 0.18
+FADED = 0.35
 
 
 class QuietBrush(BrushSelector):
@@ -91,27 +60,6 @@ class QuietLines(bq.Lines):
     """bqplot's line mark whose ``selected`` (sent by a lasso) is not echoed back to the browser."""
 
     selected = Array(None, allow_none=True).tag(sync=True, echo_update=False, **array_serialization)
-
-
-def view_state(frame: object, state: SharedState | None) -> SharedState:
-    """Check a view's ``frame`` and ``state`` arguments; return the state to use (new when None).
-
-    Examples
-    --------
-    >>> import numpy as np
-    >>> from logitscope import LogitFrame
-    >>> view_state(LogitFrame(np.zeros((3, 2))), None).n_samples
-    3
-    """
-    if not isinstance(frame, LogitFrame):
-        raise InputTypeError(f"frame must be a LogitFrame, got {type(frame).__name__}")
-    if state is None:
-        return SharedState(frame.n_samples, frame.temperature)
-    if not isinstance(state, SharedState):
-        raise InputTypeError(f"state must be a SharedState, got {type(state).__name__}")
-    if state.n_samples != frame.n_samples:
-        raise ParameterError(f"the state is for {state.n_samples} samples but the frame has {frame.n_samples}")
-    return state
 
 
 def _domain(values: np.ndarray) -> tuple[float, float]:
@@ -275,7 +223,7 @@ class PointRaster:
         return buf.getvalue()
 
 
-class ScoreScatter(widgets.VBox):
+class ScoreScatter(LinkedView, widgets.VBox):
     """Scatter of two per-sample scores, one point per sample, with rectangle and lasso brushing.
 
     Parameters
@@ -285,13 +233,13 @@ class ScoreScatter(widgets.VBox):
     state : SharedState, optional
         Shared state; a new one is made when None.
     x, y : str
-        Scores on the axes (see :data:`SCATTER_SCORES`).
+        Scores on the axes (see :func:`logitscope.widgets.style.score_menu`).
     color : {"correct / wrong", "true class", "predicted class"}
         Point colours (without labels only "predicted class" is offered).
     resolution : (int, int), default (520, 360)
         Size in pixels of the image the points are painted into.
-    name : str, default "scatter"
-        Origin written to the shared state.
+    name : str, optional
+        Readable name shown where the view's selection is described.
 
     Examples
     --------
@@ -301,10 +249,11 @@ class ScoreScatter(widgets.VBox):
     >>> view = ScoreScatter(frame, x="confidence", y="margin")
     >>> view.select_box((0.5, 0.8), (-1.0, 1.0)).tolist()  # rows with confidence in [0.5, 0.8]
     [1, 2]
-    >>> view.state.rows.tolist(), view.state.origin
-    ([1, 2], 'scatter')
+    >>> view.state.rows.tolist(), view.state.origin_name
+    ([1, 2], 'score scatter')
     """
 
+    kind = "score scatter"
     x_score = traitlets.Unicode("confidence", help="score on the x axis")
     y_score = traitlets.Unicode("entropy", help="score on the y axis")
     color_by = traitlets.Unicode("correct / wrong", help="how points are coloured")
@@ -319,13 +268,11 @@ class ScoreScatter(widgets.VBox):
         y: str = "entropy",
         color: str | None = None,
         resolution: tuple[int, int] = (520, 360),
-        name: str = "scatter",
+        name: str | None = None,
         **kwargs: Any,
     ) -> None:
-        self.frame = frame
-        self.state = view_state(frame, state)
-        self.name = name
-        self.scores_offered = tuple(s for s in SCATTER_SCORES if frame.has_labels or s not in _LABEL_SCORES)
+        self.link(frame, state, name)
+        self.scores_offered = score_menu(frame.has_labels, frame.source)
         self.colors_offered = tuple(c for c, field in _COLOR_MODES.items() if frame.has_labels or field == "predicted")
         for value, what in ((x, "x"), (y, "y")):
             if value not in self.scores_offered:
@@ -408,7 +355,7 @@ class ScoreScatter(widgets.VBox):
             [self._x_menu, self._y_menu, self._c_menu, self._mode_buttons],
             layout=widgets.Layout(flex_flow="row wrap", align_items="center"),
         )
-        super().__init__(children=[controls, self._key, self.figure], **kwargs)
+        widgets.VBox.__init__(self, children=[controls, self._key, self.figure], **kwargs)
         self.add_class("logitscope-scatter")
 
         self.x_score, self.y_score, self.color_by = x, y, color
@@ -419,9 +366,6 @@ class ScoreScatter(widgets.VBox):
         self.observe(self._on_axes, ["x_score", "y_score"])
         self.observe(self._on_color, "color_by")
         self.observe(self._on_mode, "mode")
-        self.state.observe(self._on_temperature, "temperature")
-        self.state.observe(self._on_rows, "rows")
-        self.state.observe(self._show_focus, "focus")
         self._place()
         self._recolor()
         self._on_rows()
@@ -492,8 +436,8 @@ class ScoreScatter(widgets.VBox):
             correct = self.frame.sample_scores(self.state.temperature).correct
             assert correct is not None  # this colour mode is offered only when the frame has labels
             self._groups = (~correct).astype(np.int64)
-            self._palette = [COLOR_RIGHT, COLOR_WRONG]
-            key = [(COLOR_RIGHT, "correct"), (COLOR_WRONG, "wrong")]
+            self._palette = [RIGHT, WRONG]
+            key = [(RIGHT, "correct"), (WRONG, "wrong")]
         else:
             cls = np.asarray(self.frame.labels if field == "label" else self.frame.sample_scores().predicted)
             self._groups = cls.astype(np.int64) % len(CLASS_COLORS)
@@ -501,12 +445,12 @@ class ScoreScatter(widgets.VBox):
             names = self.frame.classes
             key = [(CLASS_COLORS[i], names[i]) for i in range(len(names))] if len(names) <= len(CLASS_COLORS) else []
         self._base = None
-        swatch = '<span style="display:inline-block;width:10px;height:10px;background:{};margin:0 3px 0 8px"></span>{}'
+        swatch = "<span class='ls-swatch' style='background:{}'></span>{}"
         # class names are user data: escaped before they reach HTML
         parts = "".join(swatch.format(c, html.escape(str(s))) for c, s in key)
         if not key:
             parts = "colour: class index modulo 10"
-        self._key.value = f'<span style="font-size:12px">{parts}</span>'
+        self._key.value = f"{css('views')}<span class='ls-key'>{parts}</span>"
 
     def _draw(self) -> None:
         """Paint the points (selection opaque over the rest faded) and send what changed."""
@@ -569,7 +513,7 @@ class ScoreScatter(widgets.VBox):
     # ------------------------------------------------------------------ selection in
 
     def _on_rows(self, change: Any = None) -> None:
-        if self.state.origin != self.name:
+        if not self.owns_selection:
             self._clear_tools()
         self._draw()
 
@@ -612,8 +556,7 @@ class ScoreScatter(widgets.VBox):
         x, y = self.column(self.x_score), self.column(self.y_score)
         rows = np.flatnonzero((x >= x0) & (x <= x1) & (y >= y0) & (y <= y1))
         self._last_box = (x0, x1, y0, y1)
-        self.state.select(rows, origin=self.name)
-        return self.state.rows
+        return self.select(rows)
 
     def _on_brush(self, change: Any) -> None:
         b = self._brush
@@ -622,9 +565,9 @@ class ScoreScatter(widgets.VBox):
         sx, sy = b.selected_x, b.selected_y
         if sx is None or sy is None or len(sx) < 2 or len(sy) < 2:
             # the brush was removed: clear only a selection this view made
-            if self._last_box is not None and self.state.origin == self.name:
+            if self._last_box is not None and self.owns_selection:
                 self._last_box = None
-                self.state.clear(origin=self.name)
+                self.clear_selection()
             return
         x0, x1 = sorted((float(sx[0]), float(sx[1])))
         y0, y1 = sorted((float(sy[0]), float(sy[1])))
@@ -649,18 +592,17 @@ class ScoreScatter(widgets.VBox):
                 interactions={},
             )
             self._probe.observe(self._on_lasso, "selected")
-            self._lasso = LassoSelector(x_scale=self._sx, y_scale=self._sy, marks=[self._probe], color="#3d5f8f")
+            self._lasso = LassoSelector(x_scale=self._sx, y_scale=self._sy, marks=[self._probe], color=SELECTED)
             self.figure.marks = [self._mark, self._top_mark, self._focus_mark, self._probe]
         return self._lasso
 
     def _on_lasso(self, change: Any) -> None:
         picked = change["new"]
         if picked is None or len(picked) == 0:
-            if self.state.origin == self.name:
-                self.state.clear(origin=self.name)
+            self.clear_selection()
             return
         self._last_box = None
-        self.state.select(np.asarray(picked, dtype=np.int64), origin=self.name)
+        self.select(np.asarray(picked, dtype=np.int64))
 
     def select_lasso(self, rows: Any) -> np.ndarray:
         """Select the given rows as a lasso does (the browser sends the rows inside the shape)."""
@@ -686,3 +628,19 @@ class ScoreScatter(widgets.VBox):
             self._lasso.reset()
         self._place()
         self._draw()
+
+    # ------------------------------------------------------------------ hooks of the linked view
+
+    def on_selection(self, rows: np.ndarray, mine: bool) -> None:
+        self._on_rows()
+
+    def on_temperature(self, temperature: float) -> None:
+        self._on_temperature(None)
+
+    def on_focus(self, row: int | None) -> None:
+        self._show_focus()
+
+    def on_frame(self) -> None:
+        self._columns, self._columns_t = {}, None
+        self._recolor()
+        self._on_axes(None)

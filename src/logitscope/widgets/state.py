@@ -14,59 +14,10 @@ from typing import Any
 import numpy as np
 import traitlets
 
-from ..errors import ShapeError
+from ..findings import Binning
+from ..rows import as_rows, rows_or_all
 
 __all__ = ["SharedState", "as_rows", "rows_or_all"]
-
-
-def as_rows(rows: Any, n_samples: int) -> np.ndarray:
-    """Normalise a selection to sorted unique int64 row positions in ``[0, n_samples)``.
-
-    Accepts positions, a boolean mask of length ``n_samples``, or None (nothing).
-
-    Examples
-    --------
-    >>> as_rows([5, 1, 1], 10).tolist()
-    [1, 5]
-    >>> as_rows(np.array([True, False, True]), 3).tolist()
-    [0, 2]
-    """
-    if rows is None:
-        return np.zeros(0, dtype=np.int64)
-    r = np.asarray(rows)
-    if r.dtype == bool:
-        if r.shape != (n_samples,):
-            raise ShapeError(f"a boolean selection must have shape ({n_samples},), got {r.shape}")
-        return np.flatnonzero(r).astype(np.int64)
-    if r.size == 0:
-        return np.zeros(0, dtype=np.int64)
-    if r.dtype.kind not in "iu":
-        if r.dtype.kind == "f" and np.all(r == np.round(r)):
-            r = r.astype(np.int64)
-        else:
-            raise ShapeError(f"a selection must hold row positions (integers), got dtype {r.dtype}")
-    r = np.array(r, dtype=np.int64).ravel()  # a copy: the caller may reuse its array
-    if r.size > 1 and not bool(np.all(r[1:] > r[:-1])):  # already sorted and unique: skip the sort
-        r = np.unique(r)
-    if r[0] < 0 or r[-1] >= n_samples:
-        raise ShapeError(f"selected rows must lie in [0, {n_samples}); got {r[0]} .. {r[-1]}")
-    return r
-
-
-def rows_or_all(rows: Any, n_samples: int, what: str) -> np.ndarray:
-    """Rows a view works on: ``as_rows(rows)``, or every row when ``rows`` is None; never empty.
-
-    Examples
-    --------
-    >>> rows_or_all(None, 3, "a diagram").tolist()
-    [0, 1, 2]
-    """
-    r = np.arange(n_samples, dtype=np.int64) if rows is None else as_rows(rows, n_samples)
-    if r.size == 0:
-        from ..errors import ParameterError
-
-        raise ParameterError(f"{what} needs at least one row")
-    return r
 
 
 class SharedState(traitlets.HasTraits):
@@ -90,14 +41,58 @@ class SharedState(traitlets.HasTraits):
     """
 
     rows = traitlets.Instance(np.ndarray, help="selected row positions, sorted and unique")
-    origin = traitlets.Unicode("", help="name of the view that made the current selection")
+    origin = traitlets.Unicode("", help="token of the view that made the current selection (see register)")
     temperature = traitlets.Float(1.0, help="softmax temperature every view follows")
     threshold = traitlets.Float(None, allow_none=True, help="confidence threshold chosen for review, if any")
     focus = traitlets.Int(None, allow_none=True, help="the one row shown large in the sample card, if any")
+    binning = traitlets.Instance(Binning, help="the one binning every calibration number of the views uses")
 
     def __init__(self, n_samples: int, temperature: float = 1.0, **kwargs: Any) -> None:
         self.n_samples = int(n_samples)
+        self._names: dict[str, str] = {"": "", "python": "Python"}
+        self._counts: dict[str, int] = {}
+        kwargs.setdefault("binning", Binning())
         super().__init__(rows=np.zeros(0, dtype=np.int64), temperature=float(temperature), **kwargs)
+
+    def register(self, name: str) -> str:
+        """A new origin token for a view called ``name``; two views of one name get two tokens.
+
+        Examples
+        --------
+        >>> state = SharedState(3)
+        >>> state.register("reliability diagram"), state.register("reliability diagram")
+        ('reliability diagram#1', 'reliability diagram#2')
+        >>> state.name_of("reliability diagram#2")
+        'reliability diagram'
+        """
+        k = self._counts.get(name, 0) + 1
+        self._counts[name] = k
+        token = f"{name}#{k}"
+        self._names[token] = name
+        return token
+
+    def name_of(self, token: str) -> str:
+        """The readable name behind an origin token (the token itself when unknown)."""
+        return self._names.get(token, token)
+
+    @property
+    def origin_name(self) -> str:
+        """Readable name of whoever made the current selection ("" when nobody did)."""
+        return self.name_of(self.origin)
+
+    def resize(self, n_samples: int, rows: Any = None, focus: int | None = None) -> None:
+        """Follow a new frame of ``n_samples`` rows: the selection becomes ``rows``, the focus ``focus``.
+
+        Used when a dashboard shows another frame; the caller maps the old
+        selection to the new rows (by sample id).
+        """
+        new = as_rows(rows, int(n_samples))
+        with self.hold_trait_notifications():
+            self.focus = None
+            self.n_samples = int(n_samples)
+            self.rows = new
+            if focus is not None:
+                self.focus = int(focus)
 
     @traitlets.validate("rows")
     def _valid_rows(self, proposal: Any) -> np.ndarray:
@@ -118,7 +113,7 @@ class SharedState(traitlets.HasTraits):
         return t
 
     def select(self, rows: Any, origin: str = "") -> None:
-        """Replace the selection; ``origin`` names the view making it.
+        """Replace the selection; ``origin`` is the token of the view making it.
 
         Observers of ``rows`` fire only when the rows change; ``origin`` is set first.
         """
