@@ -13,6 +13,7 @@ import os
 import sys
 import threading
 import time
+import warnings
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any, Literal, TypeVar
@@ -145,6 +146,8 @@ def _parser() -> argparse.ArgumentParser:
     g2 = r.add_mutually_exclusive_group()
     g2.add_argument("--target-accuracy", type=float)
     g2.add_argument("--costs", type=_parse_costs, metavar="ERROR,REVIEW")
+    r.add_argument("--per-class", action="store_true", help="with --target-accuracy: one threshold per class too")
+    r.add_argument("--relabel", metavar="FILE.json", help="a relabel list whose marks and notes the report lists")
     r.add_argument("--title")
     _add_compare_parser(sub)
     _add_demo_parser(sub)
@@ -224,9 +227,17 @@ def _cmd_report(args: argparse.Namespace) -> int:
         options["target_accuracy"] = args.target_accuracy
     if args.costs is not None:
         options["costs"] = args.costs
+    if args.per_class:
+        options["per_class"] = True
+    if args.relabel:
+        options["relabel"] = args.relabel
     if args.title:
         options["title"] = args.title
-    _Progress("writing the report").run(lambda: write_report(frame, args.output, **options))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        _Progress("writing the report").run(lambda: write_report(frame, args.output, **options))
+    for w in caught:  # one line per problem, as every message of the command line
+        print(f"logitscope: warning: {' '.join(str(w.message).split())}", file=sys.stderr)
     print(f"wrote {Path(args.output)}")
     return 0
 
