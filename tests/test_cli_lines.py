@@ -54,7 +54,7 @@ def _entries(help_text: str) -> list[tuple[str, str]]:
     return entries
 
 
-@pytest.mark.parametrize("command", [None, "summary", "demo-data", "report", "compare"])
+@pytest.mark.parametrize("command", [None, "summary", "demo-data", "report", "compare", "demo"])
 def test_every_option_and_subcommand_has_a_help_line(capsys, command):
     with pytest.raises(SystemExit):
         cli.main([command, "--help"] if command else ["--help"])

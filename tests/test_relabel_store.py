@@ -228,12 +228,41 @@ def test_two_stores_on_one_file_do_not_lose_marks(mailroom: LogitFrame, path: Pa
 
 def test_default_path_and_fingerprint(mailroom: LogitFrame, tmp_path: Path) -> None:
     p = default_path(mailroom, tmp_path)
-    assert p.parent == tmp_path and p.name == f"logitscope-relabel-{fingerprint(mailroom)}.json"
+    # the name says which data: first and last class, sample count, then the fingerprint of ids and classes
+    assert p.parent == tmp_path and p.name == f"relabel-zero-to-nine-1797-samples-{fingerprint(mailroom, 8)}.json"
     # other ids give another file; other numbers with the same ids and classes give the same file
     shifted = LogitFrame(mailroom.logits * 2, mailroom.labels, mailroom.classes, mailroom.ids)
-    assert fingerprint(shifted) == fingerprint(mailroom)
+    assert fingerprint(shifted) == fingerprint(mailroom) and default_path(shifted, tmp_path) == p
     fewer = mailroom.subset(np.arange(100))
     assert fingerprint(fewer) != fingerprint(mailroom)
+    # two data sets with the same classes and size but other samples are kept apart by the fingerprint
+    renamed = LogitFrame(mailroom.logits, mailroom.labels, mailroom.classes, [f"scan-{i}" for i in range(1797)])
+    other = default_path(renamed, tmp_path)
+    assert other != p and other.name.startswith("relabel-zero-to-nine-1797-samples-")
+
+
+def test_default_path_is_a_plain_name_for_any_class_names(tmp_path: Path) -> None:
+    z = np.zeros((3, 3))
+    odd = LogitFrame(z, classes=["../../etc/passwd", "b", "Ärger / Büro"])
+    assert default_path(odd, tmp_path).name.startswith("relabel-etc-passwd-to-arger-buro-3-samples-")
+    assert default_path(odd, tmp_path).parent == tmp_path
+    nothing_left = LogitFrame(z, classes=["数字一", "数字二", "数字三"])  # no ASCII letter survives
+    assert default_path(nothing_left, tmp_path).name.startswith("relabel-3-classes-3-samples-")
+    two = LogitFrame(np.zeros((4, 2)), classes=["routine", "urgent"])
+    assert default_path(two, tmp_path).name.startswith("relabel-routine-and-urgent-4-samples-")
+    unnamed = LogitFrame(np.zeros((5, 4)))  # classes default to their indices
+    assert default_path(unnamed, tmp_path).name.startswith(f"relabel-{unnamed.classes[0]}-to-{unnamed.classes[-1]}-")
+
+
+def test_default_path_keeps_a_list_under_the_earlier_name(mailroom: LogitFrame, tmp_path: Path) -> None:
+    earlier = tmp_path / f"logitscope-relabel-{fingerprint(mailroom)}.json"
+    RelabelStore(earlier, mailroom).add("card-00003", "eight")
+    assert default_path(mailroom, tmp_path) == earlier  # its marks stay in view
+    assert RelabelStore(default_path(mailroom, tmp_path), mailroom).ids == ["card-00003"]
+    # once a list under the new name exists, that one is used
+    new = tmp_path / f"relabel-zero-to-nine-1797-samples-{fingerprint(mailroom, 8)}.json"
+    RelabelStore(new, mailroom).add("card-00004", "nine")
+    assert default_path(mailroom, tmp_path) == new
 
 
 def test_csv_export_defuses_spreadsheet_formulas(tmp_path):

@@ -1,4 +1,4 @@
-"""Command line: ``logitscope summary | demo-data | report | compare``.
+"""Command line: ``logitscope summary | demo-data | report | compare | demo``.
 
 Errors in the input end with exit code 2 and one readable line on stderr;
 warnings are one line on stderr each (``logitscope: warning: ...``).
@@ -179,6 +179,7 @@ def _parser() -> argparse.ArgumentParser:
     r.add_argument("--relabel", metavar="FILE.json", help="a relabel list whose marks and notes the report lists")
     r.add_argument("--title", help="the title at the top of the report")
     _add_compare_parser(sub)
+    _add_demo_parser(sub)
     return p
 
 
@@ -188,6 +189,23 @@ def _add_compare_parser(sub: Any) -> None:
     c.add_argument("file_b", metavar="B", help="the second checkpoint's frame, the same samples in any order")
     c.add_argument("--drop-missing", action="store_true", help="compare the shared ids when the files differ")
     c.add_argument("--json", action="store_true", help="print one JSON object")
+
+
+def _add_demo_parser(sub: Any) -> None:
+    from .launch import DEFAULT_FOLDER, DEMO_NOTEBOOKS
+
+    j = sub.add_parser(
+        "demo",
+        help="open a demo notebook in JupyterLab (a working copy, so the bundled one stays clean)",
+        description="Copy the example notebooks into a working folder (an edited copy is kept) and start "
+        "JupyterLab on one of them; adds --allow-root when run as root.",
+    )
+    j.add_argument("name", nargs="?", choices=list(DEMO_NOTEBOOKS), default="mailroom", help="which demo to open")
+    j.add_argument("--dir", default=DEFAULT_FOLDER, help=f"working folder for the copies (default ./{DEFAULT_FOLDER})")
+    j.add_argument("--port", type=int, help="port for JupyterLab (default: its own, 8888 or the next free one)")
+    j.add_argument("--no-browser", action="store_true", help="do not open a web browser; open the printed address")
+    j.add_argument("--reset", action="store_true", help="replace edited copies (each is kept as a backup beside it)")
+    j.add_argument("--print-command", action="store_true", help="prepare the copies and print the command, not run it")
 
 
 def _cmd_summary(args: argparse.Namespace) -> int:
@@ -279,6 +297,15 @@ def _cmd_report(args: argparse.Namespace) -> int:
     return 0
 
 
+def _cmd_launch(args: argparse.Namespace) -> int:
+    from .launch import run_demo
+
+    return run_demo(
+        args.name, args.dir, port=args.port, no_browser=args.no_browser, reset=args.reset,
+        print_command=args.print_command,
+    )  # fmt: skip
+
+
 def format_comparison(result: dict[str, Any]) -> str:
     """Render :meth:`logitscope.checkpoints.FrameComparison.to_dict` as readable text.
 
@@ -361,7 +388,13 @@ def _one_line(exc: BaseException) -> str:
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``logitscope`` command."""
     args = _parser().parse_args(argv)
-    handlers = {"summary": _cmd_summary, "demo-data": _cmd_demo, "report": _cmd_report, "compare": _cmd_compare}
+    handlers = {
+        "summary": _cmd_summary,
+        "demo-data": _cmd_demo,
+        "report": _cmd_report,
+        "compare": _cmd_compare,
+        "demo": _cmd_launch,
+    }
     with warnings.catch_warnings():
         warnings.showwarning = _one_line_warning  # restored when the block ends
         try:

@@ -38,6 +38,7 @@ import json
 import math
 import os
 import re
+import unicodedata
 import warnings
 from collections.abc import Iterable, Iterator
 from datetime import UTC, datetime
@@ -201,16 +202,47 @@ def fingerprint(frame: LogitFrame, length: int = 10) -> str:
     return h.hexdigest()[:length]
 
 
+def _slug(text: str, limit: int = 24) -> str:
+    """``text`` as lower-case ASCII letters, digits and hyphens, at most ``limit`` characters."""
+    plain = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode("ascii")
+    return re.sub(r"[^a-z0-9]+", "-", plain.lower()).strip("-")[:limit].strip("-")
+
+
 def default_path(frame: LogitFrame, folder: str | os.PathLike[str] = ".") -> Path:
-    """Where a relabel list goes when no path is given: ``logitscope-relabel-<fingerprint>.json``.
+    """Where a relabel list goes when no path is given: a name that says which data it is about.
+
+    The name is ``relabel-<first class>-to-<last class>-<N>-samples-<fingerprint>.json``,
+    for the mail-room digits ``relabel-zero-to-nine-1797-samples-<8 hex>.json``. The
+    classes and the sample count tell a reader of the folder which data set a list
+    belongs to; the :func:`fingerprint` of the ids and classes keeps apart two data
+    sets that share classes and size, and makes the same data (a later checkpoint's
+    logits, say) reopen the same list. Class names are reduced to lower-case ASCII
+    letters, digits and hyphens; with two classes the name reads ``<first>-and-<second>``,
+    and ``<K>-classes`` stands in when nothing of a class name is left. A list already kept under the earlier name
+    ``logitscope-relabel-<10 hex>.json`` in ``folder`` is used instead, so its marks stay
+    in view.
 
     Examples
     --------
-    >>> import logitscope
-    >>> default_path(logitscope.load_demo("mailroom")).name.startswith("logitscope-relabel-")
+    >>> import logitscope, re
+    >>> name = default_path(logitscope.load_demo("mailroom")).name
+    >>> re.fullmatch(r"relabel-zero-to-nine-1797-samples-[0-9a-f]{8}[.]json", name) is not None
     True
     """
-    return Path(folder) / f"logitscope-relabel-{fingerprint(frame)}.json"
+    base = Path(folder)
+    earlier = base / f"logitscope-relabel-{fingerprint(frame)}.json"
+    first, last = _slug(frame.classes[0]), _slug(frame.classes[-1])
+    k = frame.n_classes
+    if k == 1:
+        classes = first or "1-class"
+    elif first and last:
+        classes = f"{first}-{'and' if k == 2 else 'to'}-{last}"
+    else:
+        classes = f"{k}-classes"
+    path = base / f"relabel-{classes}-{frame.n_samples}-samples-{fingerprint(frame, 8)}.json"
+    if not path.exists() and earlier.exists():
+        return earlier
+    return path
 
 
 class RelabelStore:
