@@ -141,9 +141,9 @@ def test_classwise_ece_matches_the_papers_formula(make_logits, t):
 
 def test_calibration_input_errors(make_logits):
     z, y = make_logits(n=20, k=3)
-    with pytest.raises(ParameterError, match="n_bins must be a positive integer"):
+    with pytest.raises(ParameterError, match=r"n_bins must lie in \[1, 100\]"):
         expected_calibration_error(z, y, n_bins=0)
-    with pytest.raises(ParameterError, match="n_bins must be a positive integer"):
+    with pytest.raises(ParameterError, match=r"n_bins must be an integer in \[1, 100\]"):
         classwise_calibration_error(z, y, n_bins=2.5)
     with pytest.raises(ParameterError, match="strategy must be 'uniform' or 'quantile'"):
         expected_calibration_error(z, y, strategy="log")

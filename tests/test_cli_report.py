@@ -101,3 +101,40 @@ def test_input_errors_exit_with_code_2_and_one_line(demo_file: Path, tmp_path: P
     assert done.returncode == 2 and "missing.npz" in done.stderr
     done = _run("report", "u.npz", "-o", "x.html", "--costs", "ten,1", cwd=tmp_path)
     assert done.returncode == 2 and "--costs" in done.stderr
+
+
+def test_relabel_list_and_per_class_thresholds_from_the_command_line(demo_file: Path, tmp_path: Path) -> None:
+    from logitscope.relabel_store import RelabelStore
+
+    frame = LogitFrame.read(demo_file)
+    store = RelabelStore(tmp_path / "marks.json", frame)
+    store.add(frame.ids[7], "one", note="faint <stroke>")
+    done = _run(
+        "report", str(demo_file), "-o", "r.html", "--target-accuracy", "0.98", "--per-class",
+        "--relabel", "marks.json", cwd=tmp_path,
+    )  # fmt: skip
+    assert done.returncode == 0, done.stderr
+    page = read_report(tmp_path / "r.html")
+    assert page.value("marks-count") == 1
+    assert "faint <stroke>" in page.text("mark-0")  # shown as text (the parser unescaped it)
+    assert "faint &lt;stroke&gt;" in (tmp_path / "r.html").read_text()
+    # one threshold per predicted class, by brute force on that class's rows
+    p = special.softmax(np.asarray(frame.logits, dtype=np.float64), axis=1)
+    conf, pred = p.max(axis=1), p.argmax(axis=1)
+    ok = pred == frame.labels
+    for k in range(frame.n_classes):
+        m = pred == k
+        own = [t for t in np.unique(conf[m]) if ok[m][conf[m] >= t].mean() >= 0.98]
+        if own:
+            assert page.value(f"own-{k}-value") == pytest.approx(min(own), rel=1e-9)
+    # a relabel list naming ids this file lacks: the marks are kept, one warning line on stderr
+    other = RelabelStore(tmp_path / "other.json")
+    other.add("not-a-card", "one", row=0, given_label="two")
+    done = _run("report", str(demo_file), "-o", "o.html", "--relabel", "other.json", cwd=tmp_path)
+    assert done.returncode == 0, done.stderr
+    lines = done.stderr.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("logitscope: warning:") and "not-a-card" in lines[0]
+    assert read_report(tmp_path / "o.html").value("marks-unmatched") == 1
+    done = _run("report", str(demo_file), "-o", "m.html", "--relabel", "missing.json", cwd=tmp_path)
+    assert done.returncode == 2 and "missing.json" in done.stderr and len(done.stderr.strip().splitlines()) == 1
+    assert not (tmp_path / "m.html").exists()

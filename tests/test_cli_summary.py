@@ -209,7 +209,7 @@ def _bad_inputs(tmp_path):
         (["summary", tmp_path / "prob.npz"], "rows must sum to 1"),
         (["summary", tmp_path / "nolab.npz", "--target-accuracy", "0.9"], "needs labels"),
         (["summary", tmp_path / "nolab.npz", "--fit-temperature"], "needs labels"),
-        (["summary", tmp_path / "ok.npz", "--temperature", "-1"], "temperature must be positive"),
+        (["summary", tmp_path / "ok.npz", "--temperature", "-1"], "temperature must lie in [0.001, 1000]"),
         (["summary", tmp_path / "ok.npz", "--target-accuracy", "1.5"], "target accuracy must lie in"),
         (["demo-data", tmp_path / "demo.csv"], "unknown file type '.csv'"),
     ]

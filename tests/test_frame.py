@@ -60,7 +60,12 @@ def test_from_torch_tensors(make_logits):
     t = torch.from_numpy(z)
     f = LogitFrame(t, labels=torch.from_numpy(y))
     assert f.logits.dtype == np.float32
-    assert np.shares_memory(f.logits, z)  # a CPU tensor is read through its numpy view, no copy
+    assert not np.shares_memory(f.logits, z)  # the frame holds its own copy ...
+    t.mul_(2.0)  # ... so an in-place op on the tensor leaves it as it was
+    np.testing.assert_array_equal(f.logits, z / 2.0)
+    t.div_(2.0)
+    shared = LogitFrame(t, copy=False)  # a CPU tensor is read through its numpy view, no copy
+    assert np.shares_memory(shared.logits, z)
     np.testing.assert_array_equal(f.labels, y)
     # probabilities against torch.softmax
     np.testing.assert_allclose(f.probabilities(), torch.softmax(t, dim=1).numpy(), rtol=1e-6)
@@ -69,12 +74,13 @@ def test_from_torch_tensors(make_logits):
 
 
 @pytest.mark.parametrize("dtype", [np.float16, np.float32, np.float64])
-def test_dtype_kept_without_copy(rng, backend, dtype):
+def test_dtype_kept_and_shared_only_when_asked(rng, backend, dtype):
     z = (rng.normal(size=(50, 4)) * 3).astype(dtype)
     y = rng.integers(0, 4, 50)
-    f = LogitFrame(z, labels=y)
+    f = LogitFrame(z, labels=y, copy=False)
     assert f.logits.dtype == dtype
     assert np.shares_memory(f.logits, z)
+    assert not np.shares_memory(f.labels, y)  # labels are always the frame's own
     assert not f.logits.flags.writeable
     with pytest.raises(ValueError, match="read-only"):
         f.logits[0, 0] = 1.0
@@ -179,7 +185,7 @@ def test_from_estimator_without_logits():
     # predict_proba has exact zeros here; they come back as zero to within float64's smallest normal
     assert np.any(forest.predict_proba(x) == 0)
     np.testing.assert_allclose(f.probabilities(), forest.predict_proba(x), rtol=1e-12, atol=1e-300)
-    with pytest.raises(InputTypeError, match="LinearSVC has no predict_proba"):
+    with pytest.raises(InputTypeError, match="LinearSVC has a decision_function but no predict_proba"):
         LogitFrame.from_estimator(LinearSVC().fit(x[:, :3], y), x[:, :3], y)
     with pytest.raises(InputTypeError, match="fitted scikit-learn classifier"):
         LogitFrame.from_estimator(RandomForestClassifier(), x, y)

@@ -9,7 +9,7 @@ import pandas as pd
 import pytest
 
 from logitscope import LogitFrame
-from logitscope.errors import DuplicateError, FileFormatError, LabelError, NonFiniteError
+from logitscope.errors import ClassNameError, DuplicateError, FileFormatError, LabelError, NonFiniteError
 
 DIGITS = ["zero", "one", "two"]
 
@@ -219,8 +219,8 @@ def test_corrupt_and_misshapen_parquet(tmp_path):
     pd.DataFrame({"id": [1, 2], "score": [0.1, 0.2]}).to_parquet(tmp_path / "nocols.parquet")
     with pytest.raises(FileFormatError, match="needs columns 'logit:<class>'"):
         LogitFrame.read(tmp_path / "nocols.parquet")
-    pd.DataFrame({"logit:a": [0.0, 1.0], "logit:b": [1.0, 0.0], "label": [0, 5]}).to_parquet(tmp_path / "l.parquet")
-    with pytest.raises(LabelError, match=r"l.parquet: .*out of range at row 1"):
+    pd.DataFrame({"logit:a": [0.0, 2.0], "logit:b": [2.0, 0.0], "label": ["a", "e"]}).to_parquet(tmp_path / "l.parquet")
+    with pytest.raises(ClassNameError, match=r"l.parquet: .*not among the 2 classes: 'e' \(at row 1\)"):
         LogitFrame.read(tmp_path / "l.parquet")
 
 

@@ -48,12 +48,13 @@ def test_top_k_accuracy_matches_sklearn(make_logits, backend, k_classes):
     assert top_k_accuracy(z, y, k=1) == pytest.approx(accuracy_score(y, z.argmax(axis=1)))
 
 
-def test_top_k_ties_count_for_the_label():
-    # documented convention (unlike scikit-learn, which prefers the higher class index on ties):
-    # a label tied at the k-th place is a hit, since fewer than k classes are strictly larger
+def test_top_k_ties_go_to_the_lower_index():
+    # documented rule (as numpy.argmax; scikit-learn prefers the higher class index on ties): among tied
+    # logits the lower class index ranks first, so top-1 is the accuracy (tests/test_ties.py has more)
     z = np.array([[1.0, 1.0, 0.0]])
     assert top_k_accuracy(z, [0], k=1) == 1.0
-    assert top_k_accuracy(z, [1], k=1) == 1.0
+    assert top_k_accuracy(z, [1], k=1) == 0.0 == accuracy_score([1], z.argmax(axis=1))
+    assert top_k_accuracy(z, [1], k=2) == 1.0
     assert top_k_accuracy(z, [2], k=2) == 0.0
 
 

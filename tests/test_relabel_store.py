@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import os
 import warnings
 from pathlib import Path
 
@@ -11,7 +12,14 @@ import pandas as pd
 import pytest
 
 from logitscope import ClassNameError, FileFormatError, LogitFrame, ParameterError
-from logitscope.relabel_store import FIELDS, RelabelStore, RelabelStoreWarning, default_path, fingerprint
+from logitscope.relabel_store import (
+    FIELDS,
+    RelabelConflictWarning,
+    RelabelStore,
+    RelabelStoreWarning,
+    default_path,
+    fingerprint,
+)
 
 
 @pytest.fixture
@@ -79,22 +87,19 @@ def test_failed_write_keeps_old_file_and_memory(mailroom: LogitFrame, path: Path
     store.add("card-00010", "one")
     old_bytes = path.read_bytes()
 
-    real_dump = json.dump
-
-    def dump_then_fail(obj, fh, **kw):
-        text = json.dumps(obj, **kw)
-        fh.write(text[: len(text) // 2])  # half a document reaches the temporary file
+    def fsync_fails(fd: int) -> None:  # the whole new document is in the temporary file, not yet on disk
         raise OSError("disk full (simulated)")
 
-    monkeypatch.setattr(json, "dump", dump_then_fail)
+    monkeypatch.setattr(os, "fsync", fsync_fails)
     with pytest.raises(OSError, match="disk full"):
         store.add("card-00011", "two")
     with pytest.raises(OSError, match="disk full"):
         store.remove("card-00010")
-    monkeypatch.setattr(json, "dump", real_dump)
+    monkeypatch.undo()
 
     assert path.read_bytes() == old_bytes  # the old list, whole
-    assert [p.name for p in path.parent.iterdir()] == [path.name]  # no temporary file left behind
+    # no temporary file left behind (the empty lock file stays)
+    assert sorted(p.name for p in path.parent.iterdir()) == sorted([path.name, f".{path.name}.lock"])
     assert store.ids == ["card-00010"]  # memory agrees with the file
     assert RelabelStore(path, mailroom).ids == ["card-00010"]
 
@@ -223,12 +228,41 @@ def test_two_stores_on_one_file_do_not_lose_marks(mailroom: LogitFrame, path: Pa
 
 def test_default_path_and_fingerprint(mailroom: LogitFrame, tmp_path: Path) -> None:
     p = default_path(mailroom, tmp_path)
-    assert p.parent == tmp_path and p.name == f"logitscope-relabel-{fingerprint(mailroom)}.json"
+    # the name says which data: first and last class, sample count, then the fingerprint of ids and classes
+    assert p.parent == tmp_path and p.name == f"relabel-zero-to-nine-1797-samples-{fingerprint(mailroom, 8)}.json"
     # other ids give another file; other numbers with the same ids and classes give the same file
     shifted = LogitFrame(mailroom.logits * 2, mailroom.labels, mailroom.classes, mailroom.ids)
-    assert fingerprint(shifted) == fingerprint(mailroom)
+    assert fingerprint(shifted) == fingerprint(mailroom) and default_path(shifted, tmp_path) == p
     fewer = mailroom.subset(np.arange(100))
     assert fingerprint(fewer) != fingerprint(mailroom)
+    # two data sets with the same classes and size but other samples are kept apart by the fingerprint
+    renamed = LogitFrame(mailroom.logits, mailroom.labels, mailroom.classes, [f"scan-{i}" for i in range(1797)])
+    other = default_path(renamed, tmp_path)
+    assert other != p and other.name.startswith("relabel-zero-to-nine-1797-samples-")
+
+
+def test_default_path_is_a_plain_name_for_any_class_names(tmp_path: Path) -> None:
+    z = np.zeros((3, 3))
+    odd = LogitFrame(z, classes=["../../etc/passwd", "b", "Ärger / Büro"])
+    assert default_path(odd, tmp_path).name.startswith("relabel-etc-passwd-to-arger-buro-3-samples-")
+    assert default_path(odd, tmp_path).parent == tmp_path
+    nothing_left = LogitFrame(z, classes=["数字一", "数字二", "数字三"])  # no ASCII letter survives
+    assert default_path(nothing_left, tmp_path).name.startswith("relabel-3-classes-3-samples-")
+    two = LogitFrame(np.zeros((4, 2)), classes=["routine", "urgent"])
+    assert default_path(two, tmp_path).name.startswith("relabel-routine-and-urgent-4-samples-")
+    unnamed = LogitFrame(np.zeros((5, 4)))  # classes default to their indices
+    assert default_path(unnamed, tmp_path).name.startswith(f"relabel-{unnamed.classes[0]}-to-{unnamed.classes[-1]}-")
+
+
+def test_default_path_keeps_a_list_under_the_earlier_name(mailroom: LogitFrame, tmp_path: Path) -> None:
+    earlier = tmp_path / f"logitscope-relabel-{fingerprint(mailroom)}.json"
+    RelabelStore(earlier, mailroom).add("card-00003", "eight")
+    assert default_path(mailroom, tmp_path) == earlier  # its marks stay in view
+    assert RelabelStore(default_path(mailroom, tmp_path), mailroom).ids == ["card-00003"]
+    # once a list under the new name exists, that one is used
+    new = tmp_path / f"relabel-zero-to-nine-1797-samples-{fingerprint(mailroom, 8)}.json"
+    RelabelStore(new, mailroom).add("card-00004", "nine")
+    assert default_path(mailroom, tmp_path) == new
 
 
 def test_csv_export_defuses_spreadsheet_formulas(tmp_path):
@@ -240,10 +274,123 @@ def test_csv_export_defuses_spreadsheet_formulas(tmp_path):
     from logitscope import LogitFrame
     from logitscope.relabel_store import RelabelStore
 
-    frame = LogitFrame(np.eye(3), labels=[0, 1, 2], classes=["a", "b", "c"], ids=["=cmd()", "-2", "ok"])
+    frame = LogitFrame(np.eye(3) * 3, labels=[0, 1, 2], classes=["a", "b", "c"], ids=["=cmd()", "-2", "ok"])
     store = RelabelStore(tmp_path / "marks.json", frame=frame)
     store.add("=cmd()", suggested_label="b", note="@SUM(A1)")
     store.add("-2", suggested_label="c", note="fine")
     out = pd.read_csv(store.export_csv(tmp_path / "marks.csv"), dtype=str)
     assert set(out["id"]) == {"'=cmd()", "-2"}
     assert "'@SUM(A1)" in set(out["note"])
+
+
+# --------------------------------------------------------------------------- hostile files and text
+
+
+def _doc(marks: list) -> str:
+    return json.dumps({"format": "logitscope-relabel", "version": 1, "classes": [], "marks": marks})
+
+
+GOOD = {"id": "T-1", "row": 0, "given_label": "billing", "suggested_label": "hardware", "note": "", "marked_at": None}
+
+
+@pytest.mark.parametrize(
+    ("content", "why"),
+    [
+        ("[" * 200_000 + "]" * 200_000, "nested too deeply"),  # the json module's parser recurses
+        ('{"format": "logitscope-relabel", "version": ' + "9" * 5000 + ', "marks": []}', "cannot be read"),
+        ('{"format": "logitscope-relabel", "version": 1e999, "marks": []}', "cannot be read"),
+        (
+            '{"format": "logitscope-relabel", "version": 1, "marks": [{"id": NaN, "suggested_label": "a"}]}',
+            "cannot be read",
+        ),
+        (_doc([{**GOOD, "row": "seven"}]), "mark 0 has the row 'seven'"),
+        (_doc([{**GOOD, "row": 2.5}]), "mark 0 has the row 2.5"),
+        (_doc([{**GOOD, "row": -1}]), "mark 0 has the row -1"),
+        (_doc([{**GOOD, "row": 2**70}]), "mark 0 has the row"),
+        (_doc([{**GOOD, "row": True}]), "mark 0 has the row True"),
+        (_doc([GOOD, {**GOOD, "id": "T-2", "note": {"a": 1}}]), "mark 1 has a note of type dict"),
+        (_doc([{**GOOD, "id": ["T-1"]}]), "mark 0 has an id of type list"),
+        (_doc([{**GOOD, "id": None}]), "mark 0 has an id of type NoneType"),
+        (_doc([{**GOOD, "given_label": 3}]), "mark 0 has a given_label of type int"),
+        (_doc([{**GOOD, "later_field": json.loads("[" * 40 + "]" * 40)}]), "nested more than 32 levels"),
+        (_doc([{**GOOD, "note": "\ud800"}]), "not valid Unicode"),
+        ('{"format": "logitscope-relabel", "version": 1, "classes": [1, 2], "marks": []}', "class names as strings"),
+        (_doc([GOOD, {**GOOD, "row": 1}]), "marked twice"),
+    ],
+    ids=lambda v: v[:30] if isinstance(v, str) else None,
+)
+def test_hostile_file_is_refused_at_open_and_kept(tmp_path: Path, content: str, why: str) -> None:
+    path = tmp_path / "marks.json"
+    path.write_bytes(content.encode("utf-8", "surrogatepass"))
+    before = path.read_bytes()
+    with pytest.raises(FileFormatError, match=why) as info:
+        RelabelStore(path)
+    assert "left untouched" in str(info.value) and len(str(info.value)) < 400
+    assert path.read_bytes() == before
+
+
+def test_marks_with_bad_text_or_rows_are_refused(tmp_path: Path) -> None:
+    store = RelabelStore(tmp_path / "m.json")
+    with pytest.raises(ParameterError, match="not valid Unicode"):
+        store.add("T-1", "billing", note="half a pair \ud83d")
+    with pytest.raises(ParameterError, match="row of sample 'T-1' must be a whole number"):
+        store.add("T-1", "billing", row=2.5)  # type: ignore[arg-type]
+    with pytest.raises(ParameterError, match="finite number"):
+        store.add(float("nan"), "billing")
+    assert not (tmp_path / "m.json").exists()
+
+
+HOSTILE = [
+    "ok\r=SUM(1+1)",
+    'line one\n=HYPERLINK("http://x")',
+    "=cmd|' /C calc'!A0",
+    "+1+2",
+    "-1+cmd",
+    "@SUM(A1)",
+    "\t=1",
+    "\r=1",
+    "\n@x",
+    "\t1",  # a tab before a number is not a plain number
+    'quote " and , comma\r\n and crlf',
+]
+
+
+def test_csv_export_keeps_one_row_per_mark_and_defuses_every_formula(tmp_path: Path) -> None:
+    # RFC 4180: a field holding CR or LF is quoted, so the csv module and pandas (two readers outside our
+    # code) read back one row per mark; OWASP "CSV Injection": no cell starts with = + - @ tab or CR
+    import csv
+
+    store = RelabelStore(tmp_path / "m.json")
+    for i, text in enumerate(HOSTILE):
+        store.add(f"{text}#{i}", "billing", note=text, row=i, given_label=text)
+    out = store.export_csv(tmp_path / "m.csv")
+    with out.open(newline="", encoding="utf-8") as fh:
+        rows = list(csv.reader(fh))
+    back = pd.read_csv(out, dtype=str, keep_default_na=False)
+    assert len(rows) == len(HOSTILE) + 1 and len(back) == len(HOSTILE)
+    cells = [c for r in rows[1:] for c in r] + back.to_numpy().ravel().tolist()
+    assert not [c for c in cells if c[:1] in ("=", "+", "-", "@", "\t", "\r", "\n")]
+    # the text itself survives behind the defusing quote
+    assert [n[1:] if n.startswith("'") else n for n in back["note"]] == HOSTILE
+    assert back["note"].iloc[0] == HOSTILE[0]  # "ok..." needs no quote: the CR stays inside the cell
+    assert back["row"].tolist() == [str(i) for i in range(len(HOSTILE))]
+
+
+def test_conflicting_edits_of_one_id_later_wins_and_warns(tmp_path: Path) -> None:
+    path = tmp_path / "m.json"
+    first, second = RelabelStore(path), RelabelStore(path)
+    first.add("T-1", "billing", note="first")
+    with pytest.warns(RelabelConflictWarning, match=r"another store changed the mark of sample 'T-1'"):
+        second.add("T-1", "hardware", note="second")  # second never saw first's mark: a conflict, second wins
+    assert RelabelStore(path).get("T-1")["note"] == "second"
+    with pytest.warns(RelabelConflictWarning, match="'T-1'"):
+        first.update("T-1", note="first again")  # first's view is stale: the later edit wins again
+    assert RelabelStore(path).get("T-1")["note"] == "first again"
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")
+        first.update("T-1", note="no one else wrote since")  # no warning without a conflict
+        second.add("T-2", "billing")  # other ids: merged without a word
+    assert RelabelStore(path).ids == ["T-1", "T-2"]
+    # clear() removes what this store shows; a mark another store added since is kept
+    first.clear()
+    assert RelabelStore(path).ids == ["T-2"] and first.ids == ["T-2"]

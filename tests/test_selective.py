@@ -46,8 +46,9 @@ def test_risk_coverage_against_brute_force(conf_correct):
 def _aurc_loop(conf: np.ndarray, ok: np.ndarray) -> float:
     """(1/N) sum_n errors among the n most confident / n (Geifman and El-Yaniv), a direct loop.
 
-    Ties in confidence are ordered errors first (the documented pessimistic choice)."""
-    order = sorted(range(conf.size), key=lambda i: (-conf[i], bool(ok[i])))
+    Without ties (this helper's use) the order of the samples is unique."""
+    assert np.unique(conf).size == conf.size
+    order = sorted(range(conf.size), key=lambda i: -conf[i])
     total, errors = 0.0, 0
     for n, i in enumerate(order, start=1):
         errors += not ok[i]
@@ -61,9 +62,8 @@ def test_aurc_against_a_direct_loop(conf_correct):
 
 
 def test_aurc_ties_and_ends(rng):
+    # ties are grouped (tests/test_ties.py checks the grouped value against its own loop)
     conf = np.round(rng.uniform(0.3, 1.0, 300), 1)  # few distinct values: many ties
-    ok = rng.random(300) < conf
-    assert aurc(conf, ok) == pytest.approx(_aurc_loop(conf, ok), rel=1e-12)
     # every prediction right: 0; every prediction wrong: 1 (each prefix has error rate 1)
     assert aurc(conf, np.ones(300, bool)) == 0.0
     assert aurc(conf, np.zeros(300, bool)) == 1.0
@@ -205,7 +205,9 @@ def test_evaluate_threshold_against_brute_force(conf_correct):
         assert c.accuracy == pytest.approx(ok[m].mean())
         ref = binomtest(int(ok[m].sum()), int(m.sum())).proportion_ci(confidence_level=0.9, method="exact")
         assert c.interval == pytest.approx((ref.low, ref.high), abs=1e-12)
-    nothing = evaluate_threshold(conf, ok, 2.0)
+    nothing = evaluate_threshold(conf, ok, np.inf)  # documented: inf accepts nothing
+    with pytest.raises(ParameterError, match=r"threshold must lie in \[0, 1\]"):
+        evaluate_threshold(conf, ok, 2.0)
     assert nothing.n_accepted == 0 and np.isnan(nothing.accuracy) and nothing.to_dict()["accuracy"] is None
 
 
@@ -230,7 +232,82 @@ def test_selective_input_errors():
         threshold_for_accuracy([0.5], [True], 1.5)
     with pytest.raises(ParameterError, match=r"target accuracy must lie in \(0, 1\]"):
         threshold_for_accuracy([0.5], [True], 0.0)
-    with pytest.raises(ParameterError, match="costs must be non-negative"):
+    with pytest.raises(ParameterError, match=r"error cost must lie in \[0, 1e\+09\]"):
         threshold_for_cost([0.5], [True], -1.0, 1.0)
     with pytest.raises(ShapeError, match="predicted must have shape"):
         per_class_thresholds([0.5, 0.6], [True, True], [0], 0.9, 2)
+
+
+def _lower_bounds_loop(conf: np.ndarray, ok: np.ndarray, level: float, method: str) -> tuple[np.ndarray, np.ndarray]:
+    """Every distinct confidence and the lower end of scipy.stats.binomtest's interval for accepting it, a loop."""
+    thresholds = np.unique(conf)
+    lows = []
+    for t in thresholds:
+        m = conf >= t
+        test = binomtest(int(ok[m].sum()), int(m.sum()))
+        lows.append(test.proportion_ci(confidence_level=level, method=SCIPY_METHOD[method]).low)
+    return thresholds, np.array(lows)
+
+
+@pytest.mark.parametrize("method", ["wilson", "clopper-pearson"])
+def test_vectorised_lower_bound_rule_against_binomtest(rng, method):
+    # the rule is computed on arrays (Wilson's closed form; Clopper-Pearson through the binomial tail with
+    # Chernoff and Ash bounds deciding most rows); reference: scipy.stats.binomtest(k, n).proportion_ci
+    # at every distinct confidence, the lowest one whose lower bound reaches the target
+    cases = 0
+    for n in (1, 3, 40, 600):
+        for quality in (0.6, 0.9, 0.99):
+            conf = np.round(rng.uniform(0.2, 1.0, n), 2)  # ties included
+            ok = rng.random(n) < np.clip(conf + quality - 0.8, 0.0, 1.0)
+            for level in (0.9, 0.95):
+                thresholds, lows = _lower_bounds_loop(conf, ok, level, method)
+                for target in (0.5, 0.8, 0.9, 0.95, 0.99):
+                    reached = thresholds[lows >= target - 1e-12]
+                    want = reached.min() if reached.size else np.inf
+                    c = threshold_for_accuracy(conf, ok, target, level=level, method=method, use_lower_bound=True)
+                    assert c.threshold == want, (n, quality, target, level)
+                    assert c.feasible == np.isfinite(want)
+                    if c.feasible:
+                        assert c.interval[0] >= target - 1e-12
+                    cases += c.feasible
+    assert cases > 20  # the comparison covers feasible choices, not only empty ones
+
+
+def test_lower_bound_rule_edges():
+    # all right: the Clopper-Pearson lower bound of n out of n is (alpha / 2) ** (1 / n) (Clopper and Pearson 1934)
+    conf = np.linspace(1.0, 0.5, 200)
+    ok = np.ones(200, bool)
+    c = threshold_for_accuracy(conf, ok, 0.98, method="clopper-pearson", use_lower_bound=True)
+    n_needed = int(np.ceil(np.log(0.025) / np.log(0.98)))  # smallest n with 0.025 ** (1 / n) >= 0.98
+    assert c.n_accepted == 200 and 0.025 ** (1 / 200) >= 0.98 and n_needed <= 200
+    few = threshold_for_accuracy(conf[:100], ok[:100], 0.98, method="clopper-pearson", use_lower_bound=True)
+    assert few.feasible == (0.025 ** (1 / 100) >= 0.98 - 1e-12)
+    # target 1: no finite sample reaches a lower bound of 1
+    assert not threshold_for_accuracy(conf, ok, 1.0, use_lower_bound=True).feasible
+    with pytest.raises(ParameterError, match="method must be"):
+        threshold_for_accuracy(conf, ok, 0.9, method="normal", use_lower_bound=True)
+
+
+def test_the_tail_bounds_the_clopper_pearson_rule_relies_on():
+    # The vectorised Clopper-Pearson rule decides most rows by two bounds on P(X >= k), X ~ Bin(n, t),
+    # k / n = lam > t, D = KL(Bernoulli(lam) || Bernoulli(t)) (the bounds as recalled from memory:
+    # Chernoff's bound, and Ash 1990, Lemma 4.7.2 / MacWilliams and Sloane 1977, Ch. 10, Lemma 7 for the
+    # binomial coefficient). Checked here against scipy.stats.binom on a grid.
+    from scipy import stats
+
+    for n in (1, 2, 5, 17, 60, 250, 1000):
+        k = np.arange(1, n + 1)
+        for t in (0.05, 0.3, 0.5, 0.8, 0.95, 0.999):
+            lam = k / n
+            m = lam > t
+            if not m.any():
+                continue
+            kk, lm = k[m], lam[m]
+            with np.errstate(divide="ignore", invalid="ignore"):
+                d = lm * np.log(lm / t) + np.where(lm < 1, (1 - lm) * np.log((1 - lm) / (1 - t)), 0.0)
+            tail = stats.binom.sf(kk - 1, n, t)  # P(X >= k)
+            assert np.all(tail <= np.exp(-n * d) * (1 + 1e-12))  # Chernoff
+            inner = lm < 1
+            pmf = stats.binom.pmf(kk[inner], n, t)
+            lower = np.exp(-n * d[inner]) / np.sqrt(8 * n * lm[inner] * (1 - lm[inner]))
+            assert np.all(pmf >= lower * (1 - 1e-12))  # Ash: P(X >= k) >= P(X = k) >= this

@@ -19,7 +19,7 @@ from logitscope.analysis import (
     temperature_moments,
     temperature_sweep,
 )
-from logitscope.errors import ParameterError
+from logitscope.errors import InputTypeError, ParameterError, ShapeError
 
 
 def _scipy_nll(z: np.ndarray, y: np.ndarray, t: float) -> float:
@@ -153,3 +153,130 @@ def test_sweep_input_errors(make_logits):
             temperature_sweep(z, y, bad)
     with pytest.raises(ParameterError, match="inverse temperature"):
         temperature_moments(z, y, 0.0)
+
+
+# --------------------------------------------------------------------------- flat NLL (issue 7, item 6)
+
+
+@pytest.mark.parametrize("dtype", [np.float16, np.float32, np.float64])
+@pytest.mark.parametrize("kind", ["constant matrix", "constant rows"])
+def test_flat_nll_fits_t_1_without_a_warning(rng, backend, dtype, kind):
+    # Every row constant: softmax(z / T) is uniform at every T, so the NLL is log K whatever T
+    # (scipy.special.log_softmax below). No temperature is better: the fit returns T = 1, no warning.
+    n, k = 300, 5
+    z = np.zeros((n, k)) if kind == "constant matrix" else np.repeat(rng.normal(size=(n, 1)) * 50, k, axis=1)
+    z = z.astype(dtype)
+    y = rng.integers(0, k, n)
+    for t in (1e-3, 1.0, 1e3):
+        assert _scipy_nll(z.astype(np.float64), y, t) == pytest.approx(np.log(k), rel=1e-12)
+    with warnings.catch_warnings():
+        warnings.simplefilter("error")  # before the fix: T = 1000 with a bound warning
+        fit = fit_temperature(z, y)
+    assert fit.temperature == 1.0 and fit.flat and fit.converged and not fit.at_bound
+    assert fit.nll_before == fit.nll_after == pytest.approx(np.log(k), rel=1e-12)
+    assert fit.passes == 1 and fit.newton_steps == 0
+
+
+def test_not_flat_when_one_row_varies(rng, backend):
+    z = np.zeros((200, 4))
+    z[0] = [2.0, 0.0, 0.0, 0.0]
+    y = np.r_[1, rng.integers(0, 4, 199)]  # the one informative row is wrong: a larger T helps
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        fit = fit_temperature(z, y)
+    assert not fit.flat and fit.temperature > 1.0
+    res = optimize.minimize_scalar(lambda t: _scipy_nll(z, y, t), bounds=(1e-3, 1e3), method="bounded")
+    assert fit.nll_after <= res.fun + 1e-9  # reference: scipy.optimize.minimize_scalar
+
+
+# --------------------------------------------------------------------------- rows without copies (item 6 of the brief)
+
+
+def test_fit_on_rows_matches_the_fit_on_the_copied_rows(make_logits, backend):
+    z, y = make_logits(n=3000, k=6, scale=3.0, true_temperature=1.8, dtype=np.float32)
+    rows = np.sort(np.random.default_rng(4).choice(3000, 1100, replace=False))
+    fit = fit_temperature(z, y, rows=rows)
+    ref = _scipy_fit(z[rows].astype(np.float64), y[rows])  # reference: scipy on an explicit copy of the rows
+    assert fit.temperature == pytest.approx(ref, rel=1e-4)
+    assert fit.n_rows == 1100
+    assert fit.nll_after == pytest.approx(_scipy_nll(z[rows].astype(np.float64), y[rows], fit.temperature), rel=1e-10)
+    mask = np.zeros(3000, dtype=bool)
+    mask[rows] = True
+    assert fit_temperature(z, y, rows=mask).temperature == pytest.approx(fit.temperature, rel=1e-12)
+    # the gathered blocks give the numbers of the direct fit on the copy
+    assert fit_temperature(z[rows], y[rows]).temperature == pytest.approx(fit.temperature, rel=1e-9)
+
+
+def test_sweep_on_rows_matches_the_sweep_on_the_copied_rows(make_logits, backend):
+    z, y = make_logits(n=2000, k=5, true_temperature=1.5)
+    rows = np.arange(1, 2000, 3)
+    grid = np.array([0.5, 1.0, 2.0])
+    sw = temperature_sweep(z, y, grid, rows=rows)
+    for i, t in enumerate(grid):
+        p = special.softmax(z[rows] / t, axis=1)
+        # references: sklearn log_loss and a numpy one-hot Brier on an explicit copy of the rows
+        assert sw.nll[i] == pytest.approx(log_loss(y[rows], p, labels=np.arange(5)), rel=1e-12)
+        assert sw.brier[i] == pytest.approx(np.mean(np.sum((p - np.eye(5)[y[rows]]) ** 2, axis=1)), rel=1e-12)
+        assert sw.ece[i] == pytest.approx(expected_calibration_error(z[rows], y[rows], temperature=t), abs=1e-15)
+
+
+def test_rows_are_gathered_a_block_at_a_time(rng):
+    import tracemalloc
+
+    z = rng.normal(size=(1_000_000, 20)).astype(np.float32) * 3  # 80 MB
+    y = rng.integers(0, 20, z.shape[0])
+    rows = np.arange(0, z.shape[0], 2)
+    copy_bytes = rows.size * z.shape[1] * z.itemsize  # what z[rows] would allocate: 40 MB
+    tracemalloc.start()
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)
+        fit_temperature(z, y, rows=rows, max_iter=2)
+        temperature_sweep(z, y, [1.0], rows=rows)
+    _, peak = tracemalloc.get_traced_memory()
+    tracemalloc.stop()
+    # the score arrays of the sweep are 1-D (a few times rows x 8 bytes); no block of the matrix beyond a gather
+    assert peak < 0.75 * copy_bytes, (peak, copy_bytes)
+
+
+def test_rows_input_errors(make_logits):
+    z, y = make_logits(n=10, k=3)
+    with pytest.raises(ShapeError, match=r"must lie in \[0, 10\)"):
+        fit_temperature(z, y, rows=[0, 10])
+    with pytest.raises(ShapeError, match="empty"):
+        temperature_sweep(z, y, rows=np.array([], dtype=int))
+    with pytest.raises(ShapeError, match=r"shape \(10,\)"):
+        fit_temperature(z, y, rows=np.ones(4, dtype=bool))
+    with pytest.raises(InputTypeError, match="integer positions"):
+        fit_temperature(z, y, rows=[0.5, 1.5])
+
+
+# --------------------------------------------------------------------------- passes (item 7)
+
+
+@pytest.mark.parametrize("n", [5000, 300_000])  # without and with the warm start on a subsample
+def test_passes_count_the_passes_over_the_data(monkeypatch, rng, n):
+    # count the rows each evaluation of the NLL reads: full passes are evaluations over all n rows
+    import logitscope.analysis.temperature as temperature_module
+
+    seen: list[int] = []
+    real = temperature_module.temperature_moments
+
+    def counting(z, y, beta, *args, **kwargs):
+        seen.append(int(np.asarray(z).shape[0]))
+        return real(z, y, beta, *args, **kwargs)
+
+    monkeypatch.setattr(temperature_module, "temperature_moments", counting)
+    z = (rng.normal(size=(n, 4)) * 2.5).astype(np.float32)
+    y = (z + rng.gumbel(size=z.shape) * 2.0).argmax(axis=1)  # labels drawn at T = 2: an interior optimum
+    fit = fit_temperature(z, y)
+    full = sum(1 for m in seen if m == n)
+    assert fit.passes == full >= 2
+    assert fit.newton_steps >= 1 and fit.newton_steps <= fit.passes - 1
+    assert fit.iterations == fit.passes  # the old name keeps its old meaning
+    if n > 8 * temperature_module.WARM_START_ROWS:
+        assert fit.warm_start_rows == temperature_module.WARM_START_ROWS and fit.warm_start_steps >= 1
+        assert sum(1 for m in seen if m == fit.warm_start_rows) >= fit.warm_start_steps
+    else:
+        assert fit.warm_start_rows == 0 and fit.warm_start_steps == 0
+    # reference: scipy.optimize.minimize_scalar
+    assert fit.temperature == pytest.approx(_scipy_fit(z.astype(np.float64), y), rel=1e-4)

@@ -464,11 +464,12 @@ def test_write_report_button_uses_the_current_choices(mailroom: LogitFrame, tmp_
     page = read_report(Path(out))
     conf = _probs(mailroom, panel.state.temperature).max(axis=1)
     assert page.value("threshold-value") == pytest.approx(0.9)
-    assert page.value("threshold-accepted") == np.sum(conf >= 0.9)  # the report reads all rows
+    # with the panel's split the threshold is judged on its fit part, in the picker and in the report
+    assert page.value("threshold-accepted") == np.sum(conf[panel.split.fit] >= 0.9) == panel.picker.choice.n_accepted
     # the held-out check: the same threshold judged on the held-out part, as the panel shows it
     assert page.value("split-held-n") == len(panel.split.held_out)
     # T fitted on all rows, while the split fits on its fit part: the report says what it is
-    assert page.text("decision-how") == "set by hand, equal to the fitted temperature"
+    assert page.text("decision-how") == "set in the panel, equal to the temperature fitted on all labelled rows"
     assert page.value("split-held-coverage") == pytest.approx(np.mean(conf[panel.split.held_out] >= 0.9))
     assert page.value("split-held-coverage") == pytest.approx(panel.held_out.judged_on_held.coverage)
     panel.report_path.value = "  "

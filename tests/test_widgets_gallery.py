@@ -330,7 +330,7 @@ def test_queue_default_path_in_current_folder(mailroom: LogitFrame, tmp_path: Pa
     monkeypatch.chdir(tmp_path)
     queue = RelabelQueue(mailroom)
     name = Path(queue.path).name
-    assert re.fullmatch(r"logitscope-relabel-[0-9a-f]{10}\.json", name)
+    assert re.fullmatch(r"relabel-zero-to-nine-1797-samples-[0-9a-f]{8}\.json", name)
     assert Path(queue.path).parent == tmp_path.resolve()
     queue.mark(9)
     assert (tmp_path / name).exists()

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import contextlib
 import os
+import re
 import stat
 import tempfile
 from collections.abc import Iterator
@@ -31,7 +32,7 @@ def atomic_write(path: str | os.PathLike[str], mode: str = "wb") -> Iterator[IO]
     """
     target = Path(path)
     target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp", dir=target.parent)
+    fd, tmp = tempfile.mkstemp(prefix=_temp_prefix(target), suffix=_TEMP_SUFFIX, dir=target.parent)
     try:
         _match_mode(fd, target)
         encoding = None if "b" in mode else "utf-8"
@@ -50,6 +51,49 @@ def atomic_write(path: str | os.PathLike[str], mode: str = "wb") -> Iterator[IO]
         with contextlib.suppress(OSError):
             os.unlink(tmp)
         raise
+
+
+_TEMP_SUFFIX = ".tmp"
+
+
+def _temp_prefix(target: Path) -> str:
+    return f".{target.name}."
+
+
+def leftover_temp_files(path: str | os.PathLike[str]) -> list[Path]:
+    """Temporary files that :func:`atomic_write` made for ``path`` and never renamed or removed.
+
+    Only a writer killed between creating its temporary file and renaming it
+    (``kill -9``, a power cut) leaves one. The names are matched exactly
+    (``.<name>.<random>.tmp`` beside ``path``; symbolic links and folders are
+    never listed). Whether a file is stale is for the caller to know: one that a
+    live writer is filling right now has the same name pattern.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> _ = (folder / ".marks.json.k3x9_q2a.tmp").write_text("{")
+    >>> _ = (folder / ".other.json.k3x9_q2a.tmp").write_text("{")
+    >>> [p.name for p in leftover_temp_files(folder / "marks.json")]
+    ['.marks.json.k3x9_q2a.tmp']
+    """
+    target = Path(path)
+    # tempfile.mkstemp fills the middle with letters, digits and "_" (never a dot)
+    pattern = re.compile(re.escape(_temp_prefix(target)) + r"[A-Za-z0-9_]+" + re.escape(_TEMP_SUFFIX))
+    try:
+        entries = list(os.scandir(target.parent))
+    except OSError:
+        return []
+    found = []
+    for entry in entries:
+        try:
+            regular = entry.is_file(follow_symlinks=False)
+        except OSError:
+            continue
+        if regular and pattern.fullmatch(entry.name):
+            found.append(Path(entry.path))
+    return sorted(found)
 
 
 def _match_mode(fd: int, target: Path) -> None:

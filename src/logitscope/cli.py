@@ -1,7 +1,12 @@
-"""Command line: ``logitscope summary | demo-data | report | compare``.
+"""Command line: ``logitscope summary | demo-data | report | compare | demo``.
 
-Errors in the input end with exit code 2 and one readable line on stderr.
+Errors in the input end with exit code 2 and one readable line on stderr;
+warnings are one line on stderr each (``logitscope: warning: ...``).
 Progress of steps longer than a second goes to stderr, never to stdout.
+``summary --json`` writes a value that is not a finite number (NaN or
+infinite, which JSON cannot hold) as ``null`` and says why under the key
+``null_reasons``. An unexpected failure (a bug) is one line with exit code 1;
+set ``LOGITSCOPE_TRACEBACK=1`` to see its traceback.
 """
 
 from __future__ import annotations
@@ -13,11 +18,13 @@ import os
 import sys
 import threading
 import time
+import warnings
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any, Literal, TypeVar
 
-from .errors import LogitscopeError, ShapeError
+from . import __version__
+from .errors import InputTypeError, LogitscopeError, ShapeError
 
 T = TypeVar("T")
 
@@ -119,43 +126,86 @@ def _parse_costs(text: str) -> tuple[float, float]:
     return a, b
 
 
+_FILE_HELP = "a frame as .npz or .parquet (layouts in the README)"
+_TEMPERATURE_HELP = "softmax temperature T > 0 to evaluate at (default 1)"
+_FIT_HELP = "fit the temperature that minimises the NLL first, and evaluate at it"
+
+
 def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="logitscope", description="Inspect a classifier's logits.")
-    sub = p.add_subparsers(dest="command", required=True)
+    p.add_argument("--version", action="version", version=f"%(prog)s {__version__}")
+    sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     s = sub.add_parser("summary", help="print set-level numbers of a .npz or .parquet file")
-    s.add_argument("file")
+    s.add_argument("file", help=_FILE_HELP)
     g = s.add_mutually_exclusive_group()
-    g.add_argument("--temperature", type=float)
-    g.add_argument("--fit-temperature", action="store_true")
-    s.add_argument("--target-accuracy", type=float)
-    s.add_argument("--interval", choices=["wilson", "clopper-pearson"], default="wilson")
-    s.add_argument("--json", action="store_true", help="print one JSON object")
+    g.add_argument("--temperature", type=float, metavar="T", help=_TEMPERATURE_HELP)
+    g.add_argument("--fit-temperature", action="store_true", help=_FIT_HELP)
+    s.add_argument(
+        "--target-accuracy", type=float, metavar="A",
+        help="also choose the lowest confidence threshold whose accepted samples reach accuracy A",
+    )  # fmt: skip
+    s.add_argument(
+        "--interval", choices=["wilson", "clopper-pearson"], default="wilson",
+        help="binomial interval of the threshold's accuracy (default: wilson)",
+    )  # fmt: skip
+    s.add_argument("--json", action="store_true", help="print one JSON object instead of a table")
 
     d = sub.add_parser("demo-data", help="write a bundled demo frame to PATH (.npz or .parquet)")
-    d.add_argument("path")
-    d.add_argument("--name", choices=["mailroom", "helpdesk"], default="mailroom")
+    d.add_argument("path", help="where to write it; the suffix (.npz or .parquet) picks the format")
+    d.add_argument(
+        "--name", choices=["mailroom", "helpdesk"], default="mailroom",
+        help="mailroom: handwritten postcode digits; helpdesk: support tickets (default: mailroom)",
+    )  # fmt: skip
 
     r = sub.add_parser("report", help="write a self-contained HTML report")
-    r.add_argument("file")
-    r.add_argument("-o", "--output", required=True)
+    r.add_argument("file", help=_FILE_HELP)
+    r.add_argument("-o", "--output", required=True, metavar="HTML", help="the report file to write")
     g = r.add_mutually_exclusive_group()
-    g.add_argument("--temperature", type=float)
-    g.add_argument("--fit-temperature", action="store_true")
+    g.add_argument("--temperature", type=float, metavar="T", help=_TEMPERATURE_HELP)
+    g.add_argument("--fit-temperature", action="store_true", help=_FIT_HELP)
     g2 = r.add_mutually_exclusive_group()
-    g2.add_argument("--target-accuracy", type=float)
-    g2.add_argument("--costs", type=_parse_costs, metavar="ERROR,REVIEW")
-    r.add_argument("--title")
+    g2.add_argument(
+        "--target-accuracy", type=float, metavar="A",
+        help="choose the threshold as the lowest confidence whose accepted samples reach accuracy A",
+    )  # fmt: skip
+    g2.add_argument(
+        "--costs", type=_parse_costs, metavar="ERROR,REVIEW",
+        help="choose the threshold by cost: of an accepted error and of a sample sent for review",
+    )  # fmt: skip
+    r.add_argument(
+        "--per-class", action="store_true", help="with --target-accuracy: one threshold per predicted class too"
+    )
+    r.add_argument("--relabel", metavar="FILE.json", help="a relabel list whose marks and notes the report lists")
+    r.add_argument("--title", help="the title at the top of the report")
     _add_compare_parser(sub)
+    _add_demo_parser(sub)
     return p
 
 
 def _add_compare_parser(sub: Any) -> None:
     c = sub.add_parser("compare", help="compare two checkpoints' files of the same samples (matched by id)")
-    c.add_argument("file_a", metavar="A")
-    c.add_argument("file_b", metavar="B")
+    c.add_argument("file_a", metavar="A", help="the first checkpoint's frame (.npz or .parquet)")
+    c.add_argument("file_b", metavar="B", help="the second checkpoint's frame, the same samples in any order")
     c.add_argument("--drop-missing", action="store_true", help="compare the shared ids when the files differ")
     c.add_argument("--json", action="store_true", help="print one JSON object")
+
+
+def _add_demo_parser(sub: Any) -> None:
+    from .launch import DEFAULT_FOLDER, DEMO_NOTEBOOKS
+
+    j = sub.add_parser(
+        "demo",
+        help="open a demo notebook in JupyterLab (a working copy, so the bundled one stays clean)",
+        description="Copy the example notebooks into a working folder (an edited copy is kept) and start "
+        "JupyterLab on one of them; adds --allow-root when run as root.",
+    )
+    j.add_argument("name", nargs="?", choices=list(DEMO_NOTEBOOKS), default="mailroom", help="which demo to open")
+    j.add_argument("--dir", default=DEFAULT_FOLDER, help=f"working folder for the copies (default ./{DEFAULT_FOLDER})")
+    j.add_argument("--port", type=int, help="port for JupyterLab (default: its own, 8888 or the next free one)")
+    j.add_argument("--no-browser", action="store_true", help="do not open a web browser; open the printed address")
+    j.add_argument("--reset", action="store_true", help="replace edited copies (each is kept as a backup beside it)")
+    j.add_argument("--print-command", action="store_true", help="prepare the copies and print the command, not run it")
 
 
 def _cmd_summary(args: argparse.Namespace) -> int:
@@ -171,10 +221,36 @@ def _cmd_summary(args: argparse.Namespace) -> int:
         )
     )
     if args.json:
-        print(json.dumps(summary, allow_nan=False, default=_json_default))
+        reasons: dict[str, str] = {}
+        clean = _finite_or_null(summary, "", reasons)
+        if reasons:
+            clean["null_reasons"] = reasons
+        print(json.dumps(clean, allow_nan=False, default=_json_default))
     else:
         print(format_summary(summary))
     return 0
+
+
+def _finite_or_null(value: Any, key: str, reasons: dict[str, str]) -> Any:
+    """``value`` with every NaN or infinite number replaced by None; ``reasons`` gets why, by key path."""
+    import numpy as np
+
+    if isinstance(value, dict):
+        return {k: _finite_or_null(v, f"{key}.{k}" if key else str(k), reasons) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite_or_null(v, f"{key}[{i}]", reasons) for i, v in enumerate(value)]
+    if isinstance(value, float | np.floating) and not math.isfinite(float(value)):
+        reasons[key] = f"the value is {float(value)!r}, not a finite number (JSON cannot hold it)"
+        return None
+    return value
+
+
+def _one_line_warning(
+    message: Warning | str, category: type[Warning], filename: str, lineno: int, file: Any = None, line: Any = None
+) -> None:
+    """Print a warning as one line on stderr (no source line), as the CLI promises."""
+    text = " ".join(str(message).split())
+    print(f"logitscope: warning: {text} ({category.__name__})", file=file or sys.stderr)
 
 
 def _json_default(v: Any) -> Any:
@@ -206,11 +282,28 @@ def _cmd_report(args: argparse.Namespace) -> int:
         options["target_accuracy"] = args.target_accuracy
     if args.costs is not None:
         options["costs"] = args.costs
+    if args.per_class:
+        options["per_class"] = True
+    if args.relabel:
+        options["relabel"] = args.relabel
     if args.title:
         options["title"] = args.title
-    _Progress("writing the report").run(lambda: write_report(frame, args.output, **options))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always")
+        _Progress("writing the report").run(lambda: write_report(frame, args.output, **options))
+    for w in caught:  # one line per problem, as every message of the command line
+        print(f"logitscope: warning: {' '.join(str(w.message).split())}", file=sys.stderr)
     print(f"wrote {Path(args.output)}")
     return 0
+
+
+def _cmd_launch(args: argparse.Namespace) -> int:
+    from .launch import run_demo
+
+    return run_demo(
+        args.name, args.dir, port=args.port, no_browser=args.no_browser, reset=args.reset,
+        print_command=args.print_command,
+    )  # fmt: skip
 
 
 def format_comparison(result: dict[str, Any]) -> str:
@@ -288,19 +381,45 @@ def _cmd_compare(args: argparse.Namespace) -> int:
     return 0
 
 
+def _one_line(exc: BaseException) -> str:
+    return " ".join(str(exc).split())
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     """Entry point of the ``logitscope`` command."""
     args = _parser().parse_args(argv)
-    handlers = {"summary": _cmd_summary, "demo-data": _cmd_demo, "report": _cmd_report, "compare": _cmd_compare}
-    try:
-        return handlers[args.command](args)
-    except (LogitscopeError, TypeError) as exc:
-        name = type(exc).__name__
-        print(f"logitscope: error: {exc} ({name})", file=sys.stderr)
-        return 2
-    except OSError as exc:
-        print(f"logitscope: error: {exc}", file=sys.stderr)
-        return 2
+    handlers = {
+        "summary": _cmd_summary,
+        "demo-data": _cmd_demo,
+        "report": _cmd_report,
+        "compare": _cmd_compare,
+        "demo": _cmd_launch,
+    }
+    with warnings.catch_warnings():
+        warnings.showwarning = _one_line_warning  # restored when the block ends
+        try:
+            return handlers[args.command](args)
+        except (LogitscopeError, InputTypeError) as exc:
+            print(f"logitscope: error: {_one_line(exc)} ({type(exc).__name__})", file=sys.stderr)
+            return 2
+        except OSError as exc:
+            print(f"logitscope: error: {_one_line(exc)}", file=sys.stderr)
+            return 2
+        except MemoryError:
+            print("logitscope: error: not enough memory for this file", file=sys.stderr)
+            return 2
+        except (TypeError, ValueError) as exc:  # a problem with the data that was not named by our own checks
+            print(f"logitscope: error: {_one_line(exc)} ({type(exc).__name__})", file=sys.stderr)
+            return 2
+        except Exception as exc:
+            if os.environ.get("LOGITSCOPE_TRACEBACK") == "1":
+                raise
+            print(
+                f"logitscope: internal error: {_one_line(exc)} ({type(exc).__name__}); please report it "
+                "(LOGITSCOPE_TRACEBACK=1 shows where)",
+                file=sys.stderr,
+            )
+            return 1
 
 
 if __name__ == "__main__":  # pragma: no cover

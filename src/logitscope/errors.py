@@ -17,6 +17,7 @@ __all__ = [
     "InputTypeError",
     "LabelError",
     "LogitscopeError",
+    "LooksLikeProbabilitiesWarning",
     "NonFiniteError",
     "ParameterError",
     "ProbabilityError",
@@ -63,6 +64,15 @@ class ParameterError(LogitscopeError):
 
 class InputTypeError(TypeError):
     """An argument is of a type logitscope cannot use."""
+
+
+class LooksLikeProbabilitiesWarning(UserWarning):
+    """Logits whose rows are all non-negative and sum to one: probabilities, most likely.
+
+    Taken as logits they give other probabilities (softmax of probabilities
+    is not the identity); :meth:`logitscope.LogitFrame.from_probabilities`
+    is the constructor for them.
+    """
 
 
 def describe_rows(rows: Sequence[int] | object, limit: int = 5) -> str:

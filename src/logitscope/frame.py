@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import os
+import warnings
 from collections import OrderedDict
 from collections.abc import Sequence
 from dataclasses import dataclass
@@ -13,6 +14,7 @@ import pandas as pd
 from numpy.typing import ArrayLike
 
 from . import analysis as an
+from .analysis._blocks import block_slices
 from .analysis._validation import _to_numpy, assume_valid, check_labels, check_logits, check_temperature
 from .analysis.softmax import result_dtype
 from .errors import (
@@ -20,6 +22,8 @@ from .errors import (
     DuplicateError,
     InputTypeError,
     LabelError,
+    LooksLikeProbabilitiesWarning,
+    NonFiniteError,
     ShapeError,
     describe_rows,
 )
@@ -46,7 +50,29 @@ class Payload:
         return len(self.data)
 
 
-def _make_payload(n: int, images: Any = None, image_paths: Any = None, texts: Any = None) -> Payload | None:
+def _sequence_of_items(value: Any, what: str) -> list[Any]:
+    """``value`` as a list of per-sample items; a single string or a 0-d or 2-D array is refused."""
+    if isinstance(value, str | bytes):
+        raise InputTypeError(
+            f"{what} must be a sequence of items, got a single string ({value[:40]!r}); "
+            "a string would be read as a list of its characters"
+        )
+    if isinstance(value, set | frozenset | dict):
+        raise InputTypeError(
+            f"{what} must be an ordered sequence (a list, tuple or array), got a {type(value).__name__}"
+        )
+    if hasattr(value, "ndim") and getattr(value, "ndim", 1) != 1:
+        raise InputTypeError(f"{what} must be one-dimensional (a sequence of items), got shape {value.shape}")
+    try:
+        items = value.tolist() if isinstance(value, np.ndarray) else list(value)
+    except TypeError as exc:
+        raise InputTypeError(f"{what} must be a sequence of items, got {type(value).__name__}") from exc
+    return items
+
+
+def _make_payload(
+    n: int, images: Any = None, image_paths: Any = None, texts: Any = None, copy: bool = True
+) -> Payload | None:
     given = [(k, v) for k, v in (("images", images), ("image_paths", image_paths), ("texts", texts)) if v is not None]
     if not given:
         return None
@@ -59,12 +85,20 @@ def _make_payload(n: int, images: Any = None, image_paths: Any = None, texts: An
             raise ShapeError(f"images must have shape (N, H, W) or (N, H, W, C) with C in 1, 3, 4; got {arr.shape}")
         if arr.shape[0] != n:
             raise ShapeError(f"images hold {arr.shape[0]} samples but the frame has {n}")
-        view = arr.view()
-        view.flags.writeable = False
-        return Payload("images", view)
-    items = [os.fspath(v) if kind == "image_paths" else v for v in value]
+        return Payload("images", _readonly(np.array(arr, copy=True) if copy else arr))
+    items = _sequence_of_items(value, kind)
     if len(items) != n:
         raise ShapeError(f"{kind} hold {len(items)} items but the frame has {n} samples")
+    if kind == "image_paths":
+        bad = [i for i, t in enumerate(items) if not isinstance(t, str | os.PathLike)]
+        if not bad:
+            items = [os.fspath(t) for t in items]
+            bad = [i for i, t in enumerate(items) if not isinstance(t, str)]
+        if bad:
+            raise InputTypeError(
+                f"image_paths must be file paths (strings or path-like objects); not so at {describe_rows(bad)} "
+                f"(first {type(items[bad[0]]).__name__} {items[bad[0]]!r})"
+            )
     if kind == "texts":
         bad = [i for i, t in enumerate(items) if not isinstance(t, str)]
         if bad:
@@ -78,24 +112,69 @@ def _readonly(a: np.ndarray) -> np.ndarray:
     return v
 
 
+def _classes_from_labels(labels: Any, default: tuple[str, ...]) -> tuple[str, ...]:
+    """Class names for labels given as names without ``classes``: sorted, as scikit-learn's LabelEncoder."""
+    if isinstance(labels, str | bytes):
+        return default  # refused with a clear message when the labels are encoded
+    y = _to_numpy(labels, "labels")
+    if y.ndim != 1 or y.dtype.kind not in "OUS":
+        return default
+    names = sorted({str(v) for v in y.tolist()})
+    if set(names) <= set(default):  # "0", "2", ...: the default names, in column order
+        return default
+    if len(names) != len(default):
+        shown = ", ".join(repr(c) for c in names[:5]) + (" ..." if len(names) > 5 else "")
+        raise ClassNameError(
+            f"labels name {len(names)} classes ({shown}) but the logits have {len(default)} columns, so the "
+            "class of each column cannot be inferred; pass classes=[...] in column order"
+        )
+    return tuple(names)
+
+
+#: rows checked first when deciding whether logits look like probabilities
+_PROBE_ROWS = 1024
+
+
+def _looks_like_probabilities(z: np.ndarray) -> bool:
+    """True when every row is non-negative and sums to one (a few rows are looked at first, so logits cost little)."""
+    atol = 1e-6 if z.dtype == np.float64 else 1e-3
+    for part in (z[:_PROBE_ROWS], z[_PROBE_ROWS:]):
+        if part.shape[0] == 0:
+            continue
+        sums = np.add.reduce(part, axis=1, dtype=np.float64)
+        if not np.all(np.abs(sums - 1.0) <= atol) or part.min() < 0:
+            return False
+    return True
+
+
 class LogitFrame:
     """A classifier's logits on a batch, with labels, class names, ids, metadata and payloads.
 
     The frame validates its inputs once and is immutable: :meth:`with_temperature`,
     :meth:`subset`, :meth:`append`, :meth:`with_payload` and :meth:`with_meta`
     return new frames. The logit matrix is kept in its own dtype (float16,
-    float32 or float64) without a copy; all computations run in float64.
+    float32 or float64); all computations run in float64. By default the frame
+    holds its own read-only copies of every array it is given, so changing the
+    caller's array (an in-place operation on a torch tensor, say) cannot
+    change the frame.
 
     Parameters
     ----------
     logits : array_like of shape (N, K)
         numpy array, pandas DataFrame (its columns become class names) or
         torch tensor. With ``binary=True`` a single column (N,) or (N, 1) of
-        log-odds for class 1.
+        log-odds for class 1. Probabilities belong in
+        :meth:`from_probabilities`: a matrix whose rows are all non-negative
+        and sum to one warns with :class:`~logitscope.errors.LooksLikeProbabilitiesWarning`.
     labels : array_like of shape (N,), optional
-        True classes, as indices in ``[0, K)`` or as class names.
+        True classes, as indices in ``[0, K)`` or as class names. Names
+        without ``classes`` give the classes in sorted order, as
+        scikit-learn's ``LabelEncoder`` does (unless every name is one of the
+        default names ``"0" .. "K-1"``, which keep their column order); the
+        labels must then name all K classes.
     classes : sequence of str, optional
-        Class names, unique; default ``"0" .. "K-1"``.
+        Class names, unique; default ``"0" .. "K-1"``. A single string is
+        refused (it would be read as a list of characters).
     ids : sequence, optional
         Unique sample ids; default ``0 .. N-1``.
     meta : pandas.DataFrame, optional
@@ -108,6 +187,12 @@ class LogitFrame:
     binary : bool, default False
         Read a single logit column as a binary model (see
         :func:`logitscope.analysis.binary_to_two_column`).
+    copy : bool, default True
+        Copy the arrays the frame is given. With ``copy=False`` the frame
+        shares the caller's logit matrix (and image array) instead: a promise
+        by the caller never to write to it while the frame is used, for a
+        matrix too large to hold twice. Labels, ids and metadata are always
+        copied (they are small).
 
     Examples
     --------
@@ -133,6 +218,7 @@ class LogitFrame:
         texts: Sequence[str] | None = None,
         temperature: float = 1.0,
         binary: bool = False,
+        copy: bool = True,
         source: str = "logits",
     ) -> None:
         if classes is None and isinstance(logits, pd.DataFrame):
@@ -140,14 +226,30 @@ class LogitFrame:
         raw = _to_numpy(logits, "logits")
         if binary:
             raw = an.binary_to_two_column(raw)
+        elif raw.ndim == 1 and raw.dtype.kind in "biuf":
+            raise ShapeError(
+                f"logits are 1-D (shape {raw.shape}); a binary model's single score per sample (the log-odds "
+                "of class 1, e.g. decision_function) is passed as LogitFrame(scores, binary=True); its "
+                "probabilities of class 1 as LogitFrame.from_probabilities(np.column_stack([1 - p, p]))"
+            )
         z = check_logits(raw)
+        if copy and z is raw and not isinstance(logits, list | tuple):  # else z is a new array already
+            z = np.array(z, copy=True)
         n, k = z.shape
+        if source == "logits" and _looks_like_probabilities(z):
+            warnings.warn(
+                "every row of these logits is non-negative and sums to 1: they look like probabilities. "
+                "Pass probabilities to LogitFrame.from_probabilities, which takes their logarithm; "
+                "as logits they give other probabilities, NLL and calibration",
+                LooksLikeProbabilitiesWarning,
+                stacklevel=2,
+            )
         self._logits = _readonly(z)
-        self._classes = self._check_classes(classes, k)
+        self._classes = self._check_classes(classes, k, labels)
         self._labels = None if labels is None else _readonly(self._encode_labels(labels, n))
         self._ids = _readonly(self._check_ids(ids, n))
         self._meta = self._check_meta(meta, n)
-        self._payload = _make_payload(n, images, image_paths, texts)
+        self._payload = _make_payload(n, images, image_paths, texts, copy=copy)
         self._temperature = check_temperature(temperature)
         self._source = source
         self._cache: OrderedDict[float, an.SampleScores] = OrderedDict()
@@ -155,10 +257,18 @@ class LogitFrame:
     # ------------------------------------------------------------------ validation
 
     @staticmethod
-    def _check_classes(classes: Sequence[str] | None, k: int) -> tuple[str, ...]:
+    def _check_classes(classes: Sequence[str] | None, k: int, labels: Any = None) -> tuple[str, ...]:
         if classes is None:
-            return tuple(str(i) for i in range(k))
-        names = tuple(str(c) for c in list(classes))
+            default = tuple(str(i) for i in range(k))
+            return _classes_from_labels(labels, default) if labels is not None else default
+        items = _sequence_of_items(classes, "classes")
+        odd = [i for i, c in enumerate(items) if not isinstance(c, str | int | float | np.generic)]
+        if odd:
+            raise InputTypeError(
+                f"classes must be names (strings), one per logit column; item {odd[0]} is a "
+                f"{type(items[odd[0]]).__name__} ({items[odd[0]]!r:.60})"
+            )
+        names = tuple(str(c) for c in items)
         if len(names) != k:
             raise ClassNameError(f"{len(names)} class names given but the logits have {k} columns")
         seen: dict[str, int] = {}
@@ -169,6 +279,8 @@ class LogitFrame:
         return names
 
     def _encode_labels(self, labels: ArrayLike, n: int) -> np.ndarray:
+        if isinstance(labels, str | bytes):
+            raise InputTypeError("labels must be a sequence with one label per sample, got a single string")
         y = _to_numpy(labels, "labels")
         if y.ndim == 1 and y.dtype.kind in "OUS":
             index = {c: i for i, c in enumerate(self._classes)}
@@ -184,7 +296,7 @@ class LogitFrame:
             if len(names) != n:
                 raise LabelError(f"labels have length {len(names)} but the logits have {n} rows")
             return np.fromiter((index[v] for v in names), dtype=np.int64, count=len(names))
-        return check_labels(y, n, len(self._classes))
+        return np.array(check_labels(y, n, len(self._classes)), copy=True)
 
     @staticmethod
     def _check_ids(ids: ArrayLike | None, n: int) -> np.ndarray:
@@ -193,8 +305,15 @@ class LogitFrame:
         arr = _to_numpy(ids, "ids")
         if arr.ndim != 1 or arr.shape[0] != n:
             raise ShapeError(f"ids must be 1-D of length {n}, got shape {arr.shape}")
+        if arr.dtype.kind == "f":
+            nan = np.flatnonzero(np.isnan(arr))
+            if nan.size:
+                raise NonFiniteError(
+                    f"ids must not be NaN (every sample needs its own id); NaN at {describe_rows(nan)}"
+                )
         if arr.dtype.kind == "O":
             arr = arr.astype(str)
+        arr = np.array(arr, copy=True)
         uniq, counts = np.unique(arr, return_counts=True)
         if np.any(counts > 1):
             dup = uniq[counts > 1]
@@ -220,13 +339,15 @@ class LogitFrame:
     def from_probabilities(
         cls, probabilities: ArrayLike, labels: ArrayLike | None = None, classes: Sequence[str] | None = None,
         ids: ArrayLike | None = None, meta: pd.DataFrame | None = None, *, atol: float | None = None,
-        **payload: Any,
+        copy: bool = True, **payload: Any,
     ) -> LogitFrame:  # fmt: skip
         """Build a frame from probabilities, stored as log-probabilities.
 
-        Rows must be non-negative and sum to one (within ``atol``). Zeros are
-        stored as the log of the dtype's smallest normal number, so they stay
-        finite and map back to (almost) zero.
+        Rows must be non-negative and sum to one within ``atol`` (a number in
+        ``[0, 1)``; default ``1e-6`` for float64, ``1e-3`` for float32 and
+        float16). Zeros are stored as the log of the dtype's smallest normal
+        number, so they stay finite and map back to (almost) zero. The
+        log-probabilities are a new array; ``copy`` applies to an image payload.
 
         Examples
         --------
@@ -240,21 +361,37 @@ class LogitFrame:
         dtype = result_dtype(p.dtype)
         tiny = np.finfo(dtype).tiny
         logp = np.log(np.maximum(p.astype(dtype, copy=False), tiny))
-        return cls(logp, labels, classes, ids, meta, source="probabilities", **payload)
+        if copy and payload.get("images") is not None:
+            payload["images"] = np.array(_to_numpy(payload["images"], "images"), copy=True)
+        return cls(logp, labels, classes, ids, meta, source="probabilities", copy=False, **payload)
 
     @classmethod
     def from_estimator(
         cls, estimator: Any, X: Any, y: ArrayLike | None = None, *,
         method: Literal["auto", "decision_function", "predict_proba"] = "auto",
-        ids: ArrayLike | None = None, meta: pd.DataFrame | None = None, **payload: Any,
+        ids: ArrayLike | None = None, meta: pd.DataFrame | None = None, copy: bool = True, **payload: Any,
     ) -> LogitFrame:  # fmt: skip
         """Build a frame from a fitted scikit-learn classifier and data.
 
-        With ``method="auto"`` the logits come from ``decision_function`` for
-        models whose decision function is a logit (logistic regression,
-        log-loss SGD, linear discriminant analysis), else from
-        ``predict_proba``. A binary model's single decision column becomes
-        ``[0, z]``. Labels ``y`` are given in the estimator's own classes.
+        With ``method="auto"`` the logits are the model's ``decision_function``
+        where that is what its probabilities come from: where the softmax of
+        the decision function equals ``predict_proba`` on every row of ``X``
+        (to 1e-6; checked on the numbers, not assumed from the model's kind).
+        That holds for multinomial logistic regression, linear discriminant
+        analysis and gradient boosting, and fails for one-vs-rest models (a
+        multiclass ``SGDClassifier(loss="log_loss")``, ``OneVsRestClassifier``),
+        whose probabilities are normalised sigmoids. Otherwise, and for models
+        without a decision function (forests, neural networks, calibrated
+        classifiers), the frame is built from ``predict_proba`` (stored as its
+        logarithm). So ``frame.probabilities()`` always equals the model's own
+        ``predict_proba``. The check costs one more prediction pass over ``X``.
+
+        ``method="decision_function"`` takes the decision function as logits
+        unchecked (for a model without ``predict_proba``, at the caller's
+        word); ``method="predict_proba"`` always uses the probabilities. A
+        binary model's single decision column ``z`` becomes ``[0, z]``. Labels
+        ``y`` are given in the estimator's own classes. When ``X`` is a pandas
+        DataFrame and no ``ids`` are given, its index gives the ids.
 
         Examples
         --------
@@ -262,15 +399,15 @@ class LogitFrame:
         >>> from sklearn.linear_model import LogisticRegression
         >>> X, y = load_iris(return_X_y=True)
         >>> f = LogitFrame.from_estimator(LogisticRegression(max_iter=500).fit(X, y), X, y)
-        >>> f.n_classes, round(f.summary()["accuracy"], 2)
-        (3, 0.97)
+        >>> f.n_classes, f.source, round(f.summary()["accuracy"], 2)
+        (3, 'logits', 0.97)
         """
         if not hasattr(estimator, "classes_"):
             raise InputTypeError("estimator must be a fitted scikit-learn classifier (it has no classes_)")
+        if method not in ("auto", "decision_function", "predict_proba"):
+            raise InputTypeError(f"method must be 'auto', 'decision_function' or 'predict_proba', got {method!r}")
         est_classes = list(estimator.classes_)
         names = [str(c) for c in est_classes]
-        if method == "auto":
-            method = "decision_function" if _decision_is_logit(estimator) else "predict_proba"
         labels = None
         if y is not None:
             lookup = {c: i for i, c in enumerate(est_classes)}
@@ -279,17 +416,35 @@ class LogitFrame:
             if unknown:
                 raise ClassNameError(f"y holds classes the estimator does not know: {', '.join(unknown[:5])}")
             labels = np.array([lookup[v] for v in yy], dtype=np.int64)
-        if method == "decision_function":
-            d = np.asarray(estimator.decision_function(X))
-            return cls(d, labels, names, ids, meta, binary=d.ndim == 1, **payload)
-        if method == "predict_proba":
-            if not hasattr(estimator, "predict_proba"):
+        if ids is None and isinstance(X, pd.DataFrame):
+            ids = X.index.to_numpy()
+        if copy and payload.get("images") is not None:
+            payload["images"] = np.array(_to_numpy(payload["images"], "images"), copy=True)
+        kind = type(estimator).__name__
+        has_decision = hasattr(estimator, "decision_function")
+        has_proba = hasattr(estimator, "predict_proba")
+        if method == "decision_function" or (method == "auto" and has_decision and not has_proba):
+            if not has_decision:
+                raise InputTypeError(f"{kind} has no decision_function; use method='predict_proba' or 'auto'")
+            if method == "auto":
                 raise InputTypeError(
-                    f"{type(estimator).__name__} has no predict_proba and its decision_function is not a logit; "
-                    "pass logits or probabilities to LogitFrame directly"
+                    f"{kind} has a decision_function but no predict_proba, so whether its scores are logits "
+                    "cannot be checked; pass method='decision_function' to take them as logits, or calibrate "
+                    "the model (sklearn.calibration.CalibratedClassifierCV) for probabilities"
                 )
-            return cls.from_probabilities(np.asarray(estimator.predict_proba(X)), labels, names, ids, meta, **payload)
-        raise InputTypeError(f"method must be 'auto', 'decision_function' or 'predict_proba', got {method!r}")
+            d = np.asarray(estimator.decision_function(X))
+            return cls(d, labels, names, ids, meta, binary=d.ndim == 1, copy=False, **payload)
+        if not has_proba:
+            raise InputTypeError(
+                f"{kind} has neither predict_proba nor decision_function; "
+                "pass its logits or probabilities to LogitFrame directly"
+            )
+        p = np.asarray(estimator.predict_proba(X))
+        if method == "auto" and has_decision:
+            z = _decision_logits_matching(estimator, X, p)
+            if z is not None:
+                return cls(z, labels, names, ids, meta, copy=False, **payload)
+        return cls.from_probabilities(p, labels, names, ids, meta, copy=False, **payload)
 
     @classmethod
     def read(cls, path: str | os.PathLike[str]) -> LogitFrame:
@@ -421,7 +576,7 @@ class LogitFrame:
         Examples
         --------
         >>> import numpy as np
-        >>> f = LogitFrame(np.eye(3), labels=[0, 1, 1])
+        >>> f = LogitFrame(np.eye(3) * 2.0, labels=[0, 1, 1])
         >>> f.subset(f.scores()["correct"].to_numpy()).n_samples
         2
         """
@@ -617,15 +772,118 @@ class LogitFrame:
             text_key=text_key, frame_type=cls,
         )  # fmt: skip
 
+    def class_mix_check(
+        self,
+        reference: LogitFrame | ArrayLike,
+        *,
+        alpha: float = 0.05,
+        temperature: float | None = None,
+        counts: Literal["predicted", "labels"] = "predicted",
+        statistic: Literal["pearson", "g"] = "pearson",
+        n_draws: int = 10_000,
+        seed: int = 0,
+    ) -> an.ClassMixCheck:
+        """Has this batch's class mix moved away from ``reference``? (see :func:`logitscope.analysis.class_mix_check`)
 
-def _decision_is_logit(estimator: Any) -> bool:
-    est = estimator
-    # unwrap a Pipeline to its final step
-    if hasattr(est, "steps") and est.steps:
-        est = est.steps[-1][1]
-    name = type(est).__name__
-    if name in ("LogisticRegression", "LogisticRegressionCV", "LinearDiscriminantAnalysis"):
-        return True
-    if name == "SGDClassifier":
-        return getattr(est, "loss", None) == "log_loss"
-    return False
+        Like is compared with like. Against a reference *frame*, the batch's
+        predicted classes are compared with the reference's predicted classes
+        (``counts="labels"``: labels with labels, both frames labelled) by the
+        two-sample chi-square test of homogeneity, since the reference is a
+        sample too. Against an *array*, the array holds proportions known in
+        advance (summing to 1) and the batch's counts are tested by the
+        multinomial goodness-of-fit test. Where an expected count is below 5
+        the p-value is a seeded Monte Carlo estimate from ``n_draws`` draws.
+
+        For an unlabelled batch and a labelled reference frame the check also
+        carries ``priors``: the batch's class mix estimated by EM from its
+        probabilities at ``temperature`` (default: the batch's own), starting
+        from the reference's label proportions (Saerens et al. 2002).
+
+        Parameters
+        ----------
+        reference : LogitFrame or array_like of shape (K,)
+            A frame with the same classes, or known proportions.
+        alpha : float
+            Significance level; the check's ``shifted`` is ``p_value < alpha``.
+        temperature : float, optional
+            Temperature of the probabilities the EM prior estimate uses.
+        counts : {"predicted", "labels"}
+            What is counted in each row.
+        statistic : {"pearson", "g"}
+        n_draws, seed : int
+            Monte Carlo draws and their seed, used where an expected count is below 5.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> ref = LogitFrame(np.eye(3)[[0, 1, 2, 2] * 10] * 12, labels=[0, 1, 2, 2] * 10)
+        >>> new = LogitFrame(np.eye(3)[[0, 0, 0, 2] * 10] * 12)
+        >>> check = new.class_mix_check(ref)
+        >>> check.test, check.observed.tolist(), check.shifted
+        ('homogeneity', [30.0, 0.0, 10.0], True)
+        >>> check.priors.round(2).tolist()
+        [0.75, 0.0, 0.25]
+        """
+        from .errors import ParameterError
+
+        if counts not in ("predicted", "labels"):
+            raise ParameterError(f"counts must be 'predicted' or 'labels', got {counts!r}")
+        k = self.n_classes
+        t = self._t(temperature)
+
+        def counted(frame: LogitFrame, what: str) -> np.ndarray:
+            if counts == "labels":
+                return an.class_counts(frame._require_labels(f"counts='labels' ({what})"), k)
+            return an.class_counts(frame.sample_scores().predicted, k)
+
+        options: dict[str, Any] = dict(alpha=alpha, statistic=statistic, counted=counts, n_draws=n_draws, seed=seed)
+        if isinstance(reference, LogitFrame):
+            if reference.classes != self.classes:
+                raise ClassNameError("the reference and the batch must have the same classes in the same order")
+            check = an.class_mix_check(
+                counted(self, "the batch"), reference_counts=counted(reference, "the reference"), **options
+            )
+            if self._labels is None and reference._labels is not None:
+                ref_mix = an.class_counts(reference._labels, k)
+                if np.any(ref_mix == 0):
+                    missing = ", ".join(repr(self._classes[i]) for i in np.flatnonzero(ref_mix == 0)[:5])
+                    return check.with_priors(None, f"no EM prior estimate: the reference has no labels of {missing}")
+                with assume_valid():
+                    est = an.estimate_priors(self._logits, ref_mix / ref_mix.sum(), temperature=t)
+                note = None if est.converged else f"the EM prior estimate did not converge in {est.iterations} steps"
+                return check.with_priors(est, note)
+            return check
+        props = _to_numpy(reference, "reference")
+        if props.dtype.kind not in "biuf":
+            raise InputTypeError(f"reference must be a LogitFrame or numbers (proportions), got dtype {props.dtype}")
+        if props.shape != (k,):
+            raise ShapeError(f"reference proportions must have shape ({k},) for {k} classes, got {props.shape}")
+        return an.class_mix_check(counted(self, "the batch"), proportions=props, **options)
+
+
+#: largest difference between softmax(decision_function) and predict_proba for the decision function to count as logits
+DECISION_MATCH_ATOL = 1e-6
+
+
+def _decision_logits_matching(estimator: Any, X: Any, p: np.ndarray) -> np.ndarray | None:
+    """The decision function as (N, K) logits if its softmax equals ``p`` on every row, else None."""
+    try:
+        d = np.asarray(estimator.decision_function(X))
+    except (AttributeError, NotImplementedError, ValueError, TypeError):
+        return None
+    if d.dtype.kind not in "fiu" or p.dtype.kind != "f" or d.ndim not in (1, 2):
+        return None
+    z = an.binary_to_two_column(d) if d.ndim == 1 else d
+    if z.shape != p.shape or z.shape[1] < 2:
+        return None
+    z = z.astype(np.result_type(z.dtype, np.float32), copy=False)
+    tol = max(DECISION_MATCH_ATOL, 16 * float(np.finfo(p.dtype).eps))
+    for rows in block_slices(z.shape[0], z.shape[1]):
+        zb = z[rows]
+        if not np.all(np.isfinite(zb)):
+            return None
+        with assume_valid():
+            q = an.softmax(zb, dtype=np.float64)
+        if not np.all(np.abs(q - p[rows]) <= tol):
+            return None
+    return z

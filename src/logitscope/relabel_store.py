@@ -8,6 +8,16 @@ or the list after it. Opening a store on an existing file restores its marks;
 a file that cannot be read is never overwritten: the store refuses to open
 and says why.
 
+Several stores may share one file, in one process or in several (two
+notebooks open on the same project): every change takes an inter-process lock
+(``.<name>.lock`` beside the file, held through :mod:`filelock`), reads the
+file again, applies itself to what it read and writes the result before the
+lock is released. So a mark whose call returned is in the file whatever the
+other writers do. When two stores change the same sample, the later change
+wins and the store that made it says so with a :class:`RelabelConflictWarning`
+naming the ids. Temporary files left by a writer that was killed mid-write are
+removed the next time a store opens on the file.
+
 The file is JSON::
 
     {"format": "logitscope-relabel", "version": 1,
@@ -21,9 +31,14 @@ is its user interface.
 
 from __future__ import annotations
 
+import contextlib
+import csv
 import hashlib
 import json
+import math
 import os
+import re
+import unicodedata
 import warnings
 from collections.abc import Iterable, Iterator
 from datetime import UTC, datetime
@@ -32,22 +47,42 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import pandas as pd
+from filelock import FileLock, Timeout
 
-from ._atomic import atomic_write
+from ._atomic import atomic_write, leftover_temp_files
 from .errors import ClassNameError, FileFormatError, ParameterError
 
 if TYPE_CHECKING:
     from .frame import LogitFrame
 
-__all__ = ["FIELDS", "FORMAT", "VERSION", "RelabelStore", "RelabelStoreWarning", "default_path", "fingerprint"]
+__all__ = [
+    "FIELDS",
+    "FORMAT",
+    "VERSION",
+    "RelabelConflictWarning",
+    "RelabelStore",
+    "RelabelStoreWarning",
+    "default_path",
+    "fingerprint",
+]
 
 FORMAT = "logitscope-relabel"
 VERSION = 1
 FIELDS = ("id", "row", "given_label", "suggested_label", "note", "marked_at")
 
+#: seconds a change waits for another writer's lock before giving up
+LOCK_TIMEOUT = 30.0
+#: a relabel file nested deeper than this is refused (ours are 3 levels deep)
+MAX_DEPTH = 32
+_MAX_ROW = 2**63 - 1
+
 
 class RelabelStoreWarning(UserWarning):
     """A relabel file does not match the frame (unknown ids or class names); its marks are kept."""
+
+
+class RelabelConflictWarning(RelabelStoreWarning):
+    """Another store changed a mark since this store last read the file; this store's later change replaced it."""
 
 
 def _plain(value: Any) -> Any:
@@ -55,8 +90,87 @@ def _plain(value: Any) -> Any:
     if isinstance(value, np.generic):
         value = value.item()
     if isinstance(value, bool) or not isinstance(value, int | float | str):
-        return str(value)
+        value = str(value)
+    if isinstance(value, float) and not math.isfinite(value):
+        raise ParameterError(f"a sample id must be a finite number or a string, got {value!r}")
+    if isinstance(value, str) and not _is_unicode(value):
+        raise ParameterError(f"sample id {value!r} is not valid Unicode text (it holds a lone surrogate)")
     return value
+
+
+_SURROGATE_ESCAPE = re.compile(r"\\u[dD][89a-fA-F]")
+
+
+def _refuse_constant(name: str) -> Any:
+    raise ValueError(f"{name} is not a number this file may hold")
+
+
+def _finite_float(text: str) -> float:
+    value = float(text)
+    if not math.isfinite(value):
+        raise ValueError(f"the number {text[:40]} is too large")
+    return value
+
+
+def _is_unicode(text: str) -> bool:
+    """True when ``text`` can be written as UTF-8 (no lone surrogates)."""
+    try:
+        text.encode("utf-8")
+    except UnicodeEncodeError:
+        return False
+    return True
+
+
+def _depth(doc: Any) -> int:
+    """How deeply lists and dicts nest in ``doc`` (0 for a scalar), without recursion."""
+    deepest = 0
+    stack = [(doc, 1)]
+    while stack:
+        node, level = stack.pop()
+        if isinstance(node, dict):
+            children: Iterable[Any] = node.values()
+        elif isinstance(node, list):
+            children = node
+        else:
+            continue
+        deepest = max(deepest, level)
+        if deepest > MAX_DEPTH:
+            break
+        stack.extend((c, level + 1) for c in children)
+    return deepest
+
+
+def _bad_text(doc: Any) -> bool:
+    """True when a string anywhere in ``doc`` (keys too) is not valid Unicode."""
+    stack = [doc]
+    while stack:
+        node = stack.pop()
+        if isinstance(node, str):
+            if not _is_unicode(node):
+                return True
+        elif isinstance(node, dict):
+            stack.extend(node.keys())
+            stack.extend(node.values())
+        elif isinstance(node, list):
+            stack.extend(node)
+    return False
+
+
+def _bad_mark(m: dict[str, Any]) -> str:
+    """Why a mark read from a file cannot be used ('' when it can)."""
+    sid = m["id"]
+    if isinstance(sid, bool) or not isinstance(sid, int | float | str):
+        return f"has an id of type {type(sid).__name__} (a string or a number is needed)"
+    if isinstance(sid, float) and not math.isfinite(sid):
+        return f"has the id {sid!r} (not a finite number)"
+    row = m.get("row")
+    if row is not None and (isinstance(row, bool) or not isinstance(row, int) or not 0 <= row <= _MAX_ROW):
+        shown = repr(row) if len(repr(row)) <= 40 else repr(row)[:40] + "..."
+        return f"has the row {shown} (a row is a whole number from 0, or null)"
+    for field in ("given_label", "note", "marked_at"):
+        if m.get(field) is not None and not isinstance(m[field], str):
+            return f"has a {field} of type {type(m[field]).__name__} (text or null is needed)"
+    return ""
 
 
 def _now() -> str:
@@ -88,16 +202,47 @@ def fingerprint(frame: LogitFrame, length: int = 10) -> str:
     return h.hexdigest()[:length]
 
 
+def _slug(text: str, limit: int = 24) -> str:
+    """``text`` as lower-case ASCII letters, digits and hyphens, at most ``limit`` characters."""
+    plain = unicodedata.normalize("NFKD", text).encode("ascii", "ignore").decode("ascii")
+    return re.sub(r"[^a-z0-9]+", "-", plain.lower()).strip("-")[:limit].strip("-")
+
+
 def default_path(frame: LogitFrame, folder: str | os.PathLike[str] = ".") -> Path:
-    """Where a relabel list goes when no path is given: ``logitscope-relabel-<fingerprint>.json``.
+    """Where a relabel list goes when no path is given: a name that says which data it is about.
+
+    The name is ``relabel-<first class>-to-<last class>-<N>-samples-<fingerprint>.json``,
+    for the mail-room digits ``relabel-zero-to-nine-1797-samples-<8 hex>.json``. The
+    classes and the sample count tell a reader of the folder which data set a list
+    belongs to; the :func:`fingerprint` of the ids and classes keeps apart two data
+    sets that share classes and size, and makes the same data (a later checkpoint's
+    logits, say) reopen the same list. Class names are reduced to lower-case ASCII
+    letters, digits and hyphens; with two classes the name reads ``<first>-and-<second>``,
+    and ``<K>-classes`` stands in when nothing of a class name is left. A list already kept under the earlier name
+    ``logitscope-relabel-<10 hex>.json`` in ``folder`` is used instead, so its marks stay
+    in view.
 
     Examples
     --------
-    >>> import logitscope
-    >>> default_path(logitscope.load_demo("mailroom")).name.startswith("logitscope-relabel-")
+    >>> import logitscope, re
+    >>> name = default_path(logitscope.load_demo("mailroom")).name
+    >>> re.fullmatch(r"relabel-zero-to-nine-1797-samples-[0-9a-f]{8}[.]json", name) is not None
     True
     """
-    return Path(folder) / f"logitscope-relabel-{fingerprint(frame)}.json"
+    base = Path(folder)
+    earlier = base / f"logitscope-relabel-{fingerprint(frame)}.json"
+    first, last = _slug(frame.classes[0]), _slug(frame.classes[-1])
+    k = frame.n_classes
+    if k == 1:
+        classes = first or "1-class"
+    elif first and last:
+        classes = f"{first}-{'and' if k == 2 else 'to'}-{last}"
+    else:
+        classes = f"{k}-classes"
+    path = base / f"relabel-{classes}-{frame.n_samples}-samples-{fingerprint(frame, 8)}.json"
+    if not path.exists() and earlier.exists():
+        return earlier
+    return path
 
 
 class RelabelStore:
@@ -121,6 +266,17 @@ class RelabelStore:
         When ``path`` exists but is not a relabel file this version can read.
         The file is left as it is.
 
+    Notes
+    -----
+    Other stores may write the same file at the same time, in this process or
+    in others. Each change holds the file's lock while it reads the file,
+    applies itself and writes, so no acknowledged mark of any store is lost;
+    a store's own view (``len``, :attr:`ids`, :meth:`to_frame`) catches up
+    with the others' marks at its next change or :meth:`refresh`.
+    :meth:`export_csv` reads the file first. A change waits at most
+    :data:`LOCK_TIMEOUT` seconds for another writer and then raises
+    :class:`TimeoutError`.
+
     Examples
     --------
     >>> import tempfile, pathlib, logitscope
@@ -139,11 +295,52 @@ class RelabelStore:
         self._classes: tuple[str, ...] = tuple(frame.classes) if frame is not None else ()
         self._index: pd.Index | None = None
         self._marks: dict[Any, dict[str, Any]] = {}
-        self._stamp: tuple[int, int] | None = None
+        self._lock = FileLock(self.lock_path, timeout=LOCK_TIMEOUT)
+        self._digest: bytes | None = None  # of the file's bytes as this store last read or wrote them
         #: ids of loaded marks that the frame does not have (kept, never dropped)
         self.unmatched: list[Any] = []
-        if self.path.exists():
-            self._marks = self._read()
+        self._remove_leftovers()
+        self._marks = self._read(warn=True)
+
+    @property
+    def lock_path(self) -> Path:
+        """The lock file beside the store (``.<name>.lock``); it stays there, empty, between changes."""
+        return self.path.with_name(f".{self.path.name}.lock")
+
+    @contextlib.contextmanager
+    def _locked(self) -> Iterator[None]:
+        try:
+            self._lock.acquire()
+        except Timeout as exc:
+            raise TimeoutError(
+                f"{self.path}: another process has held the lock {self.lock_path.name} for over "
+                f"{LOCK_TIMEOUT:g} s; nothing was changed. Try again, or close the other notebook."
+            ) from exc
+        try:
+            yield
+        finally:
+            self._lock.release()
+
+    def _remove_leftovers(self) -> None:
+        """Remove temporary files that writers killed mid-write left beside the store.
+
+        Every writer holds the lock while its temporary file exists, so with the
+        lock held every temporary file of ours is a leftover. When another
+        process holds the lock right now (it is writing), nothing is removed;
+        the next store to open does it.
+        """
+        if not self.path.parent.is_dir():
+            return
+        try:
+            self._lock.acquire(blocking=False)
+        except (Timeout, OSError):  # a live writer, or a folder we may not write in
+            return
+        try:
+            for leftover in leftover_temp_files(self.path):
+                with contextlib.suppress(OSError):
+                    leftover.unlink()
+        finally:
+            self._lock.release()
 
     # ------------------------------------------------------------------ reading
 
@@ -152,55 +349,92 @@ class RelabelStore:
         """Class names the suggested labels are checked against (the frame's, else the file's)."""
         return self._classes
 
-    def _stat(self) -> tuple[int, int] | None:
-        try:
-            st = self.path.stat()
-        except FileNotFoundError:
-            return None
-        return (st.st_mtime_ns, st.st_size)
-
     def _fail(self, why: str) -> FileFormatError:
         return FileFormatError(
             f"{self.path} is not a relabel list this version can read: {why}. "
             "The file was left untouched; fix or move it, or give another path."
         )
 
-    def _read(self) -> dict[Any, dict[str, Any]]:
-        stamp = self._stat()
+    def _parse(self, text: str) -> tuple[dict[Any, dict[str, Any]], list[str]]:
+        """The marks and class names of a relabel file's text; FileFormatError for anything else."""
         try:
-            text = self.path.read_text(encoding="utf-8")
-        except (OSError, UnicodeDecodeError) as exc:
-            raise self._fail(f"it cannot be read ({exc})") from exc
-        try:
-            doc = json.loads(text)
+            doc = json.loads(text, parse_constant=_refuse_constant, parse_float=_finite_float)
         except json.JSONDecodeError as exc:
             raise self._fail(f"invalid JSON at line {exc.lineno}, column {exc.colno} ({exc.msg})") from exc
+        except RecursionError as exc:
+            raise self._fail("it is nested too deeply to be a relabel list") from exc
+        except ValueError as exc:  # e.g. an integer of more digits than Python converts
+            raise self._fail(f"a value cannot be read ({exc})") from exc
+        # only an escape such as \\udc80 can put a lone surrogate into text decoded from UTF-8
+        if _SURROGATE_ESCAPE.search(text) and _bad_text(doc):
+            raise self._fail("it holds text that is not valid Unicode (a lone surrogate escape)")
         if not isinstance(doc, dict) or doc.get("format") != FORMAT:
             raise self._fail(f"it does not say format {FORMAT!r}")
         version = doc.get("version")
         if not isinstance(version, int) or isinstance(version, bool) or not 1 <= version <= VERSION:
-            raise self._fail(f"version {version!r} (this version reads 1 to {VERSION})")
+            shown = repr(version) if len(repr(version)) <= 40 else repr(version)[:40] + "..."
+            raise self._fail(f"version {shown} (this version reads 1 to {VERSION})")
         raw = doc.get("marks")
         file_classes = doc.get("classes", [])
         if not isinstance(raw, list) or not isinstance(file_classes, list):
             raise self._fail("'marks' and 'classes' must be lists")
+        if not all(isinstance(c, str) for c in file_classes):
+            raise self._fail("'classes' must list class names as strings")
         marks: dict[Any, dict[str, Any]] = {}
         for i, m in enumerate(raw):
             if not isinstance(m, dict) or "id" not in m or not isinstance(m.get("suggested_label"), str):
                 raise self._fail(f"mark {i} lacks an id or a suggested_label")
+            why = _bad_mark(m)
+            if why:
+                raise self._fail(f"mark {i} {why}")
             rec = {f: m.get(f) for f in FIELDS}
-            rec["id"] = _plain(rec["id"])
-            rec["note"] = "" if rec["note"] is None else str(rec["note"])
-            rec.update({k: v for k, v in m.items() if k not in FIELDS})  # keep fields a later version added
+            rec["note"] = "" if rec["note"] is None else rec["note"]
+            extra = {k: v for k, v in m.items() if k not in FIELDS}  # keep fields a later version added
+            if extra and _depth(extra) > MAX_DEPTH:
+                raise self._fail(f"mark {i} is nested more than {MAX_DEPTH} levels deep")
+            rec.update(extra)
             if rec["id"] in marks:
                 raise self._fail(f"sample id {rec['id']!r} is marked twice")
             marks[rec["id"]] = rec
+        return marks, file_classes
+
+    def _read(self, warn: bool) -> dict[Any, dict[str, Any]]:
+        """The marks in the file now ({} when there is none); unchanged bytes are not parsed again."""
+        try:
+            data = self.path.read_bytes()
+        except FileNotFoundError:
+            self._digest = None
+            return {}
+        except OSError as exc:
+            raise self._fail(f"it cannot be read ({exc})") from exc
+        digest = hashlib.blake2b(data, digest_size=16).digest()
+        if digest == self._digest:  # the bytes this store last read or wrote: the marks it holds
+            return self._marks
+        try:
+            text = data.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            raise self._fail(f"it is not UTF-8 text ({exc})") from exc
+        marks, file_classes = self._parse(text)
         if self.frame is None:
-            self._classes = tuple(str(c) for c in file_classes)
+            self._classes = tuple(file_classes)
         else:
-            self._check_against_frame(marks, [str(c) for c in file_classes])
-        self._stamp = stamp
+            self._check_against_frame(marks, file_classes, warn)
+        self._digest = digest
         return marks
+
+    def refresh(self) -> None:
+        """Read the file again, so marks other stores wrote since this one last read it show here.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib
+        >>> path = pathlib.Path(tempfile.mkdtemp()) / "m.json"
+        >>> first, second = RelabelStore(path), RelabelStore(path)
+        >>> _ = first.add("T-7", "billing")
+        >>> len(second), (second.refresh(), len(second))[1]
+        (0, 1)
+        """
+        self._marks = self._read(warn=False)
 
     def _rows_of(self, ids: list[Any]) -> np.ndarray:
         """Row positions of sample ids in the frame (-1 where absent), one vectorised look-up."""
@@ -212,7 +446,7 @@ class RelabelStore:
             return np.zeros(0, dtype=np.int64)
         return np.asarray(self._index.get_indexer(pd.Index(ids, dtype=object)), dtype=np.int64)
 
-    def _check_against_frame(self, marks: dict[Any, dict[str, Any]], file_classes: list[str]) -> None:
+    def _check_against_frame(self, marks: dict[Any, dict[str, Any]], file_classes: list[str], warn: bool) -> None:
         assert self.frame is not None
         rows = self._rows_of(list(marks))
         missing = []
@@ -222,13 +456,15 @@ class RelabelStore:
             else:
                 rec["row"] = int(r)
         self.unmatched = missing
+        if not warn:
+            return
         if missing:
             shown = ", ".join(repr(v) for v in missing[:5])
             warnings.warn(
                 f"{self.path}: {len(missing)} of {len(marks)} marks name sample ids this frame does not have "
                 f"({shown}{' ...' if len(missing) > 5 else ''}); they are kept in the file as they are",
                 RelabelStoreWarning,
-                stacklevel=3,
+                stacklevel=4,
             )
         known = set(self._classes)
         used = {rec[f] for rec in marks.values() for f in ("given_label", "suggested_label") if rec.get(f)}
@@ -239,14 +475,14 @@ class RelabelStore:
                 f"{', '.join(repr(c) for c in unknown[:5])}{' ...' if len(unknown) > 5 else ''}; "
                 "the marks are kept as written",
                 RelabelStoreWarning,
-                stacklevel=3,
+                stacklevel=4,
             )
         elif file_classes and file_classes != list(self._classes):
             warnings.warn(
                 f"{self.path} was written for other class names ({len(file_classes)} classes); "
                 "its marks are kept and the file will list this frame's classes",
                 RelabelStoreWarning,
-                stacklevel=3,
+                stacklevel=4,
             )
 
     # ------------------------------------------------------------------ writing
@@ -263,31 +499,53 @@ class RelabelStore:
 
     def _write(self, marks: dict[Any, dict[str, Any]]) -> None:
         doc = self._document(marks)
-        with atomic_write(self.path, "w") as fh:
-            json.dump(doc, fh, indent=1, ensure_ascii=False)
-            fh.write("\n")
-        self._stamp = self._stat()
+        # one mark per line, each encoded by the json module's C encoder (indent= would use the slow one)
+        encode = json.JSONEncoder(ensure_ascii=False, allow_nan=False).encode
+        head = encode({k: v for k, v in doc.items() if k != "marks"})[:-1]
+        lines = [head + ', "marks": [', ",\n".join(" " + encode(m) for m in doc["marks"]), "]}", ""]
+        data = "\n".join(line for i, line in enumerate(lines) if line or i != 1).encode()
+        with atomic_write(self.path, "wb") as fh:
+            fh.write(data)
+        self._digest = hashlib.blake2b(data, digest_size=16).digest()
 
     def _commit(self, change: Any) -> Any:
-        """Apply ``change`` to a copy of the marks, save it, and only then keep it.
+        """Under the file's lock: read the file, apply ``change`` to its marks, write, and only then keep them.
 
-        If the file changed on disk since this store last read or wrote it
-        (another store on the same path), it is read again first, so the
-        other store's marks are not written over.
+        ``change`` edits a dict of marks in place and returns the caller's
+        result. It runs on the marks as they are on disk now (other stores'
+        changes included), not on this store's possibly older view, so no
+        other store's mark is written over unless ``change`` itself replaces
+        it; then the later change (this one) wins and a
+        :class:`RelabelConflictWarning` names the ids.
         """
-        base = self._marks
-        current = self._stat()
-        if current is not None and current != self._stamp:
-            base = self._read()
-        new = {k: dict(v) for k, v in base.items()}
-        result = change(new)
-        self._write(new)  # raises before anything is kept if the write fails
-        self._marks = new
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        with self._locked():
+            disk = self._read(warn=False)
+            new = {k: dict(v) for k, v in disk.items()}
+            try:
+                result = change(new)
+            except BaseException:
+                self._marks = disk  # refused: nothing written, but the view is now current
+                raise
+            touched = [k for k in set(new) | set(disk) if new.get(k) != disk.get(k)]
+            # a mark this change replaces or removes that is not the one this store last saw: another store's edit
+            conflicts = [k for k in touched if k in disk and disk[k] != self._marks.get(k)]
+            self._write(new)  # raises before anything is kept if the write fails
+            self._marks = new
+        if conflicts:
+            shown = ", ".join(repr(k) for k in conflicts[:5])
+            warnings.warn(
+                f"{self.path}: another store changed the mark of sample {shown}"
+                f"{f' and {len(conflicts) - 5} more' if len(conflicts) > 5 else ''} since this store last read "
+                "the file; this later change replaced it",
+                RelabelConflictWarning,
+                stacklevel=4,
+            )
         return result
 
     def save(self) -> None:
-        """Write the marks now (every change already does)."""
-        self._write(self._marks)
+        """Write the file now (every change already does); other stores' marks in the file are kept."""
+        self._commit(lambda marks: None)
 
     # ------------------------------------------------------------------ marks
 
@@ -299,6 +557,8 @@ class RelabelStore:
                 raise ClassNameError(f"{what} {int(label)} is not a class index in [0, {len(self._classes)})")
             return self._classes[int(label)]
         name = str(label)
+        if not self._classes and not _is_unicode(name):
+            raise ParameterError(f"{what} {name!r} is not valid Unicode text (a lone surrogate)")
         if self._classes and name not in self._classes:
             raise ClassNameError(
                 f"{what} {name!r} is not one of the {len(self._classes)} classes "
@@ -310,6 +570,9 @@ class RelabelStore:
         sid = spec["id"]
         row = spec.get("row")
         given = spec.get("given_label")
+        if row is not None:
+            if isinstance(row, bool) or not isinstance(row, int | np.integer) or not 0 <= int(row) <= _MAX_ROW:
+                raise ParameterError(f"the row of sample {sid!r} must be a whole number from 0, got {row!r}")
         if self.frame is not None:
             if found < 0:
                 raise ParameterError(f"sample id {sid!r} is not in the frame")
@@ -323,13 +586,16 @@ class RelabelStore:
         suggested = self._label_name(spec.get("suggested_label"), "suggested label")
         if suggested is None:
             raise ParameterError(f"the mark of sample {sid!r} needs a suggested label")
-        note = spec.get("note") or ""
+        note = str(spec.get("note") or "")
+        for what, text in (("note", note), ("given label", given), ("suggested label", suggested)):
+            if text is not None and not _is_unicode(text):
+                raise ParameterError(f"the {what} of sample {sid!r} is not valid Unicode text (a lone surrogate)")
         return {
             "id": sid,
             "row": None if row is None else int(row),
             "given_label": given,
             "suggested_label": suggested,
-            "note": str(note),
+            "note": note,
             "marked_at": _now(),
         }
 
@@ -405,8 +671,12 @@ class RelabelStore:
         return self._commit(change) if keys else 0
 
     def clear(self) -> None:
-        """Remove every mark and save."""
-        self._commit(lambda marks: marks.clear())
+        """Remove every mark this store shows, and save.
+
+        Marks that another store added since this one last read the file were
+        never shown here, so they are kept (and show after the call).
+        """
+        self.remove_many(list(self._marks), missing_ok=True)
 
     # ------------------------------------------------------------------ views
 
@@ -453,22 +723,38 @@ class RelabelStore:
         return df
 
     def export_csv(self, path: str | os.PathLike[str], spreadsheet_safe: bool = True) -> Path:
-        """Write the marks to a CSV file atomically and return its path.
+        """Write the marks in the file (other stores' too: it is read first) to a CSV file atomically.
 
-        With ``spreadsheet_safe`` (the default) a text cell that a spreadsheet
-        would run as a formula (starting with ``= + - @``, tab or carriage
-        return, and not a plain number) is prefixed with ``'``, as OWASP's
-        advice on CSV injection recommends.
+        Every field is quoted, so a carriage return or line break inside a
+        note or an id stays inside its cell (RFC 4180). With
+        ``spreadsheet_safe`` (the default) a text cell that a spreadsheet would
+        run as a formula (starting with ``= + - @``, a tab, a carriage return
+        or a line break, and not a plain number) is prefixed with ``'``, as
+        OWASP's advice on CSV injection recommends. Returns the path.
+
+        Examples
+        --------
+        >>> import tempfile, pathlib, csv
+        >>> folder = pathlib.Path(tempfile.mkdtemp())
+        >>> store = RelabelStore(folder / "m.json")
+        >>> _ = store.add("T-1", "billing", note="=1+1")
+        >>> rows = list(csv.reader(store.export_csv(folder / "m.csv").open(newline="", encoding="utf-8")))
+        >>> len(rows), rows[1][4]
+        (2, "'=1+1")
         """
         target = Path(path)
+        self.refresh()
         df = self.to_frame()
         if spreadsheet_safe:
             for col in df.columns:
                 if df[col].dtype == object or pd.api.types.is_string_dtype(df[col]):
                     df[col] = df[col].map(_defuse_formula)
         with atomic_write(target, "w") as fh:
-            df.to_csv(fh, index=False, lineterminator="\n")
+            df.to_csv(fh, index=False, lineterminator="\n", quoting=csv.QUOTE_ALL)
         return target
+
+
+_PLAIN_NUMBER = re.compile(r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?")
 
 
 def _defuse_formula(value: object) -> object:
@@ -479,10 +765,8 @@ def _defuse_formula(value: object) -> object:
     >>> _defuse_formula("=HYPERLINK(1)"), _defuse_formula("-3.5"), _defuse_formula("card-1")
     ("'=HYPERLINK(1)", '-3.5', 'card-1')
     """
-    if not isinstance(value, str) or not value or value[0] not in "=+-@\t\r":
+    if not isinstance(value, str) or not value or value[0] not in "=+-@\t\r\n":
         return value
-    try:
-        float(value)
-    except ValueError:
-        return "'" + value
-    return value
+    if _PLAIN_NUMBER.fullmatch(value):  # "-3.5" stays a number; "-1+cmd" or "\t1" do not
+        return value
+    return "'" + value

@@ -13,7 +13,7 @@ import pytest
 
 import logitscope
 from logitscope.report import write_report
-from test_report import HOSTILE, hostile_frame
+from test_report import HOSTILE, LONG_NAME, hostile_frame, long_frame
 
 from .harness import ARTIFACTS_DIR
 
@@ -37,13 +37,21 @@ def _only_the_file_and_data(requests: list[str], path: Path) -> list[str]:
 
 
 def test_demo_report_loads_offline_with_no_request_and_no_error(browser_page, browser_log, tmp_path: Path) -> None:
+    from logitscope.relabel_store import RelabelStore
+
+    frame = logitscope.load_demo("mailroom")
+    store = RelabelStore(tmp_path / "marks.json", frame)
+    store.add("card-01043", "four", note="the loop is open: reads as a four")
+    store.add("card-00005", "three")
     path = tmp_path / "mailroom-report.html"
     write_report(
-        logitscope.load_demo("mailroom"),
+        frame,
         path,
         fit_temperature=True,
         target_accuracy=0.98,
+        per_class=True,
         title="Mail room digits, postcode reader",
+        relabel=store,
     )
     requests, dialogs = _open(browser_page, path)
     assert _only_the_file_and_data(requests, path) == []
@@ -58,11 +66,36 @@ def test_demo_report_loads_offline_with_no_request_and_no_error(browser_page, br
     assert images and all(done and width > 0 for done, width in images)
     # the numbers are on the page as text
     assert browser_page.locator("#threshold-value").inner_text() != ""
-    assert "Caution." in browser_page.locator("#caution").inner_text()
+    for box in ("#caution", "#caution-per-class", "#caution-held-out"):  # beside every decision
+        assert "Caution." in browser_page.locator(box).inner_text()
+    # the style block ran under the policy (a refused style would leave the page unstyled): the header rule shows
+    border = browser_page.eval_on_selector("header", "e => getComputedStyle(e).borderBottomWidth")
+    assert border == "3px"
+    assert browser_page.evaluate("document.documentElement.scrollWidth") <= 1400
     ARTIFACTS_DIR.mkdir(parents=True, exist_ok=True)
     browser_page.screenshot(path=str(ARTIFACTS_DIR / "report-mailroom.png"), full_page=True)
-    browser_page.locator("#calibration").screenshot(path=str(ARTIFACTS_DIR / "report-mailroom-reliability.png"))
-    browser_page.locator("#threshold").screenshot(path=str(ARTIFACTS_DIR / "report-mailroom-threshold.png"))
+    for section in ("calibration", "sweep", "threshold", "held-out", "mixups", "doubtful", "marks"):
+        browser_page.locator(f"#{section}").screenshot(path=str(ARTIFACTS_DIR / f"report-mailroom-{section}.png"))
+
+
+def test_a_megabyte_class_name_keeps_the_page_its_width(browser_page, browser_log, tmp_path: Path) -> None:
+    path = tmp_path / "long.html"
+    write_report(long_frame(), path, target_accuracy=0.9, per_class=True, title="T" * 5000)
+    _open(browser_page, path)
+    assert browser_log.errors() == []
+    # the page is as wide as the window: no row, cell or heading grows with the 1 MB name
+    assert browser_page.evaluate("document.documentElement.scrollWidth") <= 1400
+    widest = browser_page.eval_on_selector_all(
+        "main *", "els => Math.max(...els.map(e => e.getBoundingClientRect().width))"
+    )
+    assert widest <= 1400
+    # the name is cut on the page, whole (up to the hover limit) in the title shown on hover
+    cell = browser_page.locator("#threshold-per-class td.class-name").first
+    shown, title = cell.inner_text(), cell.get_attribute("title")
+    assert shown.endswith("…") and len(shown) <= 40
+    assert title.startswith(LONG_NAME[:1000]) and title.endswith(f"({len(LONG_NAME):,} characters in all)")
+    ARTIFACTS_DIR.mkdir(parents=True, exist_ok=True)
+    browser_page.screenshot(path=str(ARTIFACTS_DIR / "report-long-names.png"), full_page=False)
 
 
 @pytest.mark.parametrize("labels", [True, False])

@@ -20,10 +20,12 @@ from .calibration import (
     reliability_bins,
 )
 from .class_mix import (
+    ClassMixCheck,
     ClassMixTest,
     PriorEstimate,
     adjust_to_new_priors,
     class_counts,
+    class_mix_check,
     class_mix_test,
     compare_class_mix,
     estimate_priors,
@@ -84,6 +86,7 @@ __all__ = [
     "SCORE_COLUMNS",
     "CheckpointComparison",
     "ClassAccuracyChange",
+    "ClassMixCheck",
     "ClassMixTest",
     "ConfusedPair",
     "FlipTable",
@@ -110,6 +113,7 @@ __all__ = [
     "check_probabilities",
     "check_temperature",
     "class_counts",
+    "class_mix_check",
     "class_mix_test",
     "classwise_calibration_error",
     "compare_checkpoints",

@@ -122,9 +122,12 @@ def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, l
         lmargin[i] = -g
         energy[i] = -(top * beta + log_s) / beta
         if has_y:
-            zy = np.float64(row[y[i]])
+            yi = y[i]
+            zy = np.float64(row[yi])
             above = 0
-            for j in range(k):
+            for j in range(yi):  # ties: an equal logit at a lower index ranks above the label (as argmax)
+                above += np.float64(row[j]) >= zy
+            for j in range(yi + 1, k):
                 above += np.float64(row[j]) > zy
             lp = (zy - top) * beta - log_s
             logptrue[i] = lp
@@ -160,3 +163,35 @@ def moments_kernel(z, y, beta):  # pragma: no cover - compiled
         var = ez2 - ez * ez
         d2 += var if var > 0.0 else 0.0
     return nll, d1, d2
+
+
+@numba.njit(**_OPTS)
+def prior_em_kernel(z, beta, shift, n_chunks):  # pragma: no cover - compiled
+    """Column sums over rows of ``softmax(beta z + shift)``: one step of the prior EM (Saerens et al. 2002).
+
+    Rows are split into ``n_chunks`` parallel chunks, each with its own row of the (n_chunks, K)
+    accumulator, summed at the end; ``shift`` may hold ``-inf`` (a prior that reached 0).
+    """
+    n, k = z.shape
+    acc = np.zeros((n_chunks, k))
+    per = (n + n_chunks - 1) // n_chunks
+    for c in numba.prange(n_chunks):
+        buf = np.empty(k)
+        lo = c * per
+        hi = min(n, lo + per)
+        for i in range(lo, hi):
+            row = z[i]
+            m = -np.inf
+            for j in range(k):
+                v = beta * np.float64(row[j]) + shift[j]
+                buf[j] = v
+                m = max(m, v)
+            s = 0.0
+            for j in range(k):
+                e = exp_nonpositive(buf[j] - m)
+                buf[j] = e
+                s += e
+            inv = 1.0 / s
+            for j in range(k):
+                acc[c, j] += buf[j] * inv
+    return acc.sum(axis=0)

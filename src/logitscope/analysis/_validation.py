@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import contextlib
 import contextvars
-import math
+import dataclasses
 from collections.abc import Iterator
 from typing import Any
 
@@ -26,6 +26,8 @@ from ..errors import (
     ShapeError,
     describe_rows,
 )
+from ..parameters import check as check_parameter
+from ..parameters import get_range
 
 _ASSUME_VALID: contextvars.ContextVar[bool] = contextvars.ContextVar("assume_valid", default=False)
 
@@ -161,14 +163,13 @@ def check_labels(y: Any, n_samples: int, n_classes: int, what: str = "labels") -
             f"{what} must be integer class indices, got dtype {arr.dtype}; "
             "pass class names through LogitFrame(labels=..., classes=...)"
         )
-    out = arr.astype(np.int64, copy=False)
-    bad = np.flatnonzero((out < 0) | (out >= n_classes))
+    bad = np.flatnonzero((arr < 0) | (arr >= n_classes))  # on the values as given: uint64 or 1e30 do not wrap
     if bad.size:
         raise LabelError(
             f"{what} must lie in [0, {n_classes}) for {n_classes} classes; "
-            f"out of range at {describe_rows(bad)} (values {out[bad[:5]].tolist()})"
+            f"out of range at {describe_rows(bad)} (values {arr[bad[:5]].tolist()})"
         )
-    return out
+    return arr.astype(np.int64, copy=False)
 
 
 def check_probabilities(p: Any, atol: float | None = None, what: str = "probabilities") -> np.ndarray:
@@ -182,6 +183,13 @@ def check_probabilities(p: Any, atol: float | None = None, what: str = "probabil
     >>> check_probabilities([[0.25, 0.75], [1.0, 0.0]]).shape
     (2, 2)
     """
+    if atol is not None:
+        try:
+            atol = float(atol)
+        except (TypeError, ValueError) as exc:
+            raise InputTypeError(f"atol must be a number, got {atol!r}") from exc
+        if not 0.0 <= atol < 1.0:  # NaN fails too
+            raise ParameterError(f"atol, the tolerance on each row's sum, must lie in [0, 1), got {atol!r}")
     arr = check_logits(p, what=what)
     if atol is None:
         atol = 1e-6 if arr.dtype == np.float64 else 1e-3
@@ -199,26 +207,19 @@ def check_probabilities(p: Any, atol: float | None = None, what: str = "probabil
 
 
 def check_temperature(temperature: Any) -> float:
-    """Return ``temperature`` as a positive finite float.
+    """Return ``temperature`` as a float in its accepted range (:data:`logitscope.parameters.RANGES`).
 
     Examples
     --------
     >>> check_temperature(2)
     2.0
     """
-    try:
-        t = float(temperature)
-    except (TypeError, ValueError) as exc:
-        raise InputTypeError(f"temperature must be a number, got {temperature!r}") from exc
-    if not math.isfinite(t) or t <= 0:
-        raise ParameterError(f"temperature must be positive and finite, got {temperature!r}")
-    return t
+    return float(check_parameter(temperature, "temperature"))
 
 
 def check_k(k: int, n_classes: int, what: str = "k") -> int:
-    """Return ``k`` if ``1 <= k <= n_classes``."""
-    if isinstance(k, bool) or not isinstance(k, int | np.integer):
-        raise InputTypeError(f"{what} must be an integer, got {k!r}")
-    if not 1 <= int(k) <= n_classes:
-        raise ParameterError(f"{what} must lie in [1, {n_classes}] for {n_classes} classes, got {k}")
-    return int(k)
+    """Return ``k`` if ``1 <= k <= n_classes`` (the range of ``k`` in :mod:`logitscope.parameters`)."""
+    rng = get_range("k")
+    if what != rng.label:
+        rng = dataclasses.replace(rng, label=what)
+    return int(rng.check(k, upper=n_classes, context=f"for {n_classes} classes"))

@@ -19,6 +19,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ..errors import ParameterError, ShapeError
+from ..parameters import check as check_parameter
 from ._blocks import as_float64_block, block_slices
 from ._validation import check_labels, check_logits, check_temperature
 from .scores import sample_scores
@@ -70,9 +71,7 @@ class ReliabilityBins:
 
 
 def _check_bins(n_bins: int) -> int:
-    if isinstance(n_bins, bool) or not isinstance(n_bins, int | np.integer) or n_bins < 1:
-        raise ParameterError(f"n_bins must be a positive integer, got {n_bins!r}")
-    return int(n_bins)
+    return int(check_parameter(n_bins, "n_bins"))
 
 
 def reliability_bins(
@@ -87,7 +86,8 @@ def reliability_bins(
     correct : array_like of shape (N,)
         Whether the prediction was right.
     n_bins : int, default 15
-        Number of bins (Guo et al. 2017 use 15).
+        Number of bins (Guo et al. 2017 use 15), in the range
+        :data:`logitscope.parameters.RANGES` gives (1 to 100).
     strategy : {"uniform", "quantile"}
         Equal-width bins ``(b / B, (b + 1) / B]`` or equal-mass bins.
 

@@ -8,6 +8,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ..errors import ShapeError
+from ..parameters import check as check_parameter
 from ._blocks import block_slices
 from ._validation import check_k, check_labels, check_logits
 
@@ -46,13 +47,26 @@ def normalize_rows(matrix: ArrayLike) -> np.ndarray:
     return np.divide(m, sums, out=np.zeros_like(m), where=sums > 0)
 
 
-def top_k_confusion(logits: ArrayLike, labels: ArrayLike, k: int = 3) -> np.ndarray:
-    """``C[i, j]``: samples of true class ``i`` with class ``j != i`` among their ``k`` largest logits.
+def _top_k_members(b: np.ndarray, k: int) -> np.ndarray:
+    """Boolean (rows, K): the ``k`` classes ranked first in each row, ties to the lower index."""
+    kk = b.shape[1]
+    if k >= kk:
+        return np.ones(b.shape, dtype=bool)
+    kth = -np.partition(-b, k - 1, axis=1)[:, k - 1]  # the k-th largest logit of each row
+    above = b > kth[:, None]
+    at = b == kth[:, None]
+    room = k - above.sum(axis=1)  # places left for the classes tied at the k-th value
+    return above | (at & (np.cumsum(at, axis=1) <= room[:, None]))
 
-    With ``k = 1`` this is the confusion matrix (up to ties). Which of several
-    classes tied at the k-th place is counted is not specified (continuous
-    logits rarely tie). The diagonal counts samples whose true class is
-    itself in the top ``k``.
+
+def top_k_confusion(logits: ArrayLike, labels: ArrayLike, k: int = 3) -> np.ndarray:
+    """``C[i, j]``: samples of true class ``i`` with class ``j`` among their ``k`` first-ranked classes.
+
+    Classes are ranked by logit, and among tied logits the lower class index
+    ranks first (as :func:`numpy.argmax`, the rule of the whole package), so
+    every row counts exactly ``k`` classes and ``k = 1`` gives the confusion
+    matrix of the arg-max predictions. The diagonal counts samples whose true
+    class is itself in the top ``k``.
 
     Examples
     --------
@@ -60,6 +74,8 @@ def top_k_confusion(logits: ArrayLike, labels: ArrayLike, k: int = 3) -> np.ndar
     >>> z = np.array([[3.0, 2.0, 0.0], [0.0, 3.0, 2.0], [1.0, 0.0, 3.0]])
     >>> top_k_confusion(z, [0, 1, 1], k=2).tolist()
     [[1, 1, 0], [1, 1, 2], [0, 0, 0]]
+    >>> top_k_confusion(np.zeros((2, 3)), [2, 2], k=2).tolist()  # ties: classes 0 and 1 rank first
+    [[0, 0, 0], [0, 0, 0], [2, 2, 0]]
     """
     z = check_logits(logits)
     n, kk = z.shape
@@ -67,10 +83,9 @@ def top_k_confusion(logits: ArrayLike, labels: ArrayLike, k: int = 3) -> np.ndar
     k = check_k(k, kk)
     out = np.zeros(kk * kk, dtype=np.int64)
     for rows in block_slices(n, kk):
-        b = np.asarray(z[rows])
-        top = np.argpartition(-b, k - 1, axis=1)[:, :k] if k < kk else np.broadcast_to(np.arange(kk), b.shape)
-        yy = np.repeat(y[rows], k)
-        out += np.bincount(yy * kk + top.ravel(), minlength=kk * kk)
+        member = _top_k_members(np.asarray(z[rows]), k)
+        r, j = np.nonzero(member)
+        out += np.bincount(y[rows][r] * kk + j, minlength=kk * kk)
     return out.reshape(kk, kk)
 
 
@@ -96,6 +111,7 @@ def most_confused_pairs(matrix: ArrayLike, n: int = 10, class_counts: ArrayLike 
     >>> [(p.true, p.other, p.count) for p in most_confused_pairs([[5, 2, 0], [3, 4, 0], [0, 1, 6]], n=2)]
     [(1, 0, 3), (0, 1, 2)]
     """
+    n = int(check_parameter(n, "n_pairs"))
     m = np.asarray(matrix)
     if m.ndim != 2 or m.shape[0] != m.shape[1]:
         raise ShapeError(f"a confusion matrix must be square, got shape {m.shape}")

@@ -27,6 +27,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ..errors import ParameterError
+from ..parameters import check as check_parameter
 from ._blocks import as_float64_block, block_slices
 from ._validation import assume_valid, check_labels, check_logits, check_temperature
 from .scores import sample_scores
@@ -49,7 +50,8 @@ class LabelIssueRanking:
         return int(self.index.shape[0])
 
     def top(self, n: int) -> LabelIssueRanking:
-        """The first ``n`` rows of the ranking."""
+        """The first ``n`` rows of the ranking (``n`` in the range of ``n_candidates``)."""
+        n = int(check_parameter(n, "n_candidates"))
         return LabelIssueRanking(self.method, self.index[:n], self.score[:n], self.suggested[:n])
 
 

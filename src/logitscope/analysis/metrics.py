@@ -33,6 +33,8 @@ def _prepare(logits: ArrayLike, labels: ArrayLike) -> tuple[np.ndarray, np.ndarr
 def accuracy(logits: ArrayLike, labels: ArrayLike) -> float:
     """Fraction of rows whose arg-max logit is the label: ``mean(argmax z == y)``.
 
+    Among tied maxima the lowest class index is the prediction (as :func:`numpy.argmax`).
+
     Examples
     --------
     >>> import numpy as np
@@ -46,24 +48,31 @@ def accuracy(logits: ArrayLike, labels: ArrayLike) -> float:
 def top_k_accuracy(logits: ArrayLike, labels: ArrayLike, k: int = 5) -> float:
     """Fraction of rows whose label is among the ``k`` largest logits.
 
-    Ties at the k-th place count in the label's favour: the label is a hit
-    when fewer than ``k`` classes have a strictly larger logit. Without ties
-    this equals scikit-learn's ``top_k_accuracy_score``, which instead breaks
-    ties by taking the higher class index first.
+    Ties follow the rule of the whole package: among tied logits the lowest
+    class index ranks first, as :func:`numpy.argmax` does, so the label is a
+    hit when fewer than ``k`` classes have a larger logit or an equal logit
+    at a lower index, and ``top_k_accuracy(z, y, 1) == accuracy(z, y)``
+    always. Without ties this equals scikit-learn's ``top_k_accuracy_score``,
+    which puts the higher class index first among ties instead.
 
     Examples
     --------
     >>> import numpy as np
     >>> top_k_accuracy(np.array([[3.0, 2.0, 1.0], [1.0, 2.0, 3.0]]), [1, 0], k=2)
     0.5
+    >>> top_k_accuracy(np.zeros((5, 5)), [0, 1, 2, 3, 4], k=2)  # constant logits: classes 0 and 1 rank first
+    0.4
     """
     z, y = _prepare(logits, labels)
     k = check_k(k, z.shape[1])
     hits = 0
+    cols = np.arange(z.shape[1])
     for rows in block_slices(*z.shape):
         b = np.asarray(z[rows])
-        zy = b[np.arange(b.shape[0]), y[rows]]
-        hits += int(np.count_nonzero((b > zy[:, None]).sum(axis=1) < k))
+        yr = y[rows]
+        zy = b[np.arange(b.shape[0]), yr]
+        before = (b > zy[:, None]) | ((b == zy[:, None]) & (cols[None, :] < yr[:, None]))
+        hits += int(np.count_nonzero(before.sum(axis=1) < k))
     return hits / z.shape[0]
 
 
@@ -81,9 +90,10 @@ def default_ks(n_classes: int) -> tuple[int, ...]:
 def top_k_accuracies(true_rank: ArrayLike, ks: tuple[int, ...]) -> dict[int, float]:
     """Top-k accuracies for several ``k`` from the rank of the true class.
 
-    ``true_rank`` is 1 plus the number of classes with a strictly larger
-    logit (see :func:`~logitscope.analysis.sample_scores`), so the label is
-    in the top ``k`` exactly when ``true_rank <= k``.
+    ``true_rank`` is 1 plus the number of classes ranked above the label
+    (a larger logit, or an equal one at a lower index; see
+    :func:`~logitscope.analysis.sample_scores`), so the label is in the top
+    ``k`` exactly when ``true_rank <= k``.
 
     Examples
     --------

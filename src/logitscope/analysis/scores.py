@@ -13,7 +13,12 @@ For each row ``z`` at temperature ``T`` (``p = softmax(z / T)``):
 - with labels ``y``: ``true_probability`` ``p_y``, ``true_log_probability``
   ``log p_y`` (finite even where ``p_y`` underflows), ``brier``
   ``sum_k (p_k - 1[y = k])^2`` (Brier 1950), ``true_rank`` (1 = the model's
-  first choice; ties count in the label's favour) and ``correct``.
+  first choice) and ``correct``.
+
+Ties follow one rule: among tied logits the lowest class index wins, as
+:func:`numpy.argmax` does. ``true_rank`` is ``1 +`` the classes with a larger
+logit ``+`` the classes with an equal logit and a lower index, so
+``true_rank == 1`` exactly when ``predicted == label``.
 
 Two backends give the same numbers: a numba kernel that runs over row blocks
 in parallel threads (used when numba is installed) and a pure numpy path in
@@ -159,8 +164,11 @@ def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[st
         top = b.argmax(axis=1)
         m1 = b[r, top]
         if y is not None:
-            zy = b[r, y[rows]]
-            out["true_rank"][rows] = 1 + (b > zy[:, None]).sum(axis=1)
+            yr = y[rows]
+            zy = b[r, yr]
+            # ties: a class with the same logit and a lower index ranks above the label (as numpy.argmax)
+            tied_before = (b == zy[:, None]) & (np.arange(b.shape[1])[None, :] < yr[:, None])
+            out["true_rank"][rows] = 1 + (b > zy[:, None]).sum(axis=1) + tied_before.sum(axis=1)
         b[r, top] = -np.inf
         m2 = b.max(axis=1)
         b[r, top] = m1

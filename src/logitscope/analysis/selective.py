@@ -15,14 +15,16 @@ Validate it on held-out data before use, and where errors can hurt people
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass, field
 from typing import Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
-from scipy import stats
+from scipy import special, stats
 
 from ..errors import ParameterError, ShapeError
+from ..parameters import check as check_parameter
 
 __all__ = [
     "CAUTION",
@@ -94,32 +96,54 @@ def risk_coverage_curve(confidence: ArrayLike, correct: ArrayLike) -> RiskCovera
     >>> rc.threshold.tolist(), rc.n_accepted.tolist(), rc.n_errors.tolist()
     ([0.9, 0.8, 0.6], [1, 3, 4], [0, 1, 2])
     """
-    conf, ok = _check_pair(confidence, correct)
-    order = np.argsort(-conf, kind="stable")
-    c = conf[order]
-    errors = np.cumsum(~ok[order])
-    # last index of each run of equal confidence
-    last = np.flatnonzero(np.r_[c[1:] != c[:-1], True])
-    return RiskCoverage(threshold=c[last], n_accepted=last + 1, n_errors=errors[last], n_total=conf.size)
+    return _curve(*_check_pair(confidence, correct))
+
+
+def _curve(conf: np.ndarray, ok: np.ndarray) -> RiskCoverage:
+    # a sort instead of an arg-sort (several times faster): the distinct confidences come from the sorted
+    # values, and each error is placed in its run by a binary search
+    c = np.sort(conf)[::-1]  # descending
+    last = np.flatnonzero(np.r_[c[1:] != c[:-1], True])  # last index of each run of equal confidence
+    thresholds = c[last]
+    # each error's run: its confidence is one of the thresholds; the errors' confidences are sorted first,
+    # so that the binary searches walk the thresholds in order (several times faster than in random order)
+    run = np.searchsorted(-thresholds, np.sort(-conf[~ok]), side="left")
+    n_errors = np.cumsum(np.bincount(run, minlength=thresholds.size))
+    return RiskCoverage(threshold=thresholds, n_accepted=last + 1, n_errors=n_errors, n_total=conf.size)
 
 
 def aurc(confidence: ArrayLike, correct: ArrayLike) -> float:
-    """Area under the risk-coverage curve, ``(1/N) sum_{n=1}^{N} errors(n) / n``.
+    """Area under the risk-coverage curve (Geifman, Uziel and El-Yaniv 2019).
 
-    ``errors(n)`` counts the errors among the ``n`` most confident samples
-    (Geifman, Uziel and El-Yaniv 2019). Ties in confidence are ordered
-    pessimistically (errors first) so that the value cannot flatter a score
-    that does not separate them.
+    Without ties this is ``(1/N) sum_{n=1}^{N} errors(n) / n``, where
+    ``errors(n)`` counts the errors among the ``n`` most confident samples.
+    A threshold cannot split samples of equal confidence, so tied samples
+    are accepted together, as in :func:`risk_coverage_curve`: each group of
+    ties contributes its share of the samples times the selective risk of
+    accepting it with everything more confident. Equivalently, AURC is the
+    mean over samples of the risk of the threshold at each sample's own
+    confidence; a constant confidence gives the error rate.
 
     Examples
     --------
     >>> round(aurc([0.9, 0.8, 0.7, 0.6], [1, 1, 0, 0]), 6)  # (0 + 0 + 1/3 + 2/4) / 4
     0.208333
+    >>> aurc([0.8, 0.8, 0.8, 0.8], [1, 1, 1, 0])  # no ranking at all: the error rate
+    0.25
     """
-    conf, ok = _check_pair(confidence, correct)
-    order = np.lexsort((ok, -conf))  # by confidence descending, errors (False) first among ties
-    errors = np.cumsum(~ok[order])
-    return float(np.mean(errors / np.arange(1, conf.size + 1)))
+    rc = risk_coverage_curve(confidence, correct)
+    share = np.diff(rc.n_accepted, prepend=0) / rc.n_total
+    return float(np.sum(share * rc.n_errors / rc.n_accepted))
+
+
+def _wilson(k: np.ndarray, n: np.ndarray, alpha: float) -> tuple[np.ndarray, np.ndarray]:
+    """Wilson (1927) score interval for arrays of successes ``k`` out of ``n > 0`` trials."""
+    zc = float(stats.norm.ppf(1 - alpha / 2))
+    phat = k / n
+    denom = 1 + zc * zc / n
+    centre = (phat + zc * zc / (2 * n)) / denom
+    half = zc * np.sqrt(phat * (1 - phat) / n + zc * zc / (4 * n * n)) / denom
+    return np.maximum(0.0, centre - half), np.minimum(1.0, centre + half)
 
 
 def binomial_interval(
@@ -136,8 +160,7 @@ def binomial_interval(
     >>> [round(v, 4) for v in binomial_interval(8, 10)]
     [0.4902, 0.9433]
     """
-    if not 0 < level < 1:
-        raise ParameterError(f"level must lie in (0, 1), got {level!r}")
+    level = float(check_parameter(level, "level"))
     k, n = int(successes), int(trials)
     if n < 0 or not 0 <= k <= max(n, 0):
         raise ParameterError(f"need 0 <= successes <= trials, got {k} of {n}")
@@ -145,17 +168,85 @@ def binomial_interval(
         return 0.0, 1.0
     alpha = 1.0 - level
     if method == "wilson":
-        zc = float(stats.norm.ppf(1 - alpha / 2))
-        phat = k / n
-        denom = 1 + zc * zc / n
-        centre = (phat + zc * zc / (2 * n)) / denom
-        half = zc * np.sqrt(phat * (1 - phat) / n + zc * zc / (4 * n * n)) / denom
-        return float(max(0.0, centre - half)), float(min(1.0, centre + half))
+        lo, hi = _wilson(np.asarray(float(k)), np.asarray(float(n)), alpha)
+        return float(lo), float(hi)
     if method == "clopper-pearson":
-        lo = 0.0 if k == 0 else float(stats.beta.ppf(alpha / 2, k, n - k + 1))
-        hi = 1.0 if k == n else float(stats.beta.ppf(1 - alpha / 2, k + 1, n - k))
-        return lo, hi
+        lo_cp = 0.0 if k == 0 else float(stats.beta.ppf(alpha / 2, k, n - k + 1))
+        hi_cp = 1.0 if k == n else float(stats.beta.ppf(1 - alpha / 2, k + 1, n - k))
+        return lo_cp, hi_cp
     raise ParameterError(f"method must be 'wilson' or 'clopper-pearson', got {method!r}")
+
+
+def _cp_reaches(k: np.ndarray, n: np.ndarray, target: float, alpha: float) -> np.ndarray:
+    """Rows (``0 < target < k / n``) whose Clopper-Pearson lower end is at least ``target``.
+
+    The lower end ``p_L`` solves ``P(X >= k; n, p_L) = alpha / 2`` and the tail
+    grows with ``p``, so ``p_L >= t`` exactly when ``P(X >= k; n, t) <= alpha / 2``
+    (Clopper and Pearson 1934): a regularised incomplete beta function
+    ``I_t(k, n - k + 1)``, with no quantile to invert. Most rows are decided
+    without it by two bounds on that tail, with ``lam = k / n`` and ``D`` the
+    Kullback-Leibler divergence of Bernoulli(lam) from Bernoulli(t): Chernoff's
+    ``P <= exp(-n D)`` (so ``n D >= log(2 / alpha)`` suffices) and
+    ``P >= P(X = k) >= exp(-n D) / sqrt(8 n lam (1 - lam))`` for ``k < n``
+    (Ash 1990, Lemma 4.7.2; so a row that reaches the target has
+    ``n D + log(8 n lam (1 - lam)) / 2 >= log(2 / alpha)``). For ``k = n`` the
+    tail is ``t^n`` exactly. Only rows between the two bounds, and after the
+    last row the first bound settles, get the exact tail: the returned mask's
+    last True is exact, earlier rows may be left False.
+    """
+    out = np.zeros(k.shape, dtype=bool)
+    need = -math.log(alpha / 2)
+    every = k == n
+    out[every] = -n[every] * math.log(target) >= need
+    idx = np.flatnonzero(~every)
+    if idx.size == 0:
+        return out
+    lm, nm = k[idx] / n[idx], n[idx]
+    d = lm * np.log(lm / target) + (1 - lm) * np.log((1 - lm) / (1 - target))
+    slack = 1e-9 * (1.0 + need)
+    sure = nm * d >= need + slack
+    maybe = ~sure & (nm * d + 0.5 * np.log(8 * nm * lm * (1 - lm)) >= need - slack)
+    out[idx[sure]] = True
+    after = int(np.flatnonzero(out)[-1]) if out.any() else -1
+    check = idx[maybe]
+    check = check[check > after]  # only rows after the last settled one can change the last True
+    if check.size:
+        tail = special.betainc(k[check], n[check] - k[check] + 1, target)  # P(X >= k; n, target)
+        out[check] = tail <= alpha / 2
+    return out
+
+
+def _last_lower_bound_reaching(
+    k: np.ndarray, n: np.ndarray, target: float, level: float, method: IntervalMethod, chunk: int = 1 << 16
+) -> int:
+    """Index of the last row (successes ``k`` of ``n``) whose interval's lower end is ``>= target``; -1 if none.
+
+    Both intervals contain ``k / n``, so only rows with ``k / n >= target``
+    can reach it. Those are scanned from the last one backwards in chunks,
+    and the scan stops in the first chunk holding a row that reaches the
+    target: in the usual case only the last few candidates are evaluated.
+    Wilson's lower end has a closed form; Clopper-Pearson's is decided by
+    :func:`_cp_reaches`.
+    """
+    alpha = 1.0 - level
+    if target <= 0:
+        return k.size - 1
+    kf = k.astype(np.float64)
+    nf = n.astype(np.float64)
+    cand = np.flatnonzero(kf / nf >= target - 1e-12)
+    for stop in range(cand.size, 0, -chunk):
+        idx = cand[max(0, stop - chunk) : stop]
+        if method == "wilson":
+            hit = _wilson(kf[idx], nf[idx], alpha)[0] >= target
+        else:
+            hit = np.zeros(idx.size, dtype=bool)
+            inside = kf[idx] / nf[idx] > target  # where k / n == target, p_L < k / n = target
+            sub = np.flatnonzero(inside)
+            if sub.size:
+                hit[sub] = _cp_reaches(kf[idx[sub]], nf[idx[sub]], target, alpha)
+        if hit.any():
+            return int(idx[np.flatnonzero(hit)[-1]])
+    return -1
 
 
 @dataclass(frozen=True)
@@ -220,12 +311,18 @@ def evaluate_threshold(
 ) -> ThresholdChoice:
     """Coverage and accuracy (with a binomial interval) of accepting ``confidence >= threshold``.
 
+    ``threshold`` lies in [0, 1], or is ``inf``: accept nothing (what an
+    unreachable target gives, see :func:`threshold_for_accuracy`).
+
     Examples
     --------
     >>> c = evaluate_threshold([0.9, 0.8, 0.8, 0.6], [1, 1, 0, 0], 0.8)
     >>> c.coverage, round(c.accuracy, 4), c.n_review
     (0.75, 0.6667, 1)
     """
+    if not (isinstance(threshold, float | np.floating) and threshold == np.inf):
+        threshold = float(check_parameter(threshold, "threshold"))
+    level = float(check_parameter(level, "level"))
     conf, ok = _check_pair(confidence, correct)
     acc = conf >= threshold
     n_acc = int(acc.sum())
@@ -254,21 +351,23 @@ def threshold_for_accuracy(
     >>> c.threshold, c.coverage, c.accuracy
     (0.6, 1.0, 0.8)
     """
-    if not 0 < target <= 1:
-        raise ParameterError(f"target accuracy must lie in (0, 1], got {target!r}")
+    target = float(check_parameter(target, "target_accuracy"))
+    level = float(check_parameter(level, "level"))
     conf, ok = _check_pair(confidence, correct)
-    rc = risk_coverage_curve(conf, ok)
+    rc = _curve(conf, ok)
     right = rc.n_accepted - rc.n_errors
+    if method not in ("wilson", "clopper-pearson"):
+        raise ParameterError(f"method must be 'wilson' or 'clopper-pearson', got {method!r}")
+    # thresholds run from high to low: the last one that reaches the target is the lowest
     if use_lower_bound:
-        score = np.array([binomial_interval(r, a, level, method)[0] for r, a in zip(right, rc.n_accepted, strict=True)])
+        i = _last_lower_bound_reaching(right, rc.n_accepted, target - 1e-12, level, method)
         rule = f"lowest threshold whose {method} {level:.0%} lower bound on accuracy >= {target:g}"
     else:
-        score = right / rc.n_accepted
+        hits = np.flatnonzero(right / rc.n_accepted >= target - 1e-12)
+        i = int(hits[-1]) if hits.size else -1
         rule = f"lowest threshold whose accuracy >= {target:g}"
-    ok_idx = np.flatnonzero(score >= target - 1e-12)
-    if ok_idx.size == 0:
+    if i < 0:
         return _choice(np.inf, 0, 0, conf.size, level, method, rule, feasible=False)
-    i = int(ok_idx[-1])  # thresholds run from high to low: the last feasible one is the lowest
     return _choice(rc.threshold[i], int(rc.n_accepted[i]), int(rc.n_errors[i]), conf.size, level, method, rule)
 
 
@@ -294,10 +393,11 @@ def threshold_for_cost(
     >>> c.threshold, c.n_review, c.expected_cost
     (0.8, 2, 0.4)
     """
-    if not (np.isfinite(error_cost) and np.isfinite(review_cost)) or error_cost < 0 or review_cost < 0:
-        raise ParameterError(f"costs must be non-negative numbers, got {error_cost!r} and {review_cost!r}")
+    error_cost = float(check_parameter(error_cost, "error_cost"))
+    review_cost = float(check_parameter(review_cost, "review_cost"))
+    level = float(check_parameter(level, "level"))
     conf, ok = _check_pair(confidence, correct)
-    rc = risk_coverage_curve(conf, ok)
+    rc = _curve(conf, ok)
     n = conf.size
     acc = np.r_[0, rc.n_accepted]
     err = np.r_[0, rc.n_errors]

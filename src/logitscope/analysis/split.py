@@ -21,6 +21,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ..errors import ParameterError, ShapeError
+from ..parameters import check as check_parameter
 
 __all__ = ["Split", "random_split", "split_by_values"]
 
@@ -75,9 +76,7 @@ def random_split(
     (7, 3, True)
     """
     n = _check_n(n_samples)
-    frac = float(held_out_fraction)
-    if not 0.0 < frac < 1.0:
-        raise ParameterError(f"held_out_fraction must lie strictly between 0 and 1, got {held_out_fraction!r}")
+    frac = float(check_parameter(held_out_fraction, "held_out_fraction"))
     rng = np.random.default_rng(seed)
     held = np.zeros(n, dtype=bool)
     if stratify is None:

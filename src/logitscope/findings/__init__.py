@@ -16,6 +16,7 @@ numbers.
 - :func:`held_out_check` -> :class:`HeldOutCheck`;
 - :func:`confusion_summary` -> :class:`ConfusionSummary`;
 - :func:`suspect_labels` -> :class:`SuspectLabels`;
+- :func:`confidence_histogram` -> :class:`ConfidenceHistogram`;
 - :func:`resolve_choices` and :func:`collect` -> :class:`Findings`, all of a report's findings.
 """
 
@@ -29,9 +30,10 @@ from .calibration import (
     prediction_summary,
 )
 from .choices import INTERVAL_NAMES, STRATEGY_NAMES, Binning, Choices, ThresholdRule
-from .collect import Findings, TemperatureContext, collect, resolve_choices, rule_from_options
+from .collect import Findings, TemperatureContext, collect, resolve_choices, rule_from_options, temperature_context
 from .confusion import ConfusionSummary, confusion_summary
 from .held_out import HeldOutCheck, held_out_check
+from .histogram import ConfidenceHistogram, confidence_histogram
 from .history import EPOCH_COLUMNS, EpochRecord, epoch_record
 from .suspects import SuspectLabels, suspect_labels
 from .sweep import SweepFinding, fitted_temperature, sweep_finding, sweep_grid
@@ -45,6 +47,7 @@ __all__ = [
     "Binning",
     "CalibrationSummary",
     "Choices",
+    "ConfidenceHistogram",
     "ConfusionSummary",
     "EpochRecord",
     "Findings",
@@ -59,6 +62,7 @@ __all__ = [
     "bin_range_label",
     "calibration_summary",
     "collect",
+    "confidence_histogram",
     "confusion_summary",
     "count_selection",
     "epoch_record",
@@ -70,6 +74,7 @@ __all__ = [
     "suspect_labels",
     "sweep_finding",
     "sweep_grid",
+    "temperature_context",
     "thin_indices",
     "threshold_decision",
 ]

@@ -69,6 +69,11 @@ class PredictionSummary:
     mean_entropy: float
     predicted_counts: np.ndarray = field(repr=False)
 
+    @property
+    def predicted_share(self) -> np.ndarray:
+        """``predicted_counts`` as shares of ``n``."""
+        return self.predicted_counts / max(self.n, 1)
+
     def to_dict(self) -> dict[str, Any]:
         return {
             "n": self.n,

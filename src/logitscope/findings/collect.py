@@ -23,6 +23,7 @@ from .calibration import CalibrationSummary, PredictionSummary, calibration_summ
 from .choices import Binning, Choices, ThresholdRule
 from .confusion import ConfusionSummary, confusion_summary
 from .held_out import HeldOutCheck, held_out_check
+from .histogram import ConfidenceHistogram, confidence_histogram
 from .suspects import SuspectLabels, suspect_labels
 from .sweep import SweepFinding, fitted_temperature, sweep_finding
 from .threshold import ThresholdDecision, threshold_decision
@@ -30,7 +31,7 @@ from .threshold import ThresholdDecision, threshold_decision
 if TYPE_CHECKING:
     from ..frame import LogitFrame
 
-__all__ = ["Findings", "TemperatureContext", "collect", "resolve_choices", "rule_from_options"]
+__all__ = ["Findings", "TemperatureContext", "collect", "resolve_choices", "rule_from_options", "temperature_context"]
 
 #: Fewest labelled rows for the report's own held-out split.
 MIN_ROWS_FOR_SPLIT = 20
@@ -149,14 +150,36 @@ def resolve_choices(
         t, how = base, "as given"
     if temperature_how:
         how = str(temperature_how)
+    choices = Choices(temperature=t, temperature_how=how, binning=binning, rule=rule, split=split)
+    return choices, temperature_context(frame, t, how, fitted)
+
+
+def temperature_context(
+    frame: LogitFrame, temperature: float, how: str, fitted: an.TemperatureFit | None = None
+) -> TemperatureContext:
+    """The temperatures shown beside a decision temperature: the frame's own, the fitted one, the compared one.
+
+    ``fitted`` is the fit on all labelled rows (computed when None and the frame has labels).
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from logitscope import LogitFrame
+    >>> frame = LogitFrame(np.array([[2.0, 0.0], [0.0, 1.0], [1.0, 0.0]]), labels=[0, 1, 1])
+    >>> temperature_context(frame, 2.0, "set by hand").compare
+    2.0
+    """
+    t = an.check_temperature(temperature)
+    base = frame.temperature
+    if fitted is None and frame.has_labels:
+        fitted = fitted_temperature(frame)
     if fitted is None:
         compare, compare_how = None, ""
     elif not math.isclose(t, base, rel_tol=1e-12):
-        compare, compare_how = t, how
+        compare, compare_how = t, str(how)
     else:
         compare, compare_how = fitted.temperature, "fitted, for comparison: the decisions below do not use it"
-    choices = Choices(temperature=t, temperature_how=how, binning=binning, rule=rule, split=split)
-    return choices, TemperatureContext(base, t, how, fitted, compare, compare_how)
+    return TemperatureContext(base, t, str(how), fitted, compare, compare_how)
 
 
 @dataclass(frozen=True)
@@ -175,6 +198,7 @@ class Findings:
     confusion: ConfusionSummary | None = None
     suspects: SuspectLabels | None = None
     split: Split | None = field(default=None, repr=False)
+    histogram: ConfidenceHistogram | None = field(default=None, repr=False)
 
     @property
     def labelled(self) -> bool:
@@ -207,15 +231,19 @@ def collect(
     """
     t = choices.temperature
     preds = prediction_summary(frame, t)
+    histogram = confidence_histogram(frame, t)
     if not frame.has_labels:
-        return Findings(choices, temperatures, preds)
+        return Findings(choices, temperatures, preds, histogram=histogram)
     b = choices.binning
     before = calibration_summary(frame, temperatures.base, None, b)
     after = None if temperatures.compare is None else calibration_summary(frame, temperatures.compare, None, b)
     decision = calibration_summary(frame, t, None, b)
     marks = [temperatures.base, t]
     sweep = sweep_finding(frame, None, b, marks=marks, fitted=temperatures.fitted)
-    threshold = None if choices.rule is None else threshold_decision(frame, choices.rule, t)
+    # with a split of the user's, the threshold is chosen on its fit part (as the panel's picker does); the
+    # held-out check then judges it on the other part. The report's own split only checks.
+    chosen_on = None if choices.split is None else choices.split.fit
+    threshold = None if choices.rule is None else threshold_decision(frame, choices.rule, t, chosen_on)
     split = choices.split
     if split is None and own_split and frame.n_samples >= MIN_ROWS_FOR_SPLIT:
         assert frame.labels is not None
@@ -234,4 +262,5 @@ def collect(
         confusion=confusion_summary(frame, t, 1, n_pairs),
         suspects=suspect_labels(frame, "confident_learning", t, top=n_suspects),
         split=split,
+        histogram=histogram,
     )

@@ -24,7 +24,8 @@ GRID_POINTS = 41
 
 
 def sweep_grid(marks: Sequence[float] = ()) -> np.ndarray:
-    """The temperatures swept: 41 log-spaced points over 0.25..4, widened to hold every mark, plus the marks.
+    """The temperatures swept: 41 log-spaced points over 0.25..4, widened to hold every mark (within the
+    accepted range of a temperature), plus the marks.
 
     Examples
     --------
@@ -33,8 +34,9 @@ def sweep_grid(marks: Sequence[float] = ()) -> np.ndarray:
     (0.25, 4.0, True)
     """
     m = [float(t) for t in marks]
-    lo = min([0.25, *(t / 2 for t in m)])
-    hi = max([4.0, *(t * 2 for t in m)])
+    t_lo, t_hi = an.temperature.T_MIN, an.temperature.T_MAX  # the accepted range of a temperature
+    lo = max(t_lo, min([0.25, *(t / 2 for t in m)]))
+    hi = min(t_hi, max([4.0, *(t * 2 for t in m)]))
     return np.unique(np.r_[np.geomspace(lo, hi, GRID_POINTS), m])
 
 
@@ -52,10 +54,10 @@ def fitted_temperature(frame: LogitFrame, rows: Any = None) -> an.TemperatureFit
     if not frame.has_labels:
         raise LabelError("fitting a temperature needs labels; this frame has none (use with_labels)")
     r = _rows(frame, rows)
-    part = frame if r is None else frame.subset(r)
-    with warnings.catch_warnings():
+    assert frame.labels is not None
+    with warnings.catch_warnings(), an.assume_valid():
         warnings.simplefilter("ignore", RuntimeWarning)  # a bound hit is carried in at_bound
-        return part.fit_temperature()
+        return an.fit_temperature(frame.logits, frame.labels, rows=r)
 
 
 @dataclass(frozen=True)
@@ -132,10 +134,9 @@ def sweep_finding(
     fit_ = fitted_temperature(frame, r) if fitted is None and fit else fitted
     extra = [] if fit_ is None else [fit_.temperature]
     g = sweep_grid([*marks, *extra]) if grid is None else np.sort(np.asarray(grid, dtype=np.float64))
-    part = frame if r is None else frame.subset(r)
-    assert part.labels is not None
+    assert frame.labels is not None
     with an.assume_valid():
-        sw = an.temperature_sweep(part.logits, part.labels, g, b.n_bins, b.strategy)
+        sw = an.temperature_sweep(frame.logits, frame.labels, g, b.n_bins, b.strategy, rows=r)
     return SweepFinding(
         temperature=sw.temperature,
         nll=sw.nll,
@@ -144,6 +145,6 @@ def sweep_finding(
         mean_confidence=sw.mean_confidence,
         fitted=fit_,
         binning=b,
-        n=part.n_samples,
+        n=frame.n_samples if r is None else int(r.size),
         rows=r,
     )

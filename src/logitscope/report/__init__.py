@@ -2,23 +2,63 @@
 
 ``logitscope report FILE -o report.html``, :meth:`LogitFrame.report` and the
 "write report" button of the calibration panel all call :func:`write_report`.
+It settles the choices (:func:`logitscope.findings.resolve_choices`),
+computes the findings once (:func:`logitscope.findings.collect`) and renders
+them (:func:`.html.build_report`); the report computes no number itself.
 """
 
 from __future__ import annotations
 
 import os
 from collections.abc import Sequence
-from typing import TYPE_CHECKING
+from typing import TYPE_CHECKING, Any
 
 from .._atomic import atomic_write
+from ..analysis.selective import IntervalMethod
 from ..analysis.split import Split
-from ..errors import InputTypeError
-from .html import IntervalMethod, ReportChoices, build_report, resolve_choices
+from ..errors import FileFormatError, InputTypeError, ParameterError
+from ..findings import Choices, Findings, collect, resolve_choices, temperature_context
+from .html import build_report
 
 if TYPE_CHECKING:
     from ..frame import LogitFrame
+    from ..relabel_store import RelabelStore
 
-__all__ = ["ReportChoices", "build_report", "resolve_choices", "write_report"]
+__all__ = ["build_report", "write_report"]
+
+#: The options that settle the choices, with their defaults (they cannot be combined with ``findings``/``choices``).
+_OPTION_DEFAULTS: dict[str, Any] = {
+    "temperature": None,
+    "fit_temperature": False,
+    "target_accuracy": None,
+    "costs": None,
+    "threshold": None,
+    "use_lower_bound": False,
+    "per_class": False,
+    "interval": "wilson",
+    "level": 0.95,
+    "n_bins": 15,
+    "strategy": "uniform",
+    "split": None,
+    "temperature_how": None,
+}
+
+
+def _open_marks(frame: LogitFrame, relabel: Any) -> tuple[list[dict[str, Any]], str]:
+    """The marks of a RelabelStore or of a relabel file (read through the store's public API)."""
+    from ..relabel_store import RelabelStore
+
+    if isinstance(relabel, RelabelStore):
+        store = relabel
+    elif isinstance(relabel, str | os.PathLike):
+        if not os.path.isfile(relabel):
+            raise FileFormatError(f"relabel list {os.fspath(relabel)!r} does not exist or is not a file")
+        store = RelabelStore(relabel, frame)
+    else:
+        raise InputTypeError(f"relabel must be a RelabelStore or a path, got {type(relabel).__name__}")
+    table = store.to_frame().astype(object)
+    records = table.where(table.notna(), None).to_dict("records")
+    return records, os.fspath(store.path)
 
 
 def write_report(
@@ -32,12 +72,16 @@ def write_report(
     *,
     threshold: float | None = None,
     use_lower_bound: bool = False,
+    per_class: bool = False,
     interval: IntervalMethod = "wilson",
     level: float = 0.95,
     n_bins: int = 15,
     strategy: str = "uniform",
     split: Split | None = None,
     temperature_how: str | None = None,
+    findings: Findings | None = None,
+    choices: Choices | None = None,
+    relabel: RelabelStore | str | os.PathLike[str] | None = None,
 ) -> None:
     """Write one self-contained HTML report about ``frame`` to ``path`` (atomically).
 
@@ -45,9 +89,9 @@ def write_report(
     after temperature scaling, the temperature sweep, the accuracy-coverage
     curve with the chosen threshold and its readouts (overall and by
     predicted class), a held-out check of the temperature and threshold,
-    the most confused pairs, the top candidates for relabelling and the
-    caution about thresholds. A frame without labels gets what needs no
-    labels and a list of what does.
+    where the model mixes classes up, the doubtful labels, the user's own
+    relabel list when given, and the caution beside every threshold. A
+    frame without labels gets what needs no labels and a list of what does.
 
     Parameters
     ----------
@@ -69,18 +113,35 @@ def write_report(
         A fixed confidence threshold instead of a rule.
     use_lower_bound : bool
         With ``target_accuracy``: require the interval's lower bound to reach the target.
+    per_class : bool
+        With ``target_accuracy``: add one threshold per predicted class for the same target.
     interval : {"wilson", "clopper-pearson"}
         Binomial confidence interval for the accuracy of accepted predictions.
     level : float
         Confidence level of the interval.
     n_bins : int
-        Bins of the reliability diagram and ECE.
+        Bins of the reliability diagram and every ECE.
     strategy : {"uniform", "quantile"}
         Equal-width or equal-mass bins.
     split : Split, optional
         Fit/held-out rows for the held-out check (default: a stratified random half split, seed 0).
     temperature_how : str, optional
         How the temperature was chosen, in words for the page (escaped); default from the options.
+    findings : Findings, optional
+        Findings already computed for ``frame`` (the calibration panel's); rendered as they are.
+    choices : Choices, optional
+        Choices already settled (instead of the options above); the findings are computed for them.
+    relabel : RelabelStore or path, optional
+        The user's relabel list; its marks and notes get a section of their own.
+
+    Raises
+    ------
+    ParameterError
+        Conflicting or out-of-range options, or options given together with ``findings``/``choices``.
+    LabelError
+        An option that needs labels on a frame without them.
+    FileFormatError
+        A relabel path that does not exist or cannot be read.
 
     Examples
     --------
@@ -97,20 +158,51 @@ def write_report(
         raise InputTypeError(f"write_report needs a LogitFrame, got {type(frame).__name__}")
     if split is not None and not isinstance(split, Split):
         raise InputTypeError(f"split must be a logitscope.analysis.split.Split, got {type(split).__name__}")
-    choices = resolve_choices(
-        frame,
-        temperature=temperature,
-        fit_temperature=fit_temperature,
-        target_accuracy=target_accuracy,
-        costs=costs,
-        threshold=threshold,
-        use_lower_bound=use_lower_bound,
-        interval=interval,
-        level=level,
-        n_bins=n_bins,
-        strategy=strategy,  # type: ignore[arg-type]
-        temperature_how=temperature_how,
-    )
-    page = build_report(frame, choices, title=title, split=split)
+    options = {
+        "temperature": temperature,
+        "fit_temperature": fit_temperature,
+        "target_accuracy": target_accuracy,
+        "costs": costs,
+        "threshold": threshold,
+        "use_lower_bound": use_lower_bound,
+        "per_class": per_class,
+        "interval": interval,
+        "level": level,
+        "n_bins": n_bins,
+        "strategy": strategy,
+        "split": split,
+        "temperature_how": temperature_how,
+    }
+    if findings is not None or choices is not None:
+        if findings is not None and choices is not None:
+            raise ParameterError("give findings or choices, not both")
+        changed = [k for k, v in options.items() if v is not _OPTION_DEFAULTS[k] and v != _OPTION_DEFAULTS[k]]
+        if changed:
+            raise ParameterError(
+                f"{'findings' if findings is not None else 'choices'} already settle the choices; "
+                f"do not give {', '.join(changed)} as well"
+            )
+    if findings is not None:
+        if not isinstance(findings, Findings):
+            raise InputTypeError(f"findings must be a logitscope.findings.Findings, got {type(findings).__name__}")
+        p = findings.predictions
+        if (
+            p.n != frame.n_samples
+            or p.predicted_counts.size != frame.n_classes
+            or findings.labelled != frame.has_labels
+        ):
+            raise ParameterError(
+                f"these findings were computed for another frame ({p.n} rows, {p.predicted_counts.size} classes); "
+                f"this frame has {frame.n_samples} rows and {frame.n_classes} classes"
+            )
+        found = findings
+    elif choices is not None:
+        if not isinstance(choices, Choices):
+            raise InputTypeError(f"choices must be a logitscope.findings.Choices, got {type(choices).__name__}")
+        found = collect(frame, choices, temperature_context(frame, choices.temperature, choices.temperature_how))
+    else:
+        found = collect(frame, *resolve_choices(frame, **options))  # type: ignore[arg-type]
+    marks, source = (None, "") if relabel is None else _open_marks(frame, relabel)
+    page = build_report(frame, found, title=title, marks=marks, marks_source=source)
     with atomic_write(path, "w") as fh:
         fh.write(page)

@@ -1,62 +1,93 @@
 """A small inline-SVG plotting helper: axes with ticks, lines, points, rectangles, rules, text.
 
 The report draws every plot with this module, so the HTML file needs no
-script, font or image from anywhere. Every text and attribute value is
-escaped with :func:`html.escape` (data strings such as class names reach the
-SVG as text), and styling is done with CSS classes defined by the report.
+script, font or image from anywhere. Markup is built only from escaped
+parts: every text and attribute value goes through :func:`markupsafe.escape`
+(data strings such as class names reach the SVG as text), and the pieces
+are :class:`markupsafe.Markup`, which the report's autoescaping templates
+insert as they are. Styling is done with CSS classes defined in report.css.
+
+Element ids (clip paths) come from an :class:`IdSource`; a page passes one
+source to all its charts, so ids are unique within the page and the same
+input gives the same page.
 
 Examples
 --------
->>> chart = Chart(x_domain=(0, 1), y_domain=(0, 1), title="Reliability")
->>> chart.line([0, 1], [0, 1], cls="diagonal")
+>>> chart = Chart(x_domain=(0, 1), y_domain=(0, 1), title="Reliability <draft>")
+>>> chart.line([0, 1], [0, 1], cls="reference")
 >>> svg = chart.to_svg()
->>> svg.startswith("<svg") and "Reliability" in svg
-True
+>>> svg.startswith("<svg"), "Reliability &lt;draft&gt;" in svg
+(True, True)
 """
 
 from __future__ import annotations
 
-import html
-import itertools
 import math
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass, field
 
-__all__ = ["Chart", "Scale", "attrs", "element", "fmt_number", "nice_ticks"]
+from markupsafe import Markup, escape
 
-_CLIP_IDS = itertools.count(1)  # clip-path ids, unique within a process (so within a report)
+from ..ticks import nice_ticks
+
+__all__ = ["Chart", "IdSource", "Scale", "attrs", "element", "fmt_number", "nice_ticks"]
 
 
-def attrs(values: Mapping[str, object]) -> str:
-    """Render attributes as ``name="value"`` pairs, escaping every value; None values are left out.
+class IdSource:
+    """Element ids unique within one page: ``<prefix><kind><n>`` with a counter of its own.
 
     Examples
     --------
-    >>> attrs({"class": "bar", "data-name": '<b>"x"</b>', "hidden": None})
-    'class="bar" data-name="&lt;b&gt;&quot;x&quot;&lt;/b&gt;"'
+    >>> ids = IdSource()
+    >>> ids.new("clip"), ids.new("clip"), IdSource().new("clip")
+    ('lsclip1', 'lsclip2', 'lsclip1')
     """
-    parts = []
-    for name, value in values.items():
-        if value is None:
-            continue
-        if isinstance(value, float):
-            value = repr(value) if math.isfinite(value) else ("inf" if value > 0 else "-inf" if value < 0 else "nan")
-        parts.append(f'{name}="{html.escape(str(value), quote=True)}"')
-    return " ".join(parts)
+
+    def __init__(self, prefix: str = "ls") -> None:
+        self.prefix = prefix
+        self._n = 0
+
+    def new(self, kind: str) -> str:
+        self._n += 1
+        return f"{self.prefix}{kind}{self._n}"
 
 
-def element(tag: str, attributes: Mapping[str, object], text: str | None = None) -> str:
+def _plain(value: object) -> str:
+    """An attribute value as plain text (a float finite to full precision, else inf / -inf / nan)."""
+    if isinstance(value, float):
+        return repr(value) if math.isfinite(value) else ("inf" if value > 0 else "-inf" if value < 0 else "nan")
+    return str(value)
+
+
+def attrs(values: Mapping[str, object]) -> Markup:
+    """Render attributes as ``name="value"`` pairs, escaping every value; None values are left out.
+
+    A value is always treated as text (a :class:`~markupsafe.Markup` value is escaped too).
+
+    Examples
+    --------
+    >>> str(attrs({"class": "bar", "data-name": '<b>"x"</b>', "hidden": None}))
+    'class="bar" data-name="&lt;b&gt;&#34;x&#34;&lt;/b&gt;"'
+    """
+    return Markup(" ").join(
+        Markup('{}="{}"').format(str(name), escape(str.__str__(_plain(value))))
+        for name, value in values.items()
+        if value is not None
+    )
+
+
+def element(tag: str, attributes: Mapping[str, object], text: str | None = None) -> Markup:
     """One SVG/HTML element; attribute values and text are escaped, floats rounded to 2 decimals.
 
     Examples
     --------
-    >>> element("text", {"x": 1.23456, "class": "tick"}, "a < b")
+    >>> str(element("text", {"x": 1.23456, "class": "tick"}, "a < b"))
     '<text x="1.23" class="tick">a &lt; b</text>'
     """
-    rounded = {k: (f"{v:.2f}" if isinstance(v, float) else v) for k, v in attributes.items()}
+    rounded = {k: (f"{v:.2f}" if isinstance(v, float) and math.isfinite(v) else v) for k, v in attributes.items()}
     if text is None:
-        return f"<{tag} {attrs(rounded)}/>"
-    return f"<{tag} {attrs(rounded)}>{html.escape(text)}</{tag}>"
+        return Markup("<{} {}/>").format(tag, attrs(rounded))
+    return Markup("<{} {}>{}</{}>").format(tag, attrs(rounded), escape(str.__str__(str(text))), tag)
 
 
 def fmt_number(v: float, digits: int = 3) -> str:
@@ -75,46 +106,6 @@ def fmt_number(v: float, digits: int = 3) -> str:
     if a >= 100:
         return f"{v:.0f}"
     return f"{v:.{digits}g}"
-
-
-def nice_ticks(lo: float, hi: float, n: int = 5, log: bool = False) -> list[float]:
-    """Round tick positions covering ``[lo, hi]`` (1-2-5 steps; powers and 2, 5 multiples on a log axis).
-
-    Examples
-    --------
-    >>> nice_ticks(0, 1)
-    [0.0, 0.2, 0.4, 0.6, 0.8, 1.0]
-    >>> nice_ticks(0.25, 4, log=True)
-    [0.25, 0.5, 1.0, 2.0, 4.0]
-    """
-    if not (math.isfinite(lo) and math.isfinite(hi)) or hi <= lo:
-        return [lo]
-    if log:
-        e0, e1 = math.floor(math.log10(lo)), math.ceil(math.log10(hi))
-        ticks = [
-            m * 10.0**e
-            for e in range(e0, e1 + 1)
-            for m in (1.0, 2.0, 5.0)
-            if lo * (1 - 1e-9) <= m * 10.0**e <= hi * (1 + 1e-9)
-        ]
-        if len(ticks) > 7:  # wide range: powers of ten only
-            ticks = [t for t in ticks if math.isclose(math.log10(t), round(math.log10(t)))]
-        if len(ticks) < 4:  # narrow range: add the ends, rounded, where they are not crowded
-            for end in (float(f"{lo:.2g}"), float(f"{hi:.2g}")):
-                if lo * (1 - 1e-9) <= end <= hi * (1 + 1e-9) and all(max(end / t, t / end) > 1.3 for t in ticks):
-                    ticks.append(end)
-            ticks.sort()
-        return ticks
-    raw = (hi - lo) / max(1, n)
-    mag = 10.0 ** math.floor(math.log10(raw))
-    step = next(s * mag for s in (1.0, 2.0, 2.5, 5.0, 10.0) if s * mag >= raw)
-    first = math.ceil(lo / step - 1e-9) * step
-    out = []
-    k = 0
-    while first + k * step <= hi + step * 1e-9:
-        out.append(round(first + k * step, 12))
-        k += 1
-    return out
 
 
 @dataclass
@@ -160,6 +151,8 @@ class Chart:
         Texts (escaped).
     css_class : str
         Extra class on the ``<svg>`` element.
+    ids : IdSource, optional
+        Where the chart's element ids come from; a page gives all its charts one source.
     """
 
     x_domain: tuple[float, float]
@@ -176,10 +169,10 @@ class Chart:
     x_ticks: Sequence[float] | None = None
     y_ticks: Sequence[float] | None = None
     x_tick_labels: Sequence[str] | None = None
-    _marks: list[str] = field(default_factory=list, repr=False)
-    _overlay: list[str] = field(default_factory=list, repr=False)
+    ids: IdSource | None = None
+    _marks: list[Markup] = field(default_factory=list, repr=False)
+    _overlay: list[Markup] = field(default_factory=list, repr=False)
     _n_rule_labels: int = field(default=0, repr=False)
-    _defs: list[str] = field(default_factory=list, repr=False)
 
     def __post_init__(self) -> None:
         top, right, bottom, left = self.margin
@@ -187,6 +180,8 @@ class Chart:
         self.top, self.bottom = top, self.height - bottom
         self.sx = Scale(self.x_domain, (self.left, self.right), self.x_log)
         self.sy = Scale(self.y_domain, (self.bottom, self.top), self.y_log)
+        if self.ids is None:
+            self.ids = IdSource()
 
     # ---------------------------------------------------------------- marks
 
@@ -196,8 +191,19 @@ class Chart:
     def _clip_y(self, y: float) -> float:
         return min(max(self.sy(y), self.top), self.bottom)
 
+    @staticmethod
+    def _shape(tag: str, a: Markup, tooltip: str | None) -> Markup:
+        if tooltip:
+            return Markup("<{} {}><title>{}</title></{}>").format(tag, a, str.__str__(str(tooltip)), tag)
+        return Markup("<{} {}/>").format(tag, a)
+
     def line(
-        self, xs: Iterable[float], ys: Iterable[float], cls: str = "series", data: Mapping[str, object] | None = None
+        self,
+        xs: Iterable[float],
+        ys: Iterable[float],
+        cls: str = "series",
+        data: Mapping[str, object] | None = None,
+        tooltip: str | None = None,
     ) -> None:
         """A polyline through finite points (NaN points break nothing: they are skipped)."""
         pts = [
@@ -206,21 +212,23 @@ class Chart:
             if math.isfinite(x) and math.isfinite(y)
         ]
         if len(pts) >= 2:
-            self._marks.append(f"<polyline {attrs({'class': cls, 'points': ' '.join(pts), **(data or {})})}/>")
+            a = attrs({"class": cls, "points": " ".join(pts), **(data or {})})
+            self._marks.append(self._shape("polyline", a, tooltip))
 
-    def step(self, xs: Sequence[float], ys: Sequence[float], cls: str = "series") -> None:
-        """A staircase: ``ys[i]`` holds from ``xs[i]`` to ``xs[i + 1]`` (``len(xs) == len(ys) + 1``)."""
-        px: list[float] = []
-        py: list[float] = []
-        for i, y in enumerate(ys):
-            px += [xs[i], xs[i + 1]]
-            py += [y, y]
-        self.line(px, py, cls)
-
-    def polygon(self, xs: Iterable[float], ys: Iterable[float], cls: str = "area") -> None:
-        """A closed filled shape."""
-        pts = " ".join(f"{self.sx(x):.2f},{self.sy(y):.2f}" for x, y in zip(xs, ys, strict=True))
-        self._marks.append(f"<polygon {attrs({'class': cls, 'points': pts})}/>")
+    def segment(
+        self, x0: float, y0: float, x1: float, y1: float, cls: str = "segment", tooltip: str | None = None
+    ) -> None:
+        """A straight line between two data points."""
+        a = attrs(
+            {
+                "class": cls,
+                "x1": f"{self.sx(x0):.2f}",
+                "y1": f"{self.sy(y0):.2f}",
+                "x2": f"{self.sx(x1):.2f}",
+                "y2": f"{self.sy(y1):.2f}",
+            }
+        )
+        self._marks.append(self._shape("line", a, tooltip))
 
     def rect(
         self,
@@ -245,17 +253,21 @@ class Chart:
                 **(data or {}),
             }
         )
-        if tooltip:
-            self._marks.append(f"<rect {a}><title>{html.escape(tooltip)}</title></rect>")
-        else:
-            self._marks.append(f"<rect {a}/>")
+        self._marks.append(self._shape("rect", a, tooltip))
 
     def point(
-        self, x: float, y: float, r: float = 4.0, cls: str = "marker", data: Mapping[str, object] | None = None
+        self,
+        x: float,
+        y: float,
+        r: float = 4.0,
+        cls: str = "marker",
+        data: Mapping[str, object] | None = None,
+        tooltip: str | None = None,
+        clip: bool = True,
     ) -> None:
-        """A dot."""
-        a = attrs({"class": cls, "cx": f"{self.sx(x):.2f}", "cy": f"{self.sy(y):.2f}", "r": r, **(data or {})})
-        self._marks.append(f"<circle {a}/>")
+        """A dot of radius ``r`` pixels; with ``clip=False`` drawn over the plot frame, never cut at its edge."""
+        a = attrs({"class": cls, "cx": f"{self.sx(x):.2f}", "cy": f"{self.sy(y):.2f}", "r": f"{r:.2f}", **(data or {})})
+        (self._marks if clip else self._overlay).append(self._shape("circle", a, tooltip))
 
     def vline(self, x: float, cls: str = "rule", label: str = "", data: Mapping[str, object] | None = None) -> None:
         """A vertical rule across the plot at data ``x``, with an optional label at its top.
@@ -294,42 +306,29 @@ class Chart:
         where = {"x": f"{self.sx(x):.2f}", "y": f"{self.sy(y) + dy:.2f}", "text-anchor": anchor}
         self._overlay.append(element("text", {"class": cls, **where}, s))
 
-    def hatch(self, cls: str = "hatch", spacing: float = 5.0) -> str:
-        """Define a diagonal hatching pattern (lines styled by ``cls``); return a ``fill`` value using it."""
-        pid = f"hatch{next(_CLIP_IDS)}"
-        size = f"{spacing:g}"
-        pattern = {"id": pid, "patternUnits": "userSpaceOnUse", "width": size, "height": size}
-        pattern["patternTransform"] = "rotate(45)"
-        stripe = attrs({"class": cls, "x1": 0, "y1": 0, "x2": 0, "y2": size})
-        self._defs.append(f"<pattern {attrs(pattern)}><line {stripe}/></pattern>")
-        return f"url(#{pid})"
-
-    def legend(
-        self,
-        items: Sequence[tuple[str, str] | tuple[str, str, str] | tuple[str, str, str, str]],
-        corner: str = "top-left",
-    ) -> None:
-        """A small legend of ``(css class, label[, kind[, fill]])`` items.
-
-        A ``"box"`` item (the default) gets a filled box as its swatch, a ``"line"`` item a short
-        line; ``fill`` (for example a :meth:`hatch` pattern) fills the box.
-        """
-        x = self.left + 8 if corner.endswith("left") else self.right - 150
+    def legend(self, items: Sequence[tuple[str, str] | tuple[str, str, str]], corner: str = "top-left") -> None:
+        """A small legend of ``(css class, label[, kind])`` items, kind ``"box"`` (default), ``"line"`` or ``"dot"``."""
+        x = self.left + 8 if corner.endswith("left") else self.right - 170
         y = self.top + 8 if corner.startswith("top") else self.bottom - 8 - 15 * len(items)
         for i, item in enumerate(items):
             cls, label = item[0], item[1]
+            kind = item[2] if len(item) > 2 else "box"
             yy = y + 15 * i
-            if len(item) > 2 and item[2] == "line":
+            if kind == "line":
                 box: dict[str, object] = {"x1": float(x), "x2": float(x + 14), "y1": yy + 4.5, "y2": yy + 4.5}
                 self._overlay.append(element("line", {"class": cls + " swatch-line", **box}))
+            elif kind == "dot":
+                self._overlay.append(
+                    element("circle", {"class": cls + " swatch", "cx": x + 7.0, "cy": yy + 4.5, "r": 4})
+                )
             else:
-                box = {"x": x, "y": yy, "width": 14, "height": 9, "fill": item[3] if len(item) > 3 else None}
+                box = {"x": x, "y": yy, "width": 14, "height": 9}
                 self._overlay.append(element("rect", {"class": cls + " swatch", **box}))
             self._overlay.append(element("text", {"class": "legend", "x": x + 19, "y": yy + 8}, label))
 
     # ---------------------------------------------------------------- output
 
-    def _axes(self) -> tuple[list[str], str, list[str]]:
+    def _axes(self) -> tuple[list[Markup], Markup, list[Markup]]:
         """Grid and ticks (drawn under the marks), the plot frame, and the titles."""
         out = []
         xt = list(self.x_ticks) if self.x_ticks is not None else nice_ticks(*self.x_domain, log=self.x_log)
@@ -362,8 +361,8 @@ class Chart:
             titles.append(element("text", {"class": "chart-title", "x": self.left, "y": 20}, self.title))
         return out, frame_rect, titles
 
-    def to_svg(self, data: Mapping[str, object] | None = None) -> str:
-        """The chart as one ``<svg>`` element (``data`` adds ``data-*`` attributes to it)."""
+    def to_svg(self, data: Mapping[str, object] | None = None) -> Markup:
+        """The chart as one ``<svg>`` element (``data`` adds attributes to it)."""
         head = attrs(
             {
                 "xmlns": "http://www.w3.org/2000/svg",
@@ -376,17 +375,18 @@ class Chart:
                 **(data or {}),
             }
         )
-        clip_id = f"clip{next(_CLIP_IDS)}"
+        assert self.ids is not None
+        clip_id = self.ids.new("clip")
         box = {"x": self.left, "y": self.top, "width": self.right - self.left, "height": self.bottom - self.top}
         axes, frame, titles = self._axes()
         body = [
-            f"<defs><clipPath {attrs({'id': clip_id})}>{element('rect', box)}</clipPath>{''.join(self._defs)}</defs>",
+            Markup("<defs><clipPath {}>{}</clipPath></defs>").format(attrs({"id": clip_id}), element("rect", box)),
             *axes,
-            f"<g {attrs({'clip-path': f'url(#{clip_id})'})}>",
+            Markup("<g {}>").format(attrs({"clip-path": f"url(#{clip_id})"})),
             *self._marks,
-            "</g>",
+            Markup("</g>"),
             frame,
             *self._overlay,
             *titles,
         ]
-        return f"<svg {head}>" + "".join(body) + "</svg>"
+        return Markup("<svg {}>").format(head) + Markup("").join(body) + Markup("</svg>")

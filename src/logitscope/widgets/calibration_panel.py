@@ -33,7 +33,7 @@ import traitlets
 
 from ..analysis.split import Split, random_split, split_by_values
 from ..errors import LogitscopeError
-from ..findings import Choices, HeldOutCheck, held_out_check
+from ..findings import Choices, HeldOutCheck, fitted_temperature, held_out_check
 from ..frame import LogitFrame
 from .base import LinkedView
 from .reliability import ReliabilityDiagram
@@ -104,6 +104,7 @@ class CalibrationPanel(LinkedView, widgets.VBox):
         self.state = state = LinkedView.link(self, frame, state, name=None)
         self.split: Split | None = None
         self.held_out: HeldOutCheck | None = None
+        self._all_rows_fit: Any = None
         self.last_report: str | None = None
         self.relabel_store: Any = None  # the dashboard hands over its relabel list for the report
         labelled = frame.has_labels
@@ -298,12 +299,18 @@ class CalibrationPanel(LinkedView, widgets.VBox):
         )
 
     def _temperature_how(self) -> str:
+        t = self.state.temperature
         fitted = self.sweep.fitted
-        if fitted is not None and math.isclose(self.state.temperature, fitted.temperature, rel_tol=1e-9):
+        if fitted is not None and math.isclose(t, fitted.temperature, rel_tol=1e-9):
             part = "all labelled rows" if self.split is None else "the fit part of the split"
             return f"fitted: minimum NLL on {part}"
-        if math.isclose(self.state.temperature, self.frame.temperature, rel_tol=1e-12):
+        if math.isclose(t, self.frame.temperature, rel_tol=1e-12):
             return "as given"
+        if self.frame.has_labels and self.split is not None:
+            if self._all_rows_fit is None:
+                self._all_rows_fit = fitted_temperature(self.frame)
+            if math.isclose(t, self._all_rows_fit.temperature, rel_tol=1e-9):
+                return "set in the panel, equal to the temperature fitted on all labelled rows"
         return "set in the panel"
 
     def _on_change(self, change: Any = None) -> None:
@@ -381,5 +388,6 @@ class CalibrationPanel(LinkedView, widgets.VBox):
         self._column.options = [str(c) for c in columns]
         self._on_column()
         self.split = None
+        self._all_rows_fit = None
         self.split_note.value = ""
         self._on_change()

@@ -47,9 +47,10 @@ class RelabelQueue(LinkedView, anywidget.AnyWidget):
     frame : LogitFrame
     state : SharedState, optional
     path : str or path-like, optional
-        The JSON file; by default ``logitscope-relabel-<fingerprint>.json`` in
-        the current folder, the fingerprint taken from the frame's ids and
-        classes (so the same data reopens the same list).
+        The JSON file; by default one in the current folder named after the
+        data, e.g. ``relabel-zero-to-nine-1797-samples-<fingerprint>.json``
+        (see :func:`logitscope.relabel_store.default_path`; the same data
+        reopens the same list).
 
     Examples
     --------

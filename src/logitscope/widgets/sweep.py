@@ -212,8 +212,8 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
         """The temperatures swept: the given grid, or :func:`sweep_grid` of the current and the fitted T."""
         if self._grid_given is not None:
             return np.sort(self._grid_given)
-        marks = [self.state.temperature] + ([self.fitted.temperature] if self.fitted else [])
-        return sweep_grid(marks)
+        marks = [self.frame.temperature, self.state.temperature]
+        return sweep_grid(marks + ([self.fitted.temperature] if self.fitted else []))
 
     def _set_range(self, key: str, values: list[np.ndarray]) -> None:
         """Fit the y scale of ``key`` to the curves drawn and set round ticks for that range."""
@@ -231,9 +231,8 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
             self.fit_button.disabled = True
             return
         b = self.state.binning
-        first = sweep_finding(
-            self.frame, self._part(self.rows), b, grid=self._grid_given, marks=[self.state.temperature]
-        )
+        marks = [self.frame.temperature, self.state.temperature]  # the marks the report's sweep has too
+        first = sweep_finding(self.frame, self._part(self.rows), b, grid=self._grid_given, marks=marks)
         self.finding = first
         self.fitted_temperature = first.fitted.temperature if first.fitted else None
         grid = first.temperature
