@@ -368,3 +368,26 @@ def test_out_of_sight_the_compare_tab_waits_and_catches_up(pair, mailroom, tmp_p
     assert view.flip_table["count"].to_dict() == {c: ref.count(c) for c in view.flip_table.index}
     assert "5 samples selected from Python; 5 of them are in this comparison" in view.note.value
     assert view.image.shape == drawn.shape
+
+
+def test_hostile_class_names_and_ids_never_reach_html_unescaped(pair):
+    a, b, _ = pair
+    classes = list(a.classes)
+    classes[8] = XSS
+    ids = np.array([f"{XSS}-{i}" for i in range(a.n_samples)], dtype=object)
+    ha = LogitFrame(a.logits, labels=a.labels, classes=classes, ids=ids)
+    pos = {s: i for i, s in enumerate(a.ids.tolist())}
+    hb = LogitFrame(b.logits, labels=b.labels, classes=classes, ids=ids[[pos[s] for s in b.ids.tolist()]])
+    view = CheckpointComparisonView(compare_frames(ha, hb.subset(np.arange(5, hb.n_samples)), missing="drop"))
+    view.select_class(XSS)
+    html_values = [w.value for w in _walk(view) if isinstance(w, widgets.HTML)]
+    assert html_values and not any(XSS in v for v in html_values)
+    assert any(html.escape(XSS) in v for v in html_values)  # the note names the class, escaped
+    # the tables carry the names as plain text: the browser sets them with textContent
+    assert next(r for r in view.classes_table.rows if r["key"] == "8")["cells"]["class"]["text"] == XSS
+
+
+def _walk(widget: widgets.Widget):  # type: ignore[no-untyped-def]
+    yield widget
+    for child in getattr(widget, "children", ()) or ():
+        yield from _walk(child)
