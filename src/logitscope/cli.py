@@ -123,8 +123,10 @@ def _parser() -> argparse.ArgumentParser:
     p = argparse.ArgumentParser(prog="logitscope", description="Inspect a classifier's logits.")
     sub = p.add_subparsers(dest="command", required=True)
 
-    s = sub.add_parser("summary", help="print set-level numbers of a .npz or .parquet file")
-    s.add_argument("file")
+    s = sub.add_parser("summary", help="print set-level numbers of a .npz or .parquet file, or of a chunked store")
+    s.add_argument("file", help=".npz, .parquet; or read in chunks: a .zarr store, a folder of .parquet files, .npy")
+    s.add_argument("--scheduler", metavar="ADDRESS", help="dask.distributed scheduler for a chunked store "
+                   "(default: $LOGITSCOPE_SCHEDULER, else in process); the cluster keeps running")  # fmt: skip
     g = s.add_mutually_exclusive_group()
     g.add_argument("--temperature", type=float)
     g.add_argument("--fit-temperature", action="store_true")
@@ -150,17 +152,23 @@ def _parser() -> argparse.ArgumentParser:
 
 
 def _cmd_summary(args: argparse.Namespace) -> int:
+    from .chunked.frame import is_chunked_source
     from .frame import LogitFrame
 
-    frame = _Progress(f"reading {args.file}").run(lambda: LogitFrame.read(args.file))
-    summary = _Progress("computing scores").run(
-        lambda: frame.summary(
-            temperature=args.temperature,
-            fit_temperature=args.fit_temperature,
-            target_accuracy=args.target_accuracy,
-            interval=args.interval,
+    if is_chunked_source(args.file):
+        from .chunked.cli import chunked_summary
+
+        summary = _Progress("computing the summary over chunks").run(lambda: chunked_summary(args))
+    else:
+        frame = _Progress(f"reading {args.file}").run(lambda: LogitFrame.read(args.file))
+        summary = _Progress("computing scores").run(
+            lambda: frame.summary(
+                temperature=args.temperature,
+                fit_temperature=args.fit_temperature,
+                target_accuracy=args.target_accuracy,
+                interval=args.interval,
+            )
         )
-    )
     if args.json:
         print(json.dumps(summary, allow_nan=False, default=_json_default))
     else:

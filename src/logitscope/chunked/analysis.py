@@ -347,11 +347,11 @@ def sample_scores(cf: ChunkedFrame, temperature: float | None = None) -> an.Samp
 
     def block(z: np.ndarray, *rest: Any, block_info: Any = None) -> np.ndarray:
         offset = int(block_info[0]["array-location"][0][0]) if block_info else 0
-        zb, yb = _checked_block(z, rest[0] if rest else None, offset)
+        zb, yb = _checked_block(z, rest[0][:, 0] if rest else None, offset)
         s = _scores(zb, yb, t, offset)
         return np.column_stack([np.asarray(getattr(s, n), dtype=np.float64) for n in names])
 
-    args = [cf.logits] + ([cf.labels[:, None]] if labelled else [])
+    args = [cf.logits] + ([cf.labels[:, None]] if cf.labels is not None else [])
     table = da.map_blocks(block, *args, dtype=np.float64, chunks=(cf.logits.chunks[0], (width,)))
     col = {n: table[:, i] for i, n in enumerate(names)}
     for n in ("predicted", "true_rank"):

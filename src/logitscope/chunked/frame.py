@@ -138,7 +138,9 @@ class ChunkedFrame:
         import pyarrow.parquet as pq
 
         folder = Path(path).absolute()
-        files = sorted(p for p in folder.iterdir() if p.suffix.lower() in (".parquet", ".pq")) if folder.is_dir() else []
+        files = (
+            sorted(p for p in folder.iterdir() if p.suffix.lower() in (".parquet", ".pq")) if folder.is_dir() else []
+        )
         if not files:
             raise FileFormatError(f"{folder}: no .parquet files in this folder")
         pieces: list[tuple[Path, int, int]] = []

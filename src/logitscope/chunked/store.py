@@ -253,13 +253,16 @@ def write_zarr(
     frame: LogitFrame,
     path: str | os.PathLike[str],
     chunk_rows: int | None = None,
+    *,
+    drop_extras: bool = False,
 ) -> None:
     """Write a frame's logits, labels, ids and class names as a Zarr store, atomically.
 
     The store is built in a temporary directory beside ``path`` and renamed
     into place; an existing store at ``path`` is replaced only once the new
-    one is complete. Metadata columns and payloads are not stored (use
-    Parquet or npz for those).
+    one is complete. Metadata columns and payloads have no place in the
+    store: a frame holding some is refused (write Parquet or npz) unless
+    ``drop_extras=True``.
 
     Examples
     --------
@@ -270,6 +273,11 @@ def write_zarr(
     >>> store_info(p)["rows"]
     3
     """
+    if not drop_extras and (len(frame.meta.columns) or frame.payload is not None):
+        raise FileFormatError(
+            "the frame carries metadata or a payload, which a Zarr store does not keep; "
+            "write .parquet or .npz, or pass drop_extras=True"
+        )
     target = Path(path)
     tmp = target.with_name(f".{target.name}.tmp-{uuid.uuid4().hex[:8]}")
     string_ids = np.asarray(frame.ids).dtype.kind not in "iu"
