@@ -311,12 +311,12 @@ class _RightsAmongErrors:
         zb, yb = _checked_block(z, y, offset)
         s = _scores(zb, yb, self.t, offset)
         assert s.correct is not None
-        c = np.sort(s.confidence[s.correct])
-        slot = np.searchsorted(errors, c, side="left")  # errors below c; sorted queries keep the search in cache
+        c = np.sort(s.confidence[s.correct])  # sorted queries walk the errors in order: cache-friendly
+        slot = np.searchsorted(errors, c, side="left")  # errors below c
         equal = np.zeros(c.shape, dtype=np.int64)
         inside = slot < errors.size
         equal[inside] = errors[slot[inside]] == c[inside]
-        key = slot * 2 + equal
+        key = slot * 2 + equal  # ascending, as c is
         cut = np.flatnonzero(np.r_[True, key[1:] != key[:-1]])
         return key[cut], np.diff(np.r_[cut, key.size])
 
