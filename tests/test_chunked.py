@@ -328,3 +328,11 @@ def test_meta_is_not_lost_silently(digits_frame, tmp_path):
     frame = digits_frame.with_meta(pd.DataFrame({"tray": np.arange(digits_frame.n_samples) % 3}))
     with pytest.raises(FileFormatError, match="metadata"):
         ck.write_zarr(frame, tmp_path / "with_meta.zarr")
+
+
+def test_frame_write_and_read_a_zarr_store(tied_frame, tmp_path):
+    tied_frame.write(tmp_path / "tickets.zarr")
+    back = LogitFrame.read(tmp_path / "tickets.zarr")
+    np.testing.assert_array_equal(back.logits, tied_frame.logits)
+    np.testing.assert_array_equal(back.labels, tied_frame.labels)
+    assert back.classes == tied_frame.classes and list(back.ids) == list(tied_frame.ids)

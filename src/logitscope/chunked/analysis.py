@@ -450,6 +450,9 @@ def fit_temperature(cf: ChunkedFrame, rtol: float = 1e-5, max_iter: int = 50, se
     )
 
 
+_fit = fit_temperature  # summarize_chunked's argument of that name hides the function
+
+
 # --------------------------------------------------------------------------- counts and bins
 
 
@@ -818,7 +821,7 @@ def summarize_chunked(
     out: dict[str, Any] = {"n_samples": cf.n_samples, "n_classes": cf.n_classes}
     fit = None
     if fit_temperature:
-        fit = globals()["fit_temperature"](cf)
+        fit = _fit(cf)
         t = fit.temperature
     else:
         t = _t(cf, temperature)
