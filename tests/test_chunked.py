@@ -336,3 +336,12 @@ def test_frame_write_and_read_a_zarr_store(tied_frame, tmp_path):
     np.testing.assert_array_equal(back.logits, tied_frame.logits)
     np.testing.assert_array_equal(back.labels, tied_frame.labels)
     assert back.classes == tied_frame.classes and list(back.ids) == list(tied_frame.ids)
+
+
+def test_sub_blocks_inside_a_chunk_give_the_same_numbers(tied_frame, tmp_path, monkeypatch):
+    # each chunk task scores its rows SUB_ROWS at a time; small sub-blocks must not change a number
+    cf = _store(tied_frame, tmp_path, chunk_rows=1000)
+    monkeypatch.setattr(ck.analysis, "SUB_ROWS", 70)
+    assert_summary_equal(cf.summary(target_accuracy=0.7), tied_frame.summary(target_accuracy=0.7))
+    got = ck.rank_label_issues(cf, top=30)
+    np.testing.assert_array_equal(got.index, an.rank_label_issues(tied_frame.logits, tied_frame.labels).top(30).index)

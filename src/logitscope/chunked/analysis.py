@@ -68,8 +68,10 @@ __all__ = [
     "top_k_confusion",
 ]
 
-#: Rows of each partial result combined in one reduction task.
+#: Partial results combined in one reduction task.
 SPLIT_EVERY = 8
+#: Rows scored at a time inside a chunk task: the per-sample arrays stay small whatever the chunk size.
+SUB_ROWS = 1 << 17
 
 
 # --------------------------------------------------------------------------- running passes
@@ -147,8 +149,12 @@ class _Pass:
 
     def __call__(self, z: Any, y: Any, offset: int) -> tuple[Any, ...]:
         zb, yb = _checked_block(z, y, offset)
-        s = _scores(zb, yb, self.t, offset)
-        return tuple(c.chunk(s, zb, yb, offset) for c in self.collectors)
+        parts = []
+        for a in range(0, zb.shape[0], SUB_ROWS):
+            zs, ys = zb[a : a + SUB_ROWS], None if yb is None else yb[a : a + SUB_ROWS]
+            s = _scores(zs, ys, self.t, offset + a)
+            parts.append(tuple(c.chunk(s, zs, ys, offset + a) for c in self.collectors))
+        return parts[0] if len(parts) == 1 else self.combine(parts)
 
     def combine(self, parts: Sequence[tuple[Any, ...]]) -> tuple[Any, ...]:
         return tuple(c.combine([p[i] for p in parts]) for i, c in enumerate(self.collectors))
@@ -288,12 +294,19 @@ class _RCHistogram(_Collector):
 
 
 class _ErrorConfidences(_Collector):
+    """The wrong samples' confidences, unsorted (sorted once, in place, by :func:`_sorted`)."""
+
     def chunk(self, s: an.SampleScores, z: np.ndarray, y: np.ndarray | None, offset: int) -> Any:
         assert s.correct is not None
-        return np.sort(s.confidence[~s.correct])
+        return s.confidence[~s.correct]
 
     def combine(self, parts: Sequence[Any]) -> Any:
-        return np.sort(np.concatenate(list(parts)))
+        return np.concatenate(list(parts))
+
+
+def _sorted(values: np.ndarray) -> np.ndarray:
+    values.sort()
+    return values
 
 
 class _RightsAmongErrors:
@@ -309,9 +322,14 @@ class _RightsAmongErrors:
 
     def __call__(self, z: Any, y: Any, offset: int, errors: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
         zb, yb = _checked_block(z, y, offset)
-        s = _scores(zb, yb, self.t, offset)
-        assert s.correct is not None
-        c = np.sort(s.confidence[s.correct])  # sorted queries walk the errors in order: cache-friendly
+        rights = []
+        for a in range(0, zb.shape[0], SUB_ROWS):
+            ys = None if yb is None else yb[a : a + SUB_ROWS]
+            s = _scores(zb[a : a + SUB_ROWS], ys, self.t, offset + a)
+            assert s.correct is not None
+            rights.append(s.confidence[s.correct])
+        c = np.concatenate(rights)
+        c.sort()  # sorted queries walk the errors in order: cache-friendly
         slot = np.searchsorted(errors, c, side="left")  # errors below c
         equal = np.zeros(c.shape, dtype=np.int64)
         inside = slot < errors.size
@@ -321,8 +339,10 @@ class _RightsAmongErrors:
         return key[cut], np.diff(np.r_[cut, key.size])
 
 
-def _accumulate_rights(dense: np.ndarray | None, part: tuple[np.ndarray, np.ndarray], size: int) -> np.ndarray:
-    out = np.zeros(2 * size, dtype=np.int64) if dense is None else dense
+def _accumulate_rights(
+    dense: np.ndarray | None, part: tuple[np.ndarray, np.ndarray], size: int, dtype: str
+) -> np.ndarray:
+    out = np.zeros(2 * size, dtype=dtype) if dense is None else dense
     keys, counts = part
     out[keys] += counts  # keys are unique within a part; the array is this chain's own
     return out
@@ -545,25 +565,37 @@ class ExactOrder:
     def n_errors(self) -> int:
         return int(self.errors.size)
 
+    def _suffix(self) -> np.ndarray:
+        """``suffix[s]``: right samples in slots ``>= s`` (length ``m + 2``, the last 0)."""
+        m = self.errors.size
+        suffix = np.zeros(m + 2, dtype=np.int64)
+        np.cumsum((self.gap + self.equal)[::-1], out=suffix[m::-1])
+        return suffix
+
     def rights_above(self) -> np.ndarray:
         """For each error (ascending), the right samples strictly more confident."""
-        m = self.errors.size
-        total = self.gap + self.equal
-        suffix = np.r_[np.cumsum(total[::-1])[::-1], 0]  # suffix[s] = rights in slots >= s
         upper = np.searchsorted(self.errors, self.errors, side="right")
-        return suffix[upper] if m else np.zeros(0, dtype=np.int64)
+        return self._suffix()[upper]
 
-    def aurc(self) -> float:
-        """The area under the risk-coverage curve, errors first among ties (as :func:`logitscope.analysis.aurc`)."""
+    def aurc(self, block: int = 1 << 20) -> float:
+        """The area under the risk-coverage curve, errors first among ties (as :func:`logitscope.analysis.aurc`).
+
+        Summed in blocks of errors, so the temporaries stay small beside the counts.
+        """
         from scipy.special import digamma
 
-        m, n = self.errors.size, self.n_total
+        e, m, n = self.errors, self.errors.size, self.n_total
         if m == 0:
             return 0.0
-        j = np.arange(m, 0, -1, dtype=np.float64)  # rank among errors, most confident first
-        r = j + self.rights_above()
-        # H_N - H_{r-1} = digamma(N + 1) - digamma(r)
-        return float(np.sum(digamma(n + 1.0) - digamma(r)) / n)
+        suffix = self._suffix()
+        top = float(digamma(n + 1.0))
+        total = 0.0
+        for a in range(0, m, block):
+            b = min(m, a + block)
+            j = (m - np.arange(a, b)).astype(np.float64)  # rank among errors, most confident first
+            r = j + suffix[np.searchsorted(e, e[a:b], side="right")]
+            total += float(np.sum(top - digamma(r)))  # H_N - H_{r-1} = digamma(N + 1) - digamma(r)
+        return total / n
 
     def candidates(self) -> tuple[np.ndarray, np.ndarray, np.ndarray, np.ndarray]:
         """Every threshold that can be best, ascending: ``(slot, is_gap_bottom, accepted, errors)``.
@@ -573,7 +605,7 @@ class ExactOrder:
         error value is a candidate of its own. Empty gaps are left out.
         """
         e, m = self.errors, self.errors.size
-        rights_ge = np.r_[np.cumsum((self.gap + self.equal)[::-1])[::-1], 0]  # rights in slots >= s
+        rights_ge = self._suffix()  # rights in slots >= s
         g = np.flatnonzero(self.gap > 0)
         # just above errors[s-1]: accepts errors[s:], the gap's rights and every right above
         g_acc, g_err = (m - g) + rights_ge[g], m - g
@@ -593,7 +625,7 @@ def exact_order(cf: ChunkedFrame, temperature: float | None = None) -> ExactOrde
     _require_labels(cf, "the risk-coverage analysis")
     t = _t(cf, temperature)
     (errors,) = _run(cf, t, [_ErrorConfidences()])
-    return _order_from_errors(cf, t, errors)
+    return _order_from_errors(cf, t, _sorted(errors))
 
 
 def _share(value: np.ndarray) -> Any:
@@ -847,7 +879,7 @@ def summarize_chunked(
     out["mean_confidence"] = totals["confidence"] / n
     out["mean_entropy"] = totals["entropy"] / n
     if labelled:
-        order = _order_from_errors(cf, t, parts[2])
+        order = _order_from_errors(cf, t, _sorted(parts[2]))
         out["aurc"] = order.aurc()
     out["temperature"] = t
     if fit is not None:
@@ -870,7 +902,7 @@ def _order_from_errors(cf: ChunkedFrame, t: float, errors: np.ndarray) -> ExactO
     dense: Any = None
     for z, y, offset in cf.blocks():
         part = dask.delayed(rights)(z, y, offset, shared)
-        dense = dask.delayed(_accumulate_rights)(dense, part, m + 1)
+        dense = dask.delayed(_accumulate_rights)(dense, part, m + 1, "int32" if cf.n_samples < 2**31 else "int64")
     (counts,) = compute(dense)
     counts = counts.reshape(m + 1, 2)
     return ExactOrder(temperature=t, n_total=cf.n_samples, errors=errors, gap=counts[:, 0], equal=counts[:, 1])
