@@ -138,6 +138,7 @@ def main() -> None:
     parser.add_argument("--sizes", type=float, nargs="+", default=[1e7, 1e8])
     parser.add_argument("--dir", help="where to write the stores (default: a temporary directory, removed after)")
     parser.add_argument("--keep", action="store_true", help="keep the stores")
+    parser.add_argument("--reuse", action="store_true", help="read stores left by --keep instead of writing them")
     parser.add_argument("--views", action="store_true", help="also time the dashboard aggregates at the smallest size")
     parser.add_argument("--child", nargs=2, metavar=("MODE", "STORE"), help=argparse.SUPPRESS)
     args = parser.parse_args()
@@ -152,7 +153,13 @@ def main() -> None:
     try:
         for n in sizes:
             store = root / f"tickets-{n}.zarr"
-            t_write = write_store(store, n)
+            if args.reuse and store.exists():
+                from logitscope.chunked import store_info
+
+                assert store_info(store)["rows"] == n
+                t_write = float("nan")
+            else:
+                t_write = write_store(store, n)
             gb = n * 10 * 4 / 1e9
             floor = measure("floor", store)
             summ = measure("summary", store)
