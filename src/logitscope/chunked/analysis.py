@@ -18,7 +18,7 @@ the order of float64 additions):
   ``r_j = j + #(right samples more confident)``, and
   ``AURC = (1/N) sum_j (H_N - H_{r_j - 1})`` (H the harmonic numbers), which is
   the definition ``(1/N) sum_n errors(n) / n`` summed by error rather than by
-  position. Memory: 8 bytes per wrong sample plus 4 per wrong sample for the counts;
+  position. Memory: 8 bytes per wrong sample for its confidence and 8 for the counts;
 - the risk-coverage *curve* comes from a fine histogram of the confidence
   (``RC_MANTISSA_BITS`` bits of mantissa: thresholds every ``2^-12`` relative), exact at
   its thresholds (:class:`BinnedRiskCoverage` states the resolution).
