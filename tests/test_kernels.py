@@ -39,3 +39,20 @@ def test_numba_path_handles_layouts_and_dtypes_like_numpy_path(layout, dtype):
     ma = temperature_moments(z, y, 1.7, backend="numba")
     mb = temperature_moments(z, y, 1.7, backend="numpy")
     np.testing.assert_allclose(ma, mb, rtol=1e-12)
+
+
+@pytest.mark.parametrize("backend", ["numba", "numpy"])
+@pytest.mark.parametrize("k", [2, 5, 33])
+def test_arg_max_and_runner_up_with_many_ties(backend, k):
+    # small whole-number logits tie often, at the top and below it; reference: numpy.argmax (first index) and
+    # the top two of np.sort of scipy.special.softmax (a tie at the top gives margin 0)
+    from scipy import special
+
+    rng = np.random.default_rng(k)
+    z = rng.integers(-2, 3, size=(3000, k)).astype(np.float32)
+    s = sample_scores(z, temperature=0.7, backend=backend)
+    np.testing.assert_array_equal(s.predicted, np.argmax(z, axis=1))
+    p = np.sort(special.softmax(z.astype(np.float64) / 0.7, axis=1), axis=1)
+    np.testing.assert_allclose(s.margin, p[:, -1] - p[:, -2], rtol=1e-12, atol=1e-15)
+    zs = np.sort(z.astype(np.float64), axis=1)
+    np.testing.assert_allclose(s.logit_margin, (zs[:, -1] - zs[:, -2]) / 0.7, rtol=1e-12, atol=0)

@@ -136,8 +136,10 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--version", action="version", version=f"%(prog)s {__version__}")
     sub = p.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
-    s = sub.add_parser("summary", help="print set-level numbers of a .npz or .parquet file")
-    s.add_argument("file", help=_FILE_HELP)
+    s = sub.add_parser("summary", help="print set-level numbers of a .npz or .parquet file, or of a chunked store")
+    s.add_argument("file", help=".npz, .parquet; or read in chunks: a .zarr store, a folder of .parquet files, .npy")
+    s.add_argument("--scheduler", metavar="ADDRESS", help="dask.distributed scheduler for a chunked store "
+                   "(default: $LOGITSCOPE_SCHEDULER, else in process); the cluster keeps running")  # fmt: skip
     g = s.add_mutually_exclusive_group()
     g.add_argument("--temperature", type=float, metavar="T", help=_TEMPERATURE_HELP)
     g.add_argument("--fit-temperature", action="store_true", help=_FIT_HELP)
@@ -209,17 +211,23 @@ def _add_demo_parser(sub: Any) -> None:
 
 
 def _cmd_summary(args: argparse.Namespace) -> int:
+    from .chunked.frame import is_chunked_source
     from .frame import LogitFrame
 
-    frame = _Progress(f"reading {args.file}").run(lambda: LogitFrame.read(args.file))
-    summary = _Progress("computing scores").run(
-        lambda: frame.summary(
-            temperature=args.temperature,
-            fit_temperature=args.fit_temperature,
-            target_accuracy=args.target_accuracy,
-            interval=args.interval,
+    if is_chunked_source(args.file):
+        from .chunked.cli import chunked_summary
+
+        summary = _Progress("computing the summary over chunks").run(lambda: chunked_summary(args))
+    else:
+        frame = _Progress(f"reading {args.file}").run(lambda: LogitFrame.read(args.file))
+        summary = _Progress("computing scores").run(
+            lambda: frame.summary(
+                temperature=args.temperature,
+                fit_temperature=args.fit_temperature,
+                target_accuracy=args.target_accuracy,
+                interval=args.interval,
+            )
         )
-    )
     if args.json:
         reasons: dict[str, str] = {}
         clean = _finite_or_null(summary, "", reasons)

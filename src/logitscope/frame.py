@@ -448,13 +448,13 @@ class LogitFrame:
 
     @classmethod
     def read(cls, path: str | os.PathLike[str]) -> LogitFrame:
-        """Read a frame from ``.npz`` or ``.parquet`` (layouts in the README)."""
+        """Read a frame from ``.npz``, ``.parquet`` or a ``.zarr`` store (layouts in the README) into memory."""
         from .io import read_frame
 
         return read_frame(path)
 
     def write(self, path: str | os.PathLike[str]) -> None:
-        """Write the frame to ``.npz`` or ``.parquet``, atomically."""
+        """Write the frame to ``.npz``, ``.parquet`` or a ``.zarr`` store, atomically."""
         from .io import write_frame
 
         write_frame(self, path)

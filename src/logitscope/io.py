@@ -62,7 +62,9 @@ def _kind(path: Path) -> str:
         return "npz"
     if suffix in (".parquet", ".pq"):
         return "parquet"
-    raise FileFormatError(f"{path}: unknown file type {suffix!r}; use .npz or .parquet")
+    if suffix == ".zarr":
+        return "zarr"  # layout in logitscope.chunked.store
+    raise FileFormatError(f"{path}: unknown file type {suffix!r}; use .npz, .parquet or .zarr")
 
 
 def write_frame(frame: LogitFrame, path: str | os.PathLike[str]) -> None:
@@ -79,6 +81,11 @@ def write_frame(frame: LogitFrame, path: str | os.PathLike[str]) -> None:
     """
     target = Path(path)
     kind = _kind(target)
+    if kind == "zarr":
+        from .chunked.store import write_zarr
+
+        write_zarr(frame, target)
+        return
     if kind == "npz":
         arrays: dict[str, Any] = {"logits": np.asarray(frame.logits), "classes": np.array(frame.classes, dtype=str)}
         if frame.labels is not None:
@@ -169,6 +176,17 @@ def read_frame(path: str | os.PathLike[str]) -> LogitFrame:
     """
     source = Path(path)
     kind = _kind(source)
+    if kind == "zarr":  # a chunked store read whole into memory (logitscope.chunked reads it lazily)
+        from .chunked import open_chunked
+        from .chunked.analysis import compute
+        from .frame import LogitFrame
+
+        if not source.is_dir():
+            raise FileFormatError(f"{source}: no such Zarr store (a .zarr store is a folder)")
+        cf = open_chunked(source)
+        z, y, ids = compute(cf.logits, cf.labels, cf.ids)
+        ids = np.array([str(i) for i in ids.tolist()]) if ids.dtype.kind not in "iu" else ids
+        return LogitFrame(z, labels=y, classes=cf.classes, ids=ids)
     _check_source(source)
     try:
         with warnings.catch_warnings(record=True) as caught:

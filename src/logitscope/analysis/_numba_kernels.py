@@ -3,17 +3,31 @@
 Importing this module fails when numba is missing; the callers then use the
 numpy path, which computes the same quantities. Rows run in parallel threads.
 Each row is scanned in short loops that the compiler turns into SIMD code:
-the maximum, then the exponential sums, then the arg-max and runner-up.
+the maximum, then the exponential sums, then the arg-max with the count of
+ties at the top, then the runner-up. Every loop must stay vectorisable, so:
 
-The exponential is our own :func:`exp_nonpositive` rather than ``math.exp``,
-because LLVM vectorises a polynomial but not a call into the C library. It
-uses the classic Cody-Waite reduction ``x = n ln 2 + r`` with ``|r| <= ln(2)/2``
-and a degree-13 Taylor polynomial for ``e^r`` (truncation error below
-``0.35^14 / 14! < 5e-18``), then scales by ``2^n`` built from the exponent
-bits. Its relative error is about one unit in the last place (checked
-against ``numpy.exp`` in the tests). Below -708 it returns 0 (``e^x`` is
-below ``3.4e-308`` there), so a vanishing term stays zero even when it is
-multiplied by a huge logit difference.
+- maxima use LLVM's ``maxnum`` (:func:`maxnum`); numba's ``max`` compiles to a
+  compare-and-branch that the vectoriser gives up on;
+- the exponential is our own :func:`exp_nonpositive` rather than ``math.exp``,
+  because LLVM vectorises a polynomial but not a call into the C library, and
+  its rounding uses ``np.floor`` (a float) rather than ``math.floor`` (an
+  integer: converting four doubles to int64 has no AVX2 instruction and
+  splits the vector into scalars).
+
+:func:`exp_nonpositive` uses the classic Cody-Waite reduction ``x = n ln 2 + r``
+with ``|r| <= ln(2)/2`` and the degree-13 Taylor polynomial for ``e^r``
+(truncation error below ``0.35^14 / 14! < 5e-18``), evaluated as
+``1 + (r + r^2 q(r))`` with ``q`` by Estrin's scheme (pairs of terms combined
+with ``r^2``, ``r^4``, ``r^8``: a dependency chain of 5 multiply-adds instead of
+13), then scales by ``2^n`` built from the exponent bits. Its relative error
+is about one unit in the last place (checked against ``numpy.exp`` in the
+tests). Below -708 it returns 0 (``e^x`` is below ``3.4e-308`` there), so a
+vanishing term stays zero even when it is multiplied by a huge logit difference.
+
+Finiteness comes free with the scores: a row holding NaN or an infinity makes
+its sum ``t = sum_k e_k d_k`` NaN (``0 * inf`` and ``0 * nan`` are NaN, and the
+fast-math flags used here keep NaN semantics), and the kernels return how many
+rows did. :func:`nonfinite_rows` is the cheap stand-alone check.
 """
 
 from __future__ import annotations
@@ -23,7 +37,8 @@ from typing import Literal, TypedDict
 
 import numba
 import numpy as np
-from numba.core import types
+from llvmlite import ir
+from numba.core import cgutils, types
 from numba.extending import intrinsic
 
 # reassociation lets the reductions vectorise; no-NaN / no-inf flags are NOT set (rows start at -inf)
@@ -43,6 +58,7 @@ _OPTS: _JitOptions = {"nogil": True, "cache": True, "parallel": True, "error_mod
 _LOG2E = 1.4426950408889634
 _LN2_HI = 6.93147180369123816490e-01  # high part of ln 2 (fdlibm)
 _LN2_LO = 1.90821492927058770002e-10  # low part of ln 2 (fdlibm)
+_ROUND_SHIFT = 6755399441055744.0  # 1.5 * 2^52: adding it to a whole number n puts n in the low mantissa bits
 
 
 @intrinsic
@@ -55,28 +71,56 @@ def _bits_to_float64(typingctx, x):  # pragma: no cover - compiled
     return sig, codegen
 
 
+@intrinsic
+def _float64_to_bits(typingctx, x):  # pragma: no cover - compiled
+    sig = types.int64(types.float64)
+
+    def codegen(context, builder, signature, args):
+        return builder.bitcast(args[0], context.get_value_type(types.int64))
+
+    return sig, codegen
+
+
+@intrinsic
+def maxnum(typingctx, a, b):  # pragma: no cover - compiled
+    """LLVM's ``maxnum``: the larger of two floats of one type (a NaN loses), vectorisable in reductions."""
+    if a != b or not isinstance(a, types.Float):
+        return None
+    sig = a(a, b)
+
+    def codegen(context, builder, signature, args):
+        lt = context.get_value_type(signature.return_type)
+        name = "llvm.maxnum.f32" if signature.return_type == types.float32 else "llvm.maxnum.f64"
+        fn = cgutils.get_or_insert_function(builder.module, ir.FunctionType(lt, [lt, lt]), name)
+        return builder.call(fn, args)
+
+    return sig, codegen
+
+
 @numba.njit(inline="always", fastmath={"contract"}, cache=True)
 def exp_nonpositive(x):  # pragma: no cover - compiled
     """``e^x`` for ``x <= 0`` to about 1 ulp, vectorisable (see the module docstring); 0 below -708."""
     keep = x >= -708.0
     x = max(x, -708.0)
-    n = math.floor(x * _LOG2E + 0.5)
+    n = np.floor(x * _LOG2E + 0.5)  # a float: see the module docstring
     r = x - n * _LN2_HI - n * _LN2_LO
-    p = 1.0 / 6227020800.0
-    p = p * r + 1.0 / 479001600.0
-    p = p * r + 1.0 / 39916800.0
-    p = p * r + 1.0 / 3628800.0
-    p = p * r + 1.0 / 362880.0
-    p = p * r + 1.0 / 40320.0
-    p = p * r + 1.0 / 5040.0
-    p = p * r + 1.0 / 720.0
-    p = p * r + 1.0 / 120.0
-    p = p * r + 1.0 / 24.0
-    p = p * r + 1.0 / 6.0
-    p = p * r + 0.5
-    p = p * r + 1.0
-    p = p * r + 1.0
-    e = p * _bits_to_float64((np.int64(n) + 1023) << 52)
+    # e^r - 1 - r = r^2 (1/2! + r/3! + ... + r^11/13!), the bracket by Estrin's scheme
+    r2 = r * r
+    a0 = 1.0 / 2.0 + r * (1.0 / 6.0)
+    a1 = 1.0 / 24.0 + r * (1.0 / 120.0)
+    a2 = 1.0 / 720.0 + r * (1.0 / 5040.0)
+    a3 = 1.0 / 40320.0 + r * (1.0 / 362880.0)
+    a4 = 1.0 / 3628800.0 + r * (1.0 / 39916800.0)
+    a5 = 1.0 / 479001600.0 + r * (1.0 / 6227020800.0)
+    r4 = r2 * r2
+    b0 = a0 + r2 * a1
+    b1 = a2 + r2 * a3
+    b2 = a4 + r2 * a5
+    r8 = r4 * r4
+    q = (b0 + r4 * b1) + r8 * b2
+    p = 1.0 + (r + r2 * q)
+    # 2^n from the bits of n + 1.5 * 2^52, whose low bits hold n (no float-to-int conversion)
+    e = p * _bits_to_float64((_float64_to_bits(n + _ROUND_SHIFT) + 1023) << 52)
     return e if keep else 0.0
 
 
@@ -91,12 +135,14 @@ def exp_nonpositive_array(x):  # pragma: no cover - compiled
 
 @numba.njit(**_OPTS)
 def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, logptrue, brier, rank):
+    """Every per-sample score of each row; returns the number of rows holding NaN or an infinity."""
     n, k = z.shape
+    nonfinite = 0
     for i in numba.prange(n):
         row = z[i]
         top = -np.inf
         for j in range(k):
-            top = max(top, np.float64(row[j]))
+            top = maxnum(top, np.float64(row[j]))
         s = 0.0
         t = 0.0
         u = 0.0
@@ -106,18 +152,25 @@ def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, l
             s += e
             t += e * d
             u += e * e
-        a = 0
-        while a < k - 1 and np.float64(row[a]) != top:
-            a += 1
+        # first arg-max (as numpy.argmax) and how many columns share the top value
+        a = np.int32(k)
+        ties = np.int32(0)
+        for j in range(k):
+            at_top = np.float64(row[j]) == top
+            a = min(a, np.int32(j) if at_top else np.int32(k))
+            ties += np.int32(at_top)
+        a = min(a, np.int32(k - 1))
+        # runner-up: the top again when it is tied, else the largest value below it
         runner = -np.inf
         for j in range(k):
-            runner = max(runner, np.float64(row[j]) if j != a else -np.inf)
+            x = np.float64(row[j])
+            runner = maxnum(runner, x if x < top else -np.inf)
+        g = 0.0 if ties > 1 else (runner - top) * beta
         log_s = math.log(s)
         pred[i] = a
         conf[i] = 1.0 / s
         h = log_s - t / s
         ent[i] = h if h > 0.0 else 0.0
-        g = (runner - top) * beta
         margin[i] = (1.0 - math.exp(g)) / s
         lmargin[i] = -g
         energy[i] = -(top * beta + log_s) / beta
@@ -133,10 +186,13 @@ def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, l
             logptrue[i] = lp
             brier[i] = u / (s * s) - 2.0 * math.exp(lp) + 1.0
             rank[i] = 1 + above
+        nonfinite += t != t
+    return nonfinite
 
 
 @numba.njit(**_OPTS)
 def moments_kernel(z, y, beta):  # pragma: no cover - compiled
+    """Sums of the NLL and its first two derivatives in beta; NaN when a row holds NaN or an infinity."""
     n, k = z.shape
     nll = 0.0
     d1 = 0.0
@@ -145,7 +201,7 @@ def moments_kernel(z, y, beta):  # pragma: no cover - compiled
         row = z[i]
         zm = -np.inf
         for j in range(k):
-            zm = max(zm, np.float64(row[j]))
+            zm = maxnum(zm, np.float64(row[j]))
         s = 0.0
         ez = 0.0
         ez2 = 0.0
@@ -195,3 +251,43 @@ def prior_em_kernel(z, beta, shift, n_chunks):  # pragma: no cover - compiled
             for j in range(k):
                 acc[c, j] += buf[j] * inv
     return acc.sum(axis=0)
+
+
+@numba.njit(**_OPTS)
+def nonfinite_rows(bits, exponent, flags):  # pragma: no cover - compiled
+    """Set ``flags[i]`` where row ``i`` holds NaN or an infinity; return their number.
+
+    ``bits`` is the float matrix viewed as unsigned integers of its width and
+    ``exponent`` the mask of its exponent field: NaN and infinities are the
+    values with every exponent bit set. Integer tests vectorise without
+    fast-math flags (under which ``acc + (x - x)`` may be simplified to ``acc``).
+    """
+    n, k = bits.shape
+    count = 0
+    for i in numba.prange(n):
+        row = bits[i]
+        hits = 0
+        for j in range(k):
+            hits += (row[j] & exponent) == exponent
+        bad = hits > 0
+        flags[i] = bad
+        count += bad
+    return count
+
+
+@numba.njit(**_OPTS)
+def copy_counting_nonfinite(bits, exponent, out):  # pragma: no cover - compiled
+    """Copy ``bits`` into ``out`` row by row (exactly: as integers) and return the number of rows holding NaN or an
+    infinity, tested as in :func:`nonfinite_rows`."""
+    n, k = bits.shape
+    count = 0
+    for i in numba.prange(n):
+        row = bits[i]
+        dst = out[i]
+        hits = 0
+        for j in range(k):
+            x = row[j]
+            dst[j] = x
+            hits += (x & exponent) == exponent
+        count += hits > 0
+    return count

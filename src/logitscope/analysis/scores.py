@@ -23,6 +23,11 @@ logit ``+`` the classes with an equal logit and a lower index, so
 Two backends give the same numbers: a numba kernel that runs over row blocks
 in parallel threads (used when numba is installed) and a pure numpy path in
 cache-sized row blocks. Both accumulate in float64.
+
+The finiteness check of the logits is fused into the same pass: a row holding
+NaN or an infinity makes its sum ``sum_k p_k log p_k`` NaN, so the pass counts
+such rows, and only when there are some are they looked up to name them in
+the error. No separate pass over the matrix checks the input.
 """
 
 from __future__ import annotations
@@ -36,7 +41,7 @@ import numpy as np
 from numpy.typing import ArrayLike
 
 from ._blocks import as_float64_block, block_slices
-from ._validation import check_labels, check_logits, check_temperature
+from ._validation import check_labels, check_logits, check_temperature, checks_enabled, nonfinite_error
 
 __all__ = ["SCORE_COLUMNS", "SampleScores", "available_backends", "sample_scores", "temperature_moments"]
 
@@ -155,9 +160,10 @@ def _numba_blocks(z: np.ndarray) -> Iterator[tuple[slice, np.ndarray]]:
 # --------------------------------------------------------------------------- numpy
 
 
-def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[str, np.ndarray]) -> None:
+def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[str, np.ndarray]) -> int:
     # order statistics come from the unscaled logits, so rounding in z / T can never move the arg-max or a rank;
-    # the arithmetic mirrors the numba kernel step by step
+    # the arithmetic mirrors the numba kernel step by step; returns the number of rows whose sums came out NaN
+    nonfinite = 0
     for rows in block_slices(*z.shape):
         b = as_float64_block(z, rows, 1.0)
         r = np.arange(b.shape[0])
@@ -177,6 +183,7 @@ def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[st
         e = np.exp(b)
         s = e.sum(axis=1)
         t = np.einsum("ij,ij->i", e, b)
+        nonfinite += int(np.count_nonzero(np.isnan(t)))
         log_s = np.log(s)
         if y is not None:
             u = np.einsum("ij,ij->i", e, e)
@@ -191,6 +198,7 @@ def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[st
             lp = (zy - m1) * beta - log_s
             out["true_log_probability"][rows] = lp
             out["brier"][rows] = u / (s * s) - 2.0 * np.exp(lp) + 1.0
+    return nonfinite
 
 
 def sample_scores(
@@ -218,6 +226,12 @@ def sample_scores(
     -------
     SampleScores
 
+    Raises
+    ------
+    NonFiniteError
+        If rows of the logits hold NaN or infinite values (found in the same
+        pass; not checked inside :func:`assume_valid`).
+
     Examples
     --------
     >>> import numpy as np
@@ -225,7 +239,7 @@ def sample_scores(
     >>> int(s.predicted[0]), round(float(s.confidence[0]), 4), int(s.true_rank[0])
     (0, 0.6652, 2)
     """
-    z = check_logits(logits)
+    z = check_logits(logits, check_finite=False)  # the pass below finds non-finite rows
     n, k = z.shape
     y = None if labels is None else check_labels(labels, n, k)
     t = check_temperature(temperature)
@@ -237,6 +251,7 @@ def sample_scores(
         out["true_log_probability"] = np.empty(n, dtype=np.float64)
         out["brier"] = np.empty(n, dtype=np.float64)
         out["true_rank"] = np.empty(n, dtype=np.int64)
+    nonfinite = 0
     if _pick(backend) == "numba":
         nb = _numba()
         has_y = y is not None
@@ -245,9 +260,14 @@ def sample_scores(
             per_row = [out[name][rows] for name in ("predicted", *f64)]
             label_cols = [out[name][rows] if has_y else np.empty(1) for name in ("true_log_probability", "brier")]
             rank = out["true_rank"][rows] if has_y else np.empty(1, dtype=np.int64)
-            nb.scores_kernel(zc, yy, has_y, beta, *per_row, *label_cols, rank)
+            nonfinite += nb.scores_kernel(zc, yy, has_y, beta, *per_row, *label_cols, rank)
     else:
-        _scores_numpy(z, y, beta, out)
+        with np.errstate(invalid="ignore"):  # a non-finite row's NaN is counted, then reported below
+            nonfinite = _scores_numpy(z, y, beta, out)
+    if nonfinite and checks_enabled():
+        err = nonfinite_error(z)
+        if err is not None:
+            raise err
     correct = None if y is None else out["predicted"] == y
     ptrue = None if y is None else np.exp(out["true_log_probability"])
     return SampleScores(
@@ -283,33 +303,44 @@ def temperature_moments(
     >>> round(nll, 6)
     0.126928
     """
-    z = check_logits(logits)
+    z = check_logits(logits, check_finite=False)  # a non-finite row makes the sums NaN: checked below
     n, k = z.shape
     y = check_labels(labels, n, k)
     if not np.isfinite(beta) or beta <= 0:
         from ..errors import ParameterError
 
         raise ParameterError(f"inverse temperature must be positive and finite, got {beta!r}")
-    if _pick(backend) == "numba":
+    nll, d1, d2 = _moment_sums(z, y, float(beta), _pick(backend))
+    if not np.isfinite(d1) and checks_enabled():
+        err = nonfinite_error(z)
+        if err is not None:
+            raise err
+    return nll / n, d1 / n, d2 / n
+
+
+def _moment_sums(z: np.ndarray, y: np.ndarray, beta: float, backend: str) -> tuple[float, float, float]:
+    if backend == "numba":
         nll = d1 = d2 = 0.0
         for rows, zc in _numba_blocks(z):
-            a, b, c = _numba().moments_kernel(zc, y[rows], float(beta))
+            a, b, c = _numba().moments_kernel(zc, y[rows], beta)
             nll, d1, d2 = nll + a, d1 + b, d2 + c
-        return nll / n, d1 / n, d2 / n
+        return nll, d1, d2
+    n, k = z.shape
     nll = d1 = d2 = 0.0
     for rows in block_slices(n, k):
         zb = np.asarray(z[rows], dtype=np.float64)
-        b = zb * beta
-        m = b.max(axis=1)
-        e = np.exp(b - m[:, None])
-        s = e.sum(axis=1)
-        r = np.arange(zb.shape[0])
-        zy = zb[r, y[rows]]
-        zm = zb.max(axis=1)
-        c = zb - zm[:, None]  # centre raw logits for a stable variance
-        ez = np.einsum("ij,ij->i", e, c) / s
-        ez2 = np.einsum("ij,ij->i", e, c * c) / s
-        nll += float(np.sum(m + np.log(s) - beta * zy))
-        d1 += float(np.sum(ez + (zm - zy)))  # zm - zy first: exact when the label is the top class
-        d2 += float(np.sum(np.clip(ez2 - ez * ez, 0.0, None)))
-    return nll / n, d1 / n, d2 / n
+        with np.errstate(invalid="ignore"):  # NaN from a non-finite row is reported by the caller
+            b = zb * beta
+            m = b.max(axis=1)
+            e = np.exp(b - m[:, None])
+            s = e.sum(axis=1)
+            r = np.arange(zb.shape[0])
+            zy = zb[r, y[rows]]
+            zm = zb.max(axis=1)
+            c = zb - zm[:, None]  # centre raw logits for a stable variance
+            ez = np.einsum("ij,ij->i", e, c) / s
+            ez2 = np.einsum("ij,ij->i", e, c * c) / s
+            nll += float(np.sum(m + np.log(s) - beta * zy))
+            d1 += float(np.sum(ez + (zm - zy)))  # zm - zy first: exact when the label is the top class
+            d2 += float(np.sum(np.clip(ez2 - ez * ez, 0.0, None)))
+    return nll, d1, d2

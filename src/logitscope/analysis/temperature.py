@@ -31,7 +31,14 @@ from ._validation import assume_valid, check_labels, check_logits
 from .calibration import Strategy, reliability_bins
 from .scores import sample_scores, temperature_moments
 
-__all__ = ["TemperatureFit", "TemperatureSweep", "default_temperature_grid", "fit_temperature", "temperature_sweep"]
+__all__ = [
+    "TemperatureFit",
+    "TemperatureSweep",
+    "default_temperature_grid",
+    "fit_temperature",
+    "newton_fit",
+    "temperature_sweep",
+]
 
 #: The fitted temperature stays in the accepted range of a temperature (logitscope.parameters).
 T_MIN, T_MAX = get_range("temperature").bounds()
@@ -234,40 +241,61 @@ def fit_temperature(
     y = check_labels(labels, n, k)
     sel = _check_rows(rows, n)
     n_fit = n if sel is None else sel.size
-    warm_rows = warm_steps = 0
+
+    def on_all(beta: float) -> Moments:
+        return _moments_on(z, y, beta, sel)
+
+    def on_sample(rng: np.random.Generator) -> Callable[[float], Moments]:
+        pool = np.arange(n) if sel is None else sel
+        sub = np.sort(rng.choice(pool, WARM_START_ROWS, replace=False))
+        zs, ys = z[sub], y[sub]
+        return lambda b: temperature_moments(zs, ys, b)
+
     with assume_valid():
+        return newton_fit(on_all, on_sample, n_fit, rtol, max_iter, seed)
 
-        def on_all(beta: float) -> Moments:
-            return _moments_on(z, y, beta, sel)
 
-        start = on_all(1.0)
-        f0 = start[0]
-        passes = 1
-        beta, fgh = 1.0, start
-        flat = start[1] == 0.0 and start[2] <= 0.0
-        if n_fit > 8 * WARM_START_ROWS and not flat:
-            pool = np.arange(n) if sel is None else sel
-            sub = np.sort(np.random.default_rng(seed).choice(pool, WARM_START_ROWS, replace=False))
-            zs, ys = z[sub], y[sub]
-            first = temperature_moments(zs, ys, 1.0)
-            b_sub, _, _, warm_steps, _ = _newton(
-                lambda b: temperature_moments(zs, ys, b), 1.0, first, rtol / 10, max_iter
-            )
-            warm_rows = WARM_START_ROWS
-            candidate = on_all(b_sub)
-            passes += 1
-            if candidate[0] <= f0:
-                beta, fgh = b_sub, candidate
-        beta, f, evaluations, steps, converged = _newton(on_all, beta, fgh, rtol, max_iter)
-        passes += evaluations
-        if 1.0 < beta < 1.0 / T_MIN and f < math.log(2.0) / n_fit:
-            # A sample whose label is tied with or beaten by another class costs at least log 2 at every T,
-            # so a mean NLL below log(2) / N means every label wins outright: the NLL then falls for all
-            # T -> 0, but Newton can stall early where it and its derivatives underflow. The infimum is at
-            # the bound. (The test costs no pass over the data.)
-            beta, converged = 1.0 / T_MIN, True
-            f = on_all(beta)[0]
-            passes += 1
+def newton_fit(
+    on_all: Callable[[float], Moments],
+    on_sample: Callable[[np.random.Generator], Callable[[float], Moments]],
+    n_fit: int,
+    rtol: float = 1e-5,
+    max_iter: int = 50,
+    seed: int = 0,
+) -> TemperatureFit:
+    """The temperature fit of :func:`fit_temperature`, given how to evaluate the moments.
+
+    ``on_all(beta)`` returns the mean NLL and its first two derivatives in
+    ``beta = 1 / T`` over the ``n_fit`` rows (one pass over them); for more
+    than ``8 * WARM_START_ROWS`` rows, ``on_sample(rng)`` returns the same
+    for a seeded random subsample of ``WARM_START_ROWS`` of them, used for a
+    warm start. The in-memory fit and the chunked fit
+    (:mod:`logitscope.chunked`) both run this one iteration.
+    """
+    warm_rows = warm_steps = 0
+    start = on_all(1.0)
+    f0 = start[0]
+    passes = 1
+    beta, fgh = 1.0, start
+    flat = start[1] == 0.0 and start[2] <= 0.0
+    if n_fit > 8 * WARM_START_ROWS and not flat:
+        on_sub = on_sample(np.random.default_rng(seed))
+        b_sub, _, _, warm_steps, _ = _newton(on_sub, 1.0, on_sub(1.0), rtol / 10, max_iter)
+        warm_rows = WARM_START_ROWS
+        candidate = on_all(b_sub)
+        passes += 1
+        if candidate[0] <= f0:
+            beta, fgh = b_sub, candidate
+    beta, f, evaluations, steps, converged = _newton(on_all, beta, fgh, rtol, max_iter)
+    passes += evaluations
+    if 1.0 < beta < 1.0 / T_MIN and f < math.log(2.0) / n_fit:
+        # A sample whose label is tied with or beaten by another class costs at least log 2 at every T,
+        # so a mean NLL below log(2) / N means every label wins outright: the NLL then falls for all
+        # T -> 0, but Newton can stall early where it and its derivatives underflow. The infimum is at
+        # the bound. (The test costs no pass over the data.)
+        beta, converged = 1.0 / T_MIN, True
+        f = on_all(beta)[0]
+        passes += 1
     t = 1.0 / beta
     at_bound = t <= T_MIN * (1 + 1e-9) or t >= T_MAX * (1 - 1e-9)
     if f > f0:  # the line search prevents it; the promise is kept explicitly
@@ -277,7 +305,7 @@ def fit_temperature(
             f"the fitted temperature reached its bound T = {t:g}: the NLL keeps falling "
             "towards it (separable data, or labels the model ranks last); treat it with care",
             RuntimeWarning,
-            stacklevel=2,
+            stacklevel=3,
         )
     return TemperatureFit(
         temperature=t, nll_before=f0, nll_after=f, converged=converged, at_bound=at_bound, passes=passes,
