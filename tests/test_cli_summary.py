@@ -16,7 +16,7 @@ from sklearn.metrics import accuracy_score, log_loss, top_k_accuracy_score
 from logitscope import LogitFrame, cli
 
 LABELLED_KEYS = {
-    "n_samples", "n_classes", "accuracy", "top_k_accuracy", "nll", "brier", "ece", "mce",
+    "n_samples", "n_labelled", "n_classes", "accuracy", "top_k_accuracy", "nll", "brier", "ece", "mce",
     "mean_confidence", "mean_entropy", "aurc", "temperature",
 }  # fmt: skip
 
@@ -131,7 +131,7 @@ def test_summary_without_labels(capsys, tmp_path, make_logits):
     code, out, _ = _run(capsys, "summary", tmp_path / "u.parquet", "--json")
     s = json.loads(out)
     assert code == 0
-    assert set(s) == {"n_samples", "n_classes", "mean_confidence", "mean_entropy", "temperature"}
+    assert set(s) == {"n_samples", "n_labelled", "n_classes", "mean_confidence", "mean_entropy", "temperature"}
     p = special.softmax(z, axis=1)
     assert s["mean_entropy"] == pytest.approx(np.mean(stats.entropy(p, axis=1)), rel=1e-12)  # scipy
 

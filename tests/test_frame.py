@@ -261,8 +261,9 @@ def test_append_returns_a_new_frame(frame):
         frame.append(frame)
     with pytest.raises(ClassNameError, match="same classes"):
         frame.append(LogitFrame(np.zeros((2, 3)), labels=[0, 1]))
-    with pytest.raises(LabelError, match="both frames have labels or neither"):
-        frame.append(LogitFrame(np.zeros((2, 3)), classes=TEAMS, ids=["x", "y"]))
+    # a frame without labels appended to a labelled one: its rows are unlabelled rows of a partly labelled batch
+    mixed = frame.append(LogitFrame(np.zeros((2, 3)), classes=TEAMS, ids=["x", "y"]))
+    assert mixed.labels[-2:].tolist() == [-1, -1] and mixed.n_labelled == frame.n_samples
 
 
 def test_meta_is_a_copy(frame):

@@ -35,11 +35,13 @@ def _shared_labels(aligned: AlignedFrames) -> np.ndarray | None:
     if not with_labels:
         return None
     name0, f0 = with_labels[0]
-    y = f0.labels
-    assert y is not None
+    assert f0.labels is not None
+    y = np.array(f0.labels, copy=True)
     for name, f in with_labels[1:]:
         assert f.labels is not None
-        differ = np.flatnonzero(f.labels != y)
+        # a sample labelled in one frame only takes that label; labels given in both must agree
+        differ = np.flatnonzero((f.labels != y) & (f.labels >= 0) & (y >= 0))
+        y = np.where(y >= 0, y, f.labels)
         if differ.size:
             ids = ", ".join(repr(np.asarray(aligned.ids)[i].item()) for i in differ[:5])
             raise LabelError(
@@ -47,6 +49,24 @@ def _shared_labels(aligned: AlignedFrames) -> np.ndarray | None:
                 "compare checkpoints on one set of labels (frame.with_labels)"
             )
     return y
+
+
+def _labelled_part(aligned: AlignedFrames) -> AlignedFrames:
+    """The aligned frames cut to the samples that have a label (a partly labelled batch): right and wrong,
+    fixed and broken are defined for those only. Fully labelled or unlabelled frames are returned as they are."""
+    y = _shared_labels(aligned)
+    if y is None or bool(np.all(y >= 0)):
+        return aligned
+    keep = np.flatnonzero(y >= 0)
+    if keep.size == 0:
+        raise LabelError("none of the shared samples has a label")
+    left_out = [np.asarray(aligned.ids)[y < 0]] * len(aligned.frames)
+    return AlignedFrames(
+        frames=tuple(f.subset(keep) for f in aligned.frames),
+        rows=tuple(r[keep] for r in aligned.rows),
+        dropped=tuple(np.concatenate([d, u]) for d, u in zip(aligned.dropped, left_out, strict=True)),
+        names=aligned.names,
+    )
 
 
 @dataclass(frozen=True)
@@ -154,7 +174,7 @@ def compare_frames(
     >>> compare_frames(before, after).to_dict()["n_changed"]
     0
     """
-    aligned = align_frames(a, b, missing=missing, names=names)
+    aligned = _labelled_part(align_frames(a, b, missing=missing, names=names))
     y = _shared_labels(aligned)
     fa, fb = aligned.frames
     with assume_valid():
@@ -213,6 +233,7 @@ def forgetting_across(frames: Sequence[LogitFrame], *, missing: MissingIds = "ra
     if len(frames) < 2:
         raise ParameterError(f"forgetting needs at least two checkpoints, got {len(frames)}")
     aligned = align_frames(*frames, missing=missing, names=[f"checkpoint {i}" for i in range(len(frames))])
+    aligned = _labelled_part(aligned)
     y = _shared_labels(aligned)
     if y is None:
         raise LabelError("forgetting events need labels; none of the frames has any")

@@ -28,7 +28,10 @@ from .errors import (
     describe_rows,
 )
 
-__all__ = ["LogitFrame", "Payload"]
+#: The label of a row that has none (a partly labelled batch).
+UNLABELLED = -1
+
+__all__ = ["UNLABELLED", "LogitFrame", "Payload"]
 
 PayloadKind = Literal["images", "image_paths", "texts"]
 
@@ -112,14 +115,69 @@ def _readonly(a: np.ndarray) -> np.ndarray:
     return v
 
 
+def _split_missing(labels: Any) -> tuple[np.ndarray, np.ndarray]:
+    """Labels as an array and the mask of rows without one (None, NaN, pandas NA, -1, or masked).
+
+    Examples
+    --------
+    >>> y, missing = _split_missing([2, -1, None, 0])
+    >>> missing.tolist()
+    [False, True, True, False]
+    """
+    if np.ma.isMaskedArray(labels):
+        mask = np.ma.getmaskarray(labels).copy()
+        data = np.ma.getdata(labels)
+        if data.ndim == 1 and data.dtype.kind in "iuf":
+            y = np.where(mask, 0, data)
+        else:
+            y = np.asarray(data, dtype=object).copy()
+            y[mask] = None
+        return np.asarray(y), mask
+    if isinstance(labels, pd.Series | pd.Index | pd.api.extensions.ExtensionArray):
+        mask = np.asarray(pd.isna(labels), dtype=bool)
+        arr = np.asarray(labels, dtype=object)
+        if mask.any() or arr.dtype.kind == "O":
+            out = arr.copy()
+            out[mask] = None
+            try:
+                clean = np.asarray(out[~mask].tolist())
+            except Exception:  # mixed content: the encoder names the problem
+                return out, mask
+            if clean.dtype.kind in "iuf":
+                y = np.zeros(arr.shape[0], dtype=clean.dtype if clean.size else np.int64)
+                y[~mask] = clean
+                return y, mask | (y == UNLABELLED) if clean.dtype.kind in "iu" else mask
+            return out, mask
+        labels = arr
+    y = _to_numpy(labels, "labels")
+    if y.ndim != 1:
+        return y, np.zeros(y.shape[:1], dtype=bool)
+    if y.dtype.kind == "f":
+        mask = np.isnan(y)
+        return y, mask
+    if y.dtype.kind in "iu":
+        return y, y == UNLABELLED if y.dtype.kind == "i" else np.zeros(y.shape, dtype=bool)
+    if y.dtype.kind == "O":
+        mask = np.array([v is None or (isinstance(v, float) and v != v) or v is pd.NA for v in y.tolist()], dtype=bool)
+        if mask.any():
+            rest = [v for v, m in zip(y.tolist(), mask.tolist(), strict=True) if not m]
+            kinds = {type(v) for v in rest}
+            if rest and kinds <= {int, np.int64, np.int32, float, np.float64, bool}:
+                filled = np.zeros(y.shape[0], dtype=np.float64)
+                filled[~mask] = np.asarray(rest, dtype=np.float64)
+                return filled, mask | (filled == UNLABELLED)
+        return y, mask
+    return y, np.zeros(y.shape, dtype=bool)
+
+
 def _classes_from_labels(labels: Any, default: tuple[str, ...]) -> tuple[str, ...]:
     """Class names for labels given as names without ``classes``: sorted, as scikit-learn's LabelEncoder."""
     if isinstance(labels, str | bytes):
         return default  # refused with a clear message when the labels are encoded
-    y = _to_numpy(labels, "labels")
+    y, missing = _split_missing(labels)
     if y.ndim != 1 or y.dtype.kind not in "OUS":
         return default
-    names = sorted({str(v) for v in y.tolist()})
+    names = sorted({str(v) for v, m in zip(y.tolist(), missing.tolist(), strict=True) if not m})
     if set(names) <= set(default):  # "0", "2", ...: the default names, in column order
         return default
     if len(names) != len(default):
@@ -246,7 +304,7 @@ class LogitFrame:
             )
         self._logits = _readonly(z)
         self._classes = self._check_classes(classes, k, labels)
-        self._labels = None if labels is None else _readonly(self._encode_labels(labels, n))
+        self._labels = None if labels is None else self._encode_labels(labels, n)
         self._ids = _readonly(self._check_ids(ids, n))
         self._meta = self._check_meta(meta, n)
         self._payload = _make_payload(n, images, image_paths, texts, copy=copy)
@@ -278,25 +336,36 @@ class LogitFrame:
             seen[c] = i
         return names
 
-    def _encode_labels(self, labels: ArrayLike, n: int) -> np.ndarray:
+    def _encode_labels(self, labels: ArrayLike, n: int) -> np.ndarray | None:
+        """Labels as read-only int64 class indices, ``UNLABELLED`` (-1) where a row has none; None when none has."""
         if isinstance(labels, str | bytes):
             raise InputTypeError("labels must be a sequence with one label per sample, got a single string")
-        y = _to_numpy(labels, "labels")
+        y, missing = _split_missing(labels)
+        if y.ndim == 1 and y.shape[0] != n:
+            raise LabelError(f"labels have length {y.shape[0]} but the logits have {n} rows")
+        if y.ndim == 1 and missing.all():
+            return None  # no row has a label: an unlabelled frame
+        have = ~missing
+        out = np.full(n, UNLABELLED, dtype=np.int64)
         if y.ndim == 1 and y.dtype.kind in "OUS":
             index = {c: i for i, c in enumerate(self._classes)}
-            names = [str(v) for v in y.tolist()]
+            names = [str(v) for v in y[have].tolist()]
             unknown = sorted({v for v in names if v not in index})
             if unknown:
-                rows = [i for i, v in enumerate(names) if v not in index]
+                where = np.flatnonzero(have)
+                rows = [int(where[i]) for i, v in enumerate(names) if v not in index]
                 raise ClassNameError(
                     f"labels hold class names not among the {len(index)} classes: "
                     f"{', '.join(repr(u) for u in unknown[:5])}"
                     f"{' and more' if len(unknown) > 5 else ''} (at {describe_rows(rows)})"
                 )
-            if len(names) != n:
-                raise LabelError(f"labels have length {len(names)} but the logits have {n} rows")
-            return np.fromiter((index[v] for v in names), dtype=np.int64, count=len(names))
-        return np.array(check_labels(y, n, len(self._classes)), copy=True)
+            out[have] = np.fromiter((index[v] for v in names), dtype=np.int64, count=len(names))
+            return _readonly(out)
+        if y.ndim != 1 or not missing.any():
+            return _readonly(np.array(check_labels(y, n, len(self._classes)), copy=True))
+        filled = np.where(missing, 0, y)  # rows without a label stand in as class 0, so errors name the true rows
+        out[have] = check_labels(filled, n, len(self._classes))[have]
+        return _readonly(out)
 
     @staticmethod
     def _check_ids(ids: ArrayLike | None, n: int) -> np.ndarray:
@@ -468,12 +537,54 @@ class LogitFrame:
 
     @property
     def labels(self) -> np.ndarray | None:
-        """True class indices (N,), or None."""
+        """True class indices (N,), ``UNLABELLED`` (-1) for rows without a label; None when no row has one."""
         return self._labels
 
     @property
     def has_labels(self) -> bool:
+        """Whether at least one row has a label."""
         return self._labels is not None
+
+    @property
+    def labelled(self) -> np.ndarray:
+        """Boolean mask (N,) of the rows that have a label (read-only)."""
+        if self._labels is None:
+            mask = np.zeros(self.n_samples, dtype=bool)
+        else:
+            mask = self._labels >= 0
+        return _readonly(mask)
+
+    @property
+    def n_labelled(self) -> int:
+        """How many rows have a label."""
+        return 0 if self._labels is None else int(np.count_nonzero(self._labels >= 0))
+
+    @property
+    def fully_labelled(self) -> bool:
+        """Whether every row has a label."""
+        return self._labels is not None and bool(np.all(self._labels >= 0))
+
+    def labelled_rows(self, rows: ArrayLike | None = None) -> np.ndarray | None:
+        """Positions of the labelled rows among ``rows`` (default all rows); None when that is every row.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> f = LogitFrame(np.eye(3), labels=[0, -1, 2])
+        >>> f.labelled_rows().tolist(), f.n_labelled, f.fully_labelled
+        ([0, 2], 2, False)
+        """
+        if self._labels is None:
+            return np.zeros(0, dtype=np.int64)
+        if rows is None:
+            return None if self.fully_labelled else np.flatnonzero(self._labels >= 0)
+        r = np.asarray(rows, dtype=np.int64)
+        return r[self._labels[r] >= 0]
+
+    def _labels_for_analysis(self) -> np.ndarray:
+        """Labels with every unlabelled row given class 0, for analysis calls restricted to labelled rows."""
+        y = self._require_labels("this")
+        return y if self.fully_labelled else np.where(y >= 0, y, 0)
 
     @property
     def classes(self) -> tuple[str, ...]:
@@ -541,8 +652,8 @@ class LogitFrame:
         return self.with_temperature(self.fit_temperature().temperature)
 
     def with_labels(self, labels: ArrayLike | None) -> LogitFrame:
-        """The same logits with other labels (indices or class names), or none."""
-        y = None if labels is None else _readonly(self._encode_labels(labels, self.n_samples))
+        """The same logits with other labels (indices or class names; -1, None or NaN where a row has none)."""
+        y = None if labels is None else self._encode_labels(labels, self.n_samples)
         return self._replace(labels=y)
 
     def with_meta(self, meta: pd.DataFrame) -> LogitFrame:
@@ -595,8 +706,11 @@ class LogitFrame:
         """Rows of ``self`` followed by rows of ``other`` (same classes, unique ids)."""
         if other.classes != self.classes:
             raise ClassNameError("frames to append must have the same classes in the same order")
-        if (self._labels is None) != (other._labels is None):
-            raise LabelError("either both frames have labels or neither")
+        labels = None
+        if self._labels is not None or other._labels is not None:  # rows of a frame without labels are unlabelled
+            mine = self._labels if self._labels is not None else np.full(self.n_samples, UNLABELLED, dtype=np.int64)
+            theirs = other._labels if other._labels is not None else np.full(other.n_samples, UNLABELLED, np.int64)
+            labels = _readonly(np.concatenate([mine, theirs]))
         pay = None
         if self._payload and other._payload:
             if self._payload.kind != other._payload.kind:
@@ -611,7 +725,7 @@ class LogitFrame:
         ids = np.concatenate([self._ids, other._ids])
         out = self._replace(
             logits=_readonly(check_logits(z)),
-            labels=None if self._labels is None else _readonly(np.concatenate([self._labels, other._labels])),
+            labels=labels,
             ids=_readonly(self._check_ids(ids, ids.shape[0])),
             meta=pd.concat([self._meta, other._meta], ignore_index=True),
             payload=pay,
@@ -630,8 +744,11 @@ class LogitFrame:
         if hit is not None:
             self._cache.move_to_end(t)
             return hit
+        y = self._labels
         with assume_valid():
-            s = an.sample_scores(self._logits, self._labels, temperature=t)
+            s = an.sample_scores(self._logits, None if y is None else self._labels_for_analysis(), temperature=t)
+        if y is not None and not self.fully_labelled:
+            s = _blank_unlabelled(s, y < 0)
         self._cache[t] = s
         while len(self._cache) > self._CACHE_SIZE:
             self._cache.popitem(last=False)
@@ -678,10 +795,10 @@ class LogitFrame:
         return self._labels
 
     def fit_temperature(self) -> an.TemperatureFit:
-        """Fit the temperature that minimises the NLL (Guo et al. 2017)."""
-        y = self._require_labels("fit_temperature")
+        """Fit the temperature that minimises the NLL of the labelled rows (Guo et al. 2017)."""
+        self._require_labels("fit_temperature")
         with assume_valid():
-            return an.fit_temperature(self._logits, y)
+            return an.fit_temperature(self._logits, self._labels_for_analysis(), rows=self.labelled_rows())
 
     def summary(
         self,
@@ -794,10 +911,11 @@ class LogitFrame:
         multinomial goodness-of-fit test. Where an expected count is below 5
         the p-value is a seeded Monte Carlo estimate from ``n_draws`` draws.
 
-        For an unlabelled batch and a labelled reference frame the check also
-        carries ``priors``: the batch's class mix estimated by EM from its
-        probabilities at ``temperature`` (default: the batch's own), starting
-        from the reference's label proportions (Saerens et al. 2002).
+        For an unlabelled (or partly labelled) batch and a labelled reference
+        frame the check also carries ``priors``: the class mix of the batch's
+        unlabelled rows estimated by EM from their probabilities at
+        ``temperature`` (default: the batch's own), starting from the
+        reference's label proportions (Saerens et al. 2002).
 
         Parameters
         ----------
@@ -832,8 +950,9 @@ class LogitFrame:
         t = self._t(temperature)
 
         def counted(frame: LogitFrame, what: str) -> np.ndarray:
-            if counts == "labels":
-                return an.class_counts(frame._require_labels(f"counts='labels' ({what})"), k)
+            if counts == "labels":  # the labelled rows of a partly labelled frame
+                y = frame._require_labels(f"counts='labels' ({what})")
+                return an.class_counts(y[y >= 0], k)
             return an.class_counts(frame.sample_scores().predicted, k)
 
         options: dict[str, Any] = dict(alpha=alpha, statistic=statistic, counted=counts, n_draws=n_draws, seed=seed)
@@ -843,13 +962,17 @@ class LogitFrame:
             check = an.class_mix_check(
                 counted(self, "the batch"), reference_counts=counted(reference, "the reference"), **options
             )
-            if self._labels is None and reference._labels is not None:
-                ref_mix = an.class_counts(reference._labels, k)
+            if not self.fully_labelled and reference._labels is not None:
+                # the unlabelled rows of the batch (all of them, or the rest of a partly labelled batch)
+                ref_y = reference._labels
+                ref_mix = an.class_counts(ref_y[ref_y >= 0], k)
                 if np.any(ref_mix == 0):
                     missing = ", ".join(repr(self._classes[i]) for i in np.flatnonzero(ref_mix == 0)[:5])
                     return check.with_priors(None, f"no EM prior estimate: the reference has no labels of {missing}")
+                unlabelled = None if self._labels is None else np.flatnonzero(self._labels < 0)
+                z = self._logits if unlabelled is None else self._logits[unlabelled]
                 with assume_valid():
-                    est = an.estimate_priors(self._logits, ref_mix / ref_mix.sum(), temperature=t)
+                    est = an.estimate_priors(z, ref_mix / ref_mix.sum(), temperature=t)
                 note = None if est.converged else f"the EM prior estimate did not converge in {est.iterations} steps"
                 return check.with_priors(est, note)
             return check
@@ -887,3 +1010,25 @@ def _decision_logits_matching(estimator: Any, X: Any, p: np.ndarray) -> np.ndarr
         if not np.all(np.abs(q - p[rows]) <= tol):
             return None
     return z
+
+
+def _blank_unlabelled(s: an.SampleScores, missing: np.ndarray) -> an.SampleScores:
+    """Scores with the label-dependent ones of unlabelled rows blanked (NaN, rank -1, not correct)."""
+    import dataclasses
+
+    changes: dict[str, Any] = {}
+    for name in ("true_probability", "true_log_probability", "brier"):
+        arr = getattr(s, name)
+        if arr is not None:
+            arr = np.array(arr, copy=True)
+            arr[missing] = np.nan
+            changes[name] = arr
+    if s.true_rank is not None:
+        rank = np.array(s.true_rank, copy=True)
+        rank[missing] = -1
+        changes["true_rank"] = rank
+    if s.correct is not None:
+        ok = np.array(s.correct, copy=True)
+        ok[missing] = False
+        changes["correct"] = ok
+    return dataclasses.replace(s, **changes)

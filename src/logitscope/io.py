@@ -7,7 +7,7 @@ key                 shape      meaning
 ==================  =========  ===========================================
 ``logits``          (N, K)     raw logits, any float dtype; or instead
 ``probabilities``   (N, K)     probabilities, rows summing to one
-``labels``          (N,)       optional; class indices
+``labels``          (N,)       optional; class indices, -1 where a row has no label
 ``classes``         (K,)       optional; class names (strings)
 ``ids``             (N,)       optional; unique sample ids
 ``images``          (N, H, W)  optional; or (N, H, W, C)
@@ -25,7 +25,8 @@ order does not change the numbers. The ``label`` column holds class names
 order, which :func:`write_frame` stores in the file's key-value metadata under
 the key ``logitscope`` (JSON ``{"classes": [...]}``). A file with index labels
 and no stored class order is refused, as is a stored order that names other
-classes than the columns.
+classes than the columns. A null label marks a row without one (a partly
+labelled batch).
 """
 
 from __future__ import annotations
@@ -108,7 +109,10 @@ def write_frame(frame: LogitFrame, path: str | os.PathLike[str]) -> None:
     table = frame.meta
     data: dict[str, Any] = {"id": np.asarray(frame.ids)}
     if frame.labels is not None:
-        data["label"] = np.asarray(frame.classes, dtype=object)[np.asarray(frame.labels)]  # names: order-proof
+        y = np.asarray(frame.labels)
+        names = np.asarray(frame.classes, dtype=object)[np.maximum(y, 0)]  # names: order-proof
+        names[y < 0] = None  # a row without a label: a null
+        data["label"] = names
     z = np.asarray(frame.logits)
     for j, name in enumerate(frame.classes):
         data[f"logit:{name}"] = z[:, j]
@@ -284,7 +288,7 @@ def _read_parquet(source: Path) -> LogitFrame:
         if col.null_count:
             mask = np.asarray(pc.is_null(col))
             raise FileFormatError(f"{source}: column {c!r} has missing values (null) at {_rows_of(mask)}")
-    for c in ("id", "label", "text", "image_path"):
+    for c in ("id", "text", "image_path"):  # a null label is a row without a label (a partly labelled batch)
         if c in names and arrow.column(c).null_count:
             mask = np.asarray(pc.is_null(arrow.column(c)))
             raise FileFormatError(f"{source}: column {c!r} has missing values (null) at {_rows_of(mask)}")

@@ -580,7 +580,8 @@ class RelabelStore:
                 raise ParameterError(f"sample id {sid!r} is at row {found}, not row {int(row)}")
             row = found
             labels = self.frame.labels
-            given = None if labels is None else self.frame.classes[int(labels[found])]
+            # an unlabelled row (-1) has no given label: the mark gives it its first one
+            given = None if labels is None or labels[found] < 0 else self.frame.classes[int(labels[found])]
         else:
             given = self._label_name(given, "given label")
         suggested = self._label_name(spec.get("suggested_label"), "suggested label")

@@ -16,6 +16,7 @@ __all__ = ["SUMMARY_KEYS", "summarize"]
 #: Keys of a summary of a labelled frame, in print order.
 SUMMARY_KEYS = (
     "n_samples",
+    "n_labelled",
     "n_classes",
     "accuracy",
     "top_k_accuracy",
@@ -61,10 +62,11 @@ def summarize(
     Returns
     -------
     dict
-        ``n_samples, n_classes, mean_confidence, mean_entropy, temperature``
-        always; with labels also ``accuracy, top_k_accuracy`` (keyed by k as
-        a string), ``nll, brier, ece, mce, aurc``; ``fitted_temperature``
-        and ``threshold`` when asked.
+        ``n_samples, n_labelled, n_classes, mean_confidence, mean_entropy,
+        temperature`` always (the last three over every row); with labels
+        also ``accuracy, top_k_accuracy`` (keyed by k as a string), ``nll,
+        brier, ece, mce, aurc``, over the labelled rows only (``n_labelled``
+        of them); ``fitted_temperature`` and ``threshold`` when asked.
 
     Examples
     --------
@@ -83,7 +85,7 @@ def summarize(
         threshold_decision,
     )
 
-    out: dict[str, Any] = {"n_samples": frame.n_samples, "n_classes": frame.n_classes}
+    out: dict[str, Any] = {"n_samples": frame.n_samples, "n_labelled": frame.n_labelled, "n_classes": frame.n_classes}
     fit = None
     if fit_temperature:
         if not frame.has_labels:
@@ -109,13 +111,10 @@ def summarize(
             brier=c.brier,
             ece=c.ece,
             mce=c.mce,
-            mean_confidence=c.mean_confidence,
-            mean_entropy=c.mean_entropy,
             aurc=c.aurc,
         )
-    else:
-        p = prediction_summary(frame, t)
-        out.update(mean_confidence=p.mean_confidence, mean_entropy=p.mean_entropy)
+    p = prediction_summary(frame, t)  # what needs no labels covers every row, labelled or not
+    out.update(mean_confidence=p.mean_confidence, mean_entropy=p.mean_entropy)
     out["temperature"] = t
     if fit is not None:
         out["fitted_temperature"] = fit.temperature

@@ -42,6 +42,20 @@ def _rows(frame: LogitFrame, rows: Any) -> np.ndarray | None:
     return None if r.size == frame.n_samples else r
 
 
+def _label_rows(frame: LogitFrame, rows: Any, what: str) -> np.ndarray | None:
+    """The labelled rows among ``rows`` (None: every row, all labelled); a label-based finding uses only these."""
+    if not frame.has_labels:
+        raise LabelError(f"{what} needs labels; this frame has none (use with_labels)")
+    r = frame.labelled_rows(_rows(frame, rows))
+    if r is not None and r.size == 0:
+        raise LabelError(f"{what} needs labelled rows; none of the {_count(frame, rows):,} rows given has a label")
+    return r
+
+
+def _count(frame: LogitFrame, rows: Any) -> int:
+    return frame.n_samples if rows is None else int(as_rows(rows, frame.n_samples).size)
+
+
 def _take(a: np.ndarray, rows: np.ndarray | None) -> np.ndarray:
     return a if rows is None else a[rows]
 
@@ -111,7 +125,9 @@ def prediction_summary(frame: LogitFrame, temperature: float | None = None, rows
 class CalibrationSummary:
     """Calibration numbers of some rows of a frame at one temperature and one binning.
 
-    ``rows`` is None when the summary covers every row. ``bins.bin_of`` maps
+    ``rows`` is None when the summary covers every row. Only labelled rows
+    count: ``n`` is their number, ``n_unlabelled`` the number of rows asked
+    for that have no label (a partly labelled batch). ``bins.bin_of`` maps
     each covered row (in the order of ``rows``) to its bin. ``top_k`` maps k
     to top-k accuracy for the k of :func:`logitscope.analysis.default_ks`.
     """
@@ -130,6 +146,7 @@ class CalibrationSummary:
     mean_entropy: float
     bins: an.ReliabilityBins = field(repr=False)
     rows: np.ndarray | None = field(default=None, repr=False)
+    n_unlabelled: int = 0
 
     def bin_label(self, b: int) -> str:
         """Bin ``b`` named by its confidence range (``"0.80–0.87"``)."""
@@ -153,6 +170,7 @@ class CalibrationSummary:
         """The scalar numbers as a JSON-ready dict (top-k keyed by k as a string)."""
         return {
             "n": self.n,
+            "n_unlabelled": self.n_unlabelled,
             "temperature": self.temperature,
             "accuracy": self.accuracy,
             "top_k_accuracy": {str(k): v for k, v in self.top_k.items()},
@@ -195,11 +213,9 @@ def calibration_summary(
     >>> round(c.ece, 6), c.accuracy, c.bin_label(5)
     (0.1, 0.75, '0.50–0.60')
     """
-    if not frame.has_labels:
-        raise LabelError("calibration numbers need labels; this frame has none (use with_labels)")
+    r = _label_rows(frame, rows, "calibration numbers")
     t = frame.temperature if temperature is None else an.check_temperature(temperature)
     b = Binning() if binning is None else binning
-    r = _rows(frame, rows)
     s = frame.sample_scores(t)
     assert s.correct is not None and s.true_rank is not None
     assert s.true_log_probability is not None and s.brier is not None
@@ -221,19 +237,22 @@ def calibration_summary(
         mean_entropy=float(np.mean(_take(s.entropy, r))),
         bins=bins,
         rows=r,
+        n_unlabelled=_count(frame, rows) - int(conf.size),
     )
 
 
 @dataclass(frozen=True)
 class SelectionCount:
-    """How many rows a selection holds and how many of them are misclassified (None without labels)."""
+    """How many rows a selection holds, how many have labels, and how many of those are misclassified."""
 
     n: int
     n_wrong: int | None
+    n_labelled: int = 0
 
     @property
     def wrong_share(self) -> float | None:
-        return None if self.n_wrong is None or self.n == 0 else self.n_wrong / self.n
+        """Share of the labelled selected rows that are misclassified (None without labelled rows)."""
+        return None if self.n_wrong is None or self.n_labelled == 0 else self.n_wrong / self.n_labelled
 
 
 def count_selection(frame: LogitFrame, rows: Any, temperature: float | None = None) -> SelectionCount:
@@ -244,9 +263,13 @@ def count_selection(frame: LogitFrame, rows: Any, temperature: float | None = No
     >>> import numpy as np
     >>> from logitscope import LogitFrame
     >>> count_selection(LogitFrame(np.array([[2.0, 0.0], [0.0, 1.0]]), labels=[0, 0]), [0, 1])
-    SelectionCount(n=2, n_wrong=1)
+    SelectionCount(n=2, n_wrong=1, n_labelled=2)
     """
     r = as_rows(rows, frame.n_samples)
     s = frame.sample_scores(frame.temperature if temperature is None else an.check_temperature(temperature))
-    wrong = None if s.correct is None else int(r.size - np.count_nonzero(s.correct[r]))
-    return SelectionCount(int(r.size), wrong)
+    if s.correct is None:
+        return SelectionCount(int(r.size), None, 0)
+    labelled = frame.labelled_rows(r)
+    assert labelled is not None
+    wrong = int(labelled.size - np.count_nonzero(s.correct[labelled]))
+    return SelectionCount(int(r.size), wrong, int(labelled.size))

@@ -8,8 +8,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .. import analysis as an
-from ..errors import LabelError
-from .calibration import _rows, _take
+from .calibration import _label_rows, _take
 
 if TYPE_CHECKING:
     from ..frame import LogitFrame
@@ -67,10 +66,8 @@ def confusion_summary(
     >>> c.matrix.tolist(), [(p.true, p.other, p.count) for p in c.pairs]
     ([[1, 0, 0], [0, 1, 1], [0, 0, 0]], [(1, 2, 1)])
     """
-    if not frame.has_labels:
-        raise LabelError("a confusion matrix needs labels; this frame has none (use with_labels)")
+    r = _label_rows(frame, rows, "a confusion matrix")
     t = frame.temperature if temperature is None else an.check_temperature(temperature)
-    r = _rows(frame, rows)
     s = frame.sample_scores(t)
     assert frame.labels is not None
     y = _take(frame.labels, r)
@@ -79,7 +76,7 @@ def confusion_summary(
     if k == 1:
         top = matrix
     else:
-        z = frame.logits if r is None else frame.logits[r]
+        z = frame.logits if r is None else frame.logits[r]  # only labelled rows are copied
         with an.assume_valid():
             top = an.top_k_confusion(z, y, k)
     counts = np.bincount(y, minlength=kk)

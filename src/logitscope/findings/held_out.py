@@ -91,6 +91,11 @@ def held_out_check(
     fit_rows, held_rows = np.asarray(split.fit), np.asarray(split.held_out)
     if fit_rows.size == 0 or held_rows.size == 0:
         raise ParameterError("both parts of a split need at least one row")
+    # a partly labelled batch: each part is judged on its labelled rows
+    fit_rows = fit_rows[frame.labelled[fit_rows]]
+    held_rows = held_rows[frame.labelled[held_rows]]
+    if fit_rows.size == 0 or held_rows.size == 0:
+        raise LabelError("both parts of a split need labelled rows; one part has none")
     t_dec = frame.temperature if temperature is None else an.check_temperature(temperature)
     b = Binning() if binning is None else binning
     fitted = fitted_temperature(frame, fit_rows)

@@ -24,7 +24,8 @@ class ConfidenceHistogram:
     Bins are ``[edges[b], edges[b + 1])``, the last one closed (numpy's
     histogram rule). A confidence is never below ``1 / K``; one that rounding
     puts a hair below it counts in the first bin, so the counts sum to ``n``.
-    ``right`` and ``wrong`` split ``total`` when the frame has labels (None otherwise).
+    ``right`` and ``wrong`` count the labelled rows when the frame has labels (None otherwise); in a partly
+    labelled batch ``total - right - wrong`` are the unlabelled rows.
     """
 
     temperature: float
@@ -65,6 +66,7 @@ def confidence_histogram(
     right = wrong = None
     if s.correct is not None:
         ok = _take(s.correct, r)
+        known = _take(frame.labelled, r)
         right = np.histogram(conf[ok], edges)[0]
-        wrong = total - right
+        wrong = np.histogram(conf[known & ~ok], edges)[0]  # unlabelled rows are neither right nor wrong
     return ConfidenceHistogram(temperature=t, edges=edges, total=total, right=right, wrong=wrong, n=int(conf.size))

@@ -27,6 +27,7 @@ EPOCH_COLUMNS = (
     "update",
     "label",
     "n_samples",
+    "n_labelled",
     "accuracy",
     "nll",
     "ece",
@@ -43,6 +44,7 @@ class EpochRecord:
     update: int
     label: str
     n_samples: int
+    n_labelled: int
     accuracy: float | None
     nll: float | None
     ece: float | None
@@ -71,9 +73,9 @@ def epoch_record(
     name = f"update {update}" if label is None else str(label)
     if not frame.has_labels:
         p = prediction_summary(frame)
-        return EpochRecord(update, name, frame.n_samples, None, None, None, None, p.mean_confidence, when)
+        return EpochRecord(update, name, frame.n_samples, 0, None, None, None, None, p.mean_confidence, when)
     c = calibration_summary(frame, None, None, binning)
     fit = fitted_temperature(frame)
     return EpochRecord(
-        update, name, frame.n_samples, c.accuracy, c.nll, c.ece, fit.temperature, c.mean_confidence, when
+        update, name, frame.n_samples, c.n, c.accuracy, c.nll, c.ece, fit.temperature, c.mean_confidence, when
     )

@@ -66,12 +66,17 @@ def suspect_labels(
         raise LabelError("ranking doubtful labels needs labels; this frame has none (use with_labels)")
     t = frame.temperature if temperature is None else an.check_temperature(temperature)
     assert frame.labels is not None
+    keep = frame.labelled_rows()  # a partly labelled batch: only rows with a label can have a doubtful one
+    z = frame.logits if keep is None else frame.logits[keep]
+    y = frame.labels if keep is None else frame.labels[keep]
     with an.assume_valid():
-        ranking = an.rank_label_issues(frame.logits, frame.labels, method, temperature=t)  # type: ignore[arg-type]
+        ranking = an.rank_label_issues(z, y, method, temperature=t)  # type: ignore[arg-type]
     n_flagged = len(ranking)
     if top is not None:
         ranking = ranking.top(int(top))
     rows = np.asarray(ranking.index, dtype=np.int64)
+    if keep is not None:
+        rows = keep[rows]
     given = frame.labels[rows]
     with an.assume_valid():
         probs = an.softmax(np.asarray(frame.logits[rows]), temperature=t) if rows.size else np.zeros((0, 1))

@@ -10,8 +10,7 @@ from typing import TYPE_CHECKING, Any
 import numpy as np
 
 from .. import analysis as an
-from ..errors import LabelError
-from .calibration import _rows
+from .calibration import _label_rows
 from .choices import Binning
 
 if TYPE_CHECKING:
@@ -51,13 +50,10 @@ def fitted_temperature(frame: LogitFrame, rows: Any = None) -> an.TemperatureFit
     >>> round(fitted_temperature(LogitFrame(z, labels=[0, 0, 1, 1])).temperature, 3)
     3.641
     """
-    if not frame.has_labels:
-        raise LabelError("fitting a temperature needs labels; this frame has none (use with_labels)")
-    r = _rows(frame, rows)
-    assert frame.labels is not None
+    r = _label_rows(frame, rows, "fitting a temperature")
     with warnings.catch_warnings(), an.assume_valid():
         warnings.simplefilter("ignore", RuntimeWarning)  # a bound hit is carried in at_bound
-        return an.fit_temperature(frame.logits, frame.labels, rows=r)
+        return an.fit_temperature(frame.logits, frame._labels_for_analysis(), rows=r)
 
 
 @dataclass(frozen=True)
@@ -127,16 +123,13 @@ def sweep_finding(
     >>> bool(sw.temperature[sw.best("nll")] > 1.0), round(sw.fitted.temperature, 3)
     (True, 3.641)
     """
-    if not frame.has_labels:
-        raise LabelError("a temperature sweep needs labels; this frame has none (use with_labels)")
+    r = _label_rows(frame, rows, "a temperature sweep")
     b = Binning() if binning is None else binning
-    r = _rows(frame, rows)
     fit_ = fitted_temperature(frame, r) if fitted is None and fit else fitted
     extra = [] if fit_ is None else [fit_.temperature]
     g = sweep_grid([*marks, *extra]) if grid is None else np.sort(np.asarray(grid, dtype=np.float64))
-    assert frame.labels is not None
     with an.assume_valid():
-        sw = an.temperature_sweep(frame.logits, frame.labels, g, b.n_bins, b.strategy, rows=r)
+        sw = an.temperature_sweep(frame.logits, frame._labels_for_analysis(), g, b.n_bins, b.strategy, rows=r)
     return SweepFinding(
         temperature=sw.temperature,
         nll=sw.nll,

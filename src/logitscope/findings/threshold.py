@@ -17,8 +17,7 @@ import numpy as np
 import pandas as pd
 
 from .. import analysis as an
-from ..errors import LabelError
-from .calibration import _rows, _take
+from .calibration import _label_rows, _take
 from .choices import ThresholdRule
 
 if TYPE_CHECKING:
@@ -159,10 +158,8 @@ def threshold_decision(
     >>> round(d.threshold, 2), d.choice.coverage, d.choice.accuracy
     (0.6, 1.0, 0.8)
     """
-    if not frame.has_labels:
-        raise LabelError("a review threshold needs labels; this frame has none (use with_labels)")
+    r = _label_rows(frame, rows, "a review threshold")
     t = frame.temperature if temperature is None else an.check_temperature(temperature)
-    r = _rows(frame, rows)
     s = frame.sample_scores(t)
     assert s.correct is not None
     conf, ok, pred = _take(s.confidence, r), _take(s.correct, r), _take(s.predicted, r)

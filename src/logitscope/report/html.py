@@ -335,6 +335,7 @@ def build_report(
         written_iso=when.isoformat(timespec="seconds"),
         source=str(frame.source or ""),
         n_samples=frame.n_samples,
+        n_labelled=frame.n_labelled,
         n_classes=frame.n_classes,
         classes=frame.classes,
         caution=an.CAUTION,

@@ -106,7 +106,7 @@ class SampleCard(LinkedView, anywidget.AnyWidget):
         t = self.state.temperature
         s = frame.sample_scores(t)
         classes = frame.classes
-        label = None if frame.labels is None else int(frame.labels[row])
+        label = None if frame.labels is None or frame.labels[row] < 0 else int(frame.labels[row])
         pred = int(s.predicted[row])
         p = page_probabilities(frame, np.array([row]), t)[0]
         order = np.argsort(-p, kind="stable")

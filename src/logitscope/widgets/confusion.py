@@ -240,9 +240,10 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self.position_names = [names[i] for i in self.shown_classes]
         if self.has_other:
             self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
-        self._true_pos = self.position[self._labels]
+        known = self._labels >= 0  # unlabelled rows (a partly labelled batch) fall in no cell: position -1
+        self._true_pos = np.where(known, self.position[np.maximum(self._labels, 0)], -1)
         self._pred_pos = self.position[self._predicted]
-        self._cell = self._true_pos * n_pos + self._pred_pos
+        self._cell = np.where(known, self._true_pos * n_pos + self._pred_pos, -1)
 
     # ------------------------------------------------------------------ numbers
 
@@ -315,7 +316,8 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             self._note.value = ""
             return
         n = self.n_positions
-        cells = np.flatnonzero(np.bincount(self._cell[rows], minlength=n * n))
+        codes = self._cell[rows]
+        cells = np.flatnonzero(np.bincount(codes[codes >= 0], minlength=n * n))
         self._grid.selected = np.stack([cells // n, cells % n], axis=1).astype(np.int32)
         self._note.value = f"{rows.size:,} selected rows fall in {cells.size:,} cells"
 
@@ -356,7 +358,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
 
     def select_column(self, predicted: int | str | None) -> np.ndarray:
         """Select every sample predicted as ``predicted`` (None: the "other" classes)."""
-        return self.select(np.flatnonzero(self._pred_mask(predicted)))
+        return self.select(np.flatnonzero(self._pred_mask(predicted) & (self._true_pos >= 0)))
 
     def _true_mask(self, value: int | str | None) -> np.ndarray:
         if value is None:
@@ -416,7 +418,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         if which == "row":
             rows = np.flatnonzero(self._true_pos == r)
         else:
-            rows = np.flatnonzero(self._pred_pos == c)
+            rows = np.flatnonzero((self._pred_pos == c) & (self._true_pos >= 0))
         self.select(rows)
 
     # ------------------------------------------------------------------ hooks of the linked view

@@ -434,7 +434,8 @@ class Dashboard(LinkedView, widgets.VBox):
         text = f"{rows.size:,} of {n:,} samples selected{self.selected_by()}"
         count = count_selection(self.frame, rows, self.state.temperature)
         if count.n_wrong is not None and count.wrong_share is not None:
-            text += f"; {count.n_wrong:,} of them misclassified ({count.wrong_share:.0%})"
+            of = "them" if count.n_labelled == count.n else f"the {count.n_labelled:,} labelled"
+            text += f"; {count.n_wrong:,} of {of} misclassified ({count.wrong_share:.0%})"
         self._selection.value = text
         self._clear.disabled = False
 
@@ -443,6 +444,8 @@ class Dashboard(LinkedView, widgets.VBox):
         text = f"{f.n_samples:,} samples × {f.n_classes:,} classes"
         if f.has_labels:
             text += f", accuracy {calibration_summary(f, self.state.temperature).accuracy:.1%}"
+            if not f.fully_labelled:
+                text += f" on the {f.n_labelled:,} labelled rows"
         self._summary.value = text
         self._on_rows()
 

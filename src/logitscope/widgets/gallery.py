@@ -215,9 +215,9 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
             tile: dict[str, Any] = {
                 "row": r,
                 "id": str(frame.ids[r]),
-                "label": None if labels is None else classes[int(labels[r])],
+                "label": None if labels is None or labels[r] < 0 else classes[int(labels[r])],
                 "predicted": classes[pred],
-                "correct": None if labels is None else bool(int(labels[r]) == pred),
+                "correct": None if labels is None or labels[r] < 0 else bool(int(labels[r]) == pred),
                 "top": [[classes[int(j)], float(probs[i, j])] for j in top[i]],
                 "value": float(values[i]),
                 "png": None,

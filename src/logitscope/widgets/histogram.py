@@ -21,7 +21,7 @@ from ..errors import ParameterError
 from ..frame import LogitFrame
 from .base import LinkedView
 from .state import SharedState
-from .style import RIGHT, SELECTED, WRONG, css, score_menu
+from .style import RIGHT, SELECTED, UNLABELLED, WRONG, css, score_menu
 
 __all__ = ["ConfidenceHistogram", "QuietIntervalBrush"]
 
@@ -97,6 +97,8 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
         labelled = frame.has_labels
         series = ["correct", "wrong"] if labelled else ["all samples"]
         colors = [RIGHT, WRONG] if labelled else [RIGHT]
+        if labelled and not frame.fully_labelled:  # a partly labelled batch: the unlabelled rows apart
+            series, colors = [*series, "no label"], [*colors, UNLABELLED]
         self._bars = bq.Bars(
             x=np.zeros(1),
             y=np.zeros((len(series), 1)),
@@ -173,7 +175,10 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
             return [np.ones(self.frame.n_samples, dtype=bool)]
         correct = self.frame.sample_scores(self.state.temperature).correct
         assert correct is not None  # the frame has labels
-        return [correct, ~correct]
+        if self.frame.fully_labelled:
+            return [correct, ~correct]
+        known = self.frame.labelled
+        return [correct & known, ~correct & known, ~known]
 
     def counts(self, rows: np.ndarray | None = None) -> np.ndarray:
         """Counts per series and bin (shape ``(series, bins)``), of all rows or of ``rows``.
@@ -182,6 +187,7 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
         on both sides (as :func:`numpy.histogram`).
         """
         codes = self._codes if rows is None else self._codes[rows]
+        codes = codes[codes >= 0]  # rows without a value of this score (unlabelled rows' label scores)
         n_series = len(self._groups())
         return np.bincount(codes, minlength=n_series * self.n_bins).reshape(n_series, self.n_bins)
 
@@ -194,10 +200,10 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
         self.edges = np.histogram_bin_edges(finite, bins=self.n_bins, range=(lo, hi))
         # bin of every row, once per score and temperature; a selection then costs one bincount
         bins = np.clip(np.searchsorted(self.edges, v, side="right") - 1, 0, self.n_bins - 1)
-        series = (
-            np.zeros(v.shape[0], dtype=np.int64) if not self.frame.has_labels else (~self._groups()[0]).astype(np.int64)
-        )
-        self._codes = series * self.n_bins + bins
+        series = np.zeros(v.shape[0], dtype=np.int64)
+        for i, mask in enumerate(self._groups()):
+            series[mask] = i
+        self._codes = np.where(np.isfinite(v), series * self.n_bins + bins, -1)
         centres = (self.edges[:-1] + self.edges[1:]) / 2
         width = self.edges[1] - self.edges[0]
         with self.figure.hold_sync():

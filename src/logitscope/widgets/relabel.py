@@ -12,8 +12,8 @@ import numpy as np
 import pandas as pd
 import traitlets
 
-from .. import analysis as an
 from ..errors import ClassNameError, LabelError, LogitscopeError, ParameterError
+from ..findings import SuspectLabels, suspect_labels
 from ..frame import LogitFrame
 from ..relabel_store import RelabelStore, RelabelStoreWarning, default_path
 from ._assets import esm
@@ -122,7 +122,8 @@ class RelabelQueue(LinkedView, anywidget.AnyWidget):
         z = np.array(self.frame.logits[r], dtype=np.float64)
         labels = self.frame.labels
         if labels is not None:
-            z[np.arange(r.size), labels[r]] = -np.inf  # the argmax is the same at every temperature
+            known = labels[r] >= 0  # an unlabelled row's suggestion is simply its predicted class
+            z[np.flatnonzero(known), labels[r][known]] = -np.inf  # the argmax is the same at every temperature
         out = z.argmax(axis=1)
         for i, row in enumerate(r.tolist()):
             if row in self._suggestions:
@@ -332,8 +333,8 @@ class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
     ) -> None:
         self.link(frame, state)
         self.queue = queue
-        self.ranking: an.LabelIssueRanking | None = None
-        self._cache: dict[tuple[str, float], an.LabelIssueRanking] = {}
+        self.ranking: SuspectLabels | None = None
+        self._cache: dict[tuple[str, float], SuspectLabels] = {}
         super().__init__(method=method, n=n, enabled=frame.has_labels, **kwargs)
         self.status = (
             "choose a method and how many, then select"
@@ -354,16 +355,14 @@ class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
             raise ParameterError(f"n must be at least 1, got {proposal['value']}")
         return int(proposal["value"])
 
-    def rank(self) -> an.LabelIssueRanking:
-        """The full ranking for the current method at the shared temperature (cached)."""
+    def rank(self) -> SuspectLabels:
+        """The full ranking for the current method at the shared temperature (cached; labelled rows only)."""
         if self.frame.labels is None:
             raise LabelError("ranking label issues needs labels; this frame has none (use with_labels)")
         key = (self.method, float(self.state.temperature))
         hit = self._cache.get(key)
         if hit is None:
-            method: Any = self.method
-            with an.assume_valid():
-                hit = an.rank_label_issues(self.frame.logits, self.frame.labels, method=method, temperature=key[1])
+            hit = suspect_labels(self.frame, self.method, key[1])
             self._cache = {key: hit}
         return hit
 
@@ -373,10 +372,12 @@ class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
         top = ranking.top(self.n)
         self.ranking = top
         if self.queue is not None:
-            self.queue.set_suggestions(top.index, top.suggested)
-        self.select(top.index)
+            self.queue.set_suggestions(top.rows, top.suggested)
+        self.select(top.rows)
         flagged = (
-            f" of {len(ranking):,} flagged" if self.method == "confident_learning" else f" of {len(ranking):,} ranked"
+            f" of {ranking.n_flagged:,} flagged"
+            if self.method == "confident_learning"
+            else f" of {ranking.n_flagged:,} ranked"
         )
         t = self.state.temperature
         self.status = f"selected {len(top):,}{flagged} ({self.method.replace('_', ' ')}, T = {t:.3g})"

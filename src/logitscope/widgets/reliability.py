@@ -319,7 +319,7 @@ class ReliabilityDiagram(LinkedView, widgets.VBox):
         n = self.finding.bins.count.size
         if not 0 <= int(b) < n:
             raise ParameterError(f"bin must lie in [0, {n}), got {b}")
-        return self.rows[self.finding.bins.bin_of == int(b)]
+        return self.finding.rows_of_bin(int(b))
 
     def select_bin(self, b: int | None) -> np.ndarray:
         """Select the samples of bin ``b`` (None: clear this view's selection); return the selected rows."""
@@ -359,7 +359,8 @@ class ReliabilityDiagram(LinkedView, widgets.VBox):
                 self.note.value = f"{rows.size:,} samples with confidence {f.bin_label(self.selected_bin)} selected"
             return
         # the share of each bin that the other view selected, drawn in the count strip
-        mine_mask = np.isin(self.rows, rows, assume_unique=True)
+        covered = np.arange(self.frame.n_samples) if f.rows is None else f.rows  # the labelled rows drawn
+        mine_mask = np.isin(covered, rows, assume_unique=True)
         per_bin = np.bincount(f.bins.bin_of[mine_mask], minlength=f.bins.count.size)[self._drawn_bins]
         lo, hi = f.bins.lower[self._drawn_bins], f.bins.upper[self._drawn_bins]
         pad = (hi - lo) * _PAD

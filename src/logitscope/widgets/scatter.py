@@ -33,7 +33,7 @@ from ..errors import ParameterError
 from ..frame import LogitFrame
 from .base import LinkedView
 from .state import SharedState
-from .style import CLASS_COLORS, RIGHT, SELECTED, WRONG, css, score_menu
+from .style import CLASS_COLORS, RIGHT, SELECTED, UNLABELLED, WRONG, css, score_menu
 
 __all__ = [
     "FADED",
@@ -435,15 +435,19 @@ class ScoreScatter(LinkedView, widgets.VBox):
             # wrong samples drawn last, over the (usually many more) right ones
             correct = self.frame.sample_scores(self.state.temperature).correct
             assert correct is not None  # this colour mode is offered only when the frame has labels
-            self._groups = (~correct).astype(np.int64)
-            self._palette = [RIGHT, WRONG]
+            # unlabelled rows first (drawn under the others), wrong samples last, over the (usually many more) right
+            self._groups = np.where(self.frame.labelled, 1 + (~correct).astype(np.int64), 0)
+            self._palette = [UNLABELLED, RIGHT, WRONG]
             key = [(RIGHT, "correct"), (WRONG, "wrong")]
         else:
             cls = np.asarray(self.frame.labels if field == "label" else self.frame.sample_scores().predicted)
-            self._groups = cls.astype(np.int64) % len(CLASS_COLORS)
-            self._palette = list(CLASS_COLORS)
+            # group 0 holds the unlabelled rows (true-class mode of a partly labelled batch), then the classes
+            self._groups = np.where(cls >= 0, 1 + cls.astype(np.int64) % len(CLASS_COLORS), 0)
+            self._palette = [UNLABELLED, *CLASS_COLORS]
             names = self.frame.classes
             key = [(CLASS_COLORS[i], names[i]) for i in range(len(names))] if len(names) <= len(CLASS_COLORS) else []
+        if self.frame.has_labels and not self.frame.fully_labelled and field != "predicted":
+            key.append((UNLABELLED, "no label"))
         self._base = None
         swatch = "<span class='ls-swatch' style='background:{}'></span>{}"
         # class names are user data: escaped before they reach HTML
