@@ -840,7 +840,9 @@ def summarize_chunked(
     count and sum, one more for the area under the risk-coverage curve and one
     more for a threshold's value.
     """
-    out: dict[str, Any] = {"n_samples": cf.n_samples, "n_classes": cf.n_classes}
+    # a chunked store is fully labelled or not labelled at all (a null or negative label is refused)
+    n_labelled = cf.n_samples if cf.has_labels else 0
+    out: dict[str, Any] = {"n_samples": cf.n_samples, "n_labelled": n_labelled, "n_classes": cf.n_classes}
     fit = None
     if fit_temperature:
         fit = _fit(cf)
