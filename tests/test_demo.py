@@ -370,9 +370,10 @@ def test_demo_then_the_notebook_checks_pass(tmp_path: Path) -> None:
     assert any(c.get("outputs") for c in saved.cells if c.cell_type == "code")
     assert _git(repo, "status", "--porcelain").stdout.split() == ["M", "example_notebooks/mailroom_digits.ipynb"]
 
-    checks = _notebook_checks(repo)
+    # the suite's notebook checks that read the saved file (running the notebooks is another test's job)
+    checks = _notebook_checks(repo, "-k", "stripped")
     assert checks.returncode == 0, checks.stdout[-5000:]
-    assert "4 passed" in checks.stdout
+    assert "2 passed" in checks.stdout
 
     # staged, the outputs are what git would commit: now the stripped check must fail, naming them
     _git(repo, "add", "example_notebooks/mailroom_digits.ipynb")
