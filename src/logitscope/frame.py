@@ -624,7 +624,11 @@ class LogitFrame:
         return self.n_samples
 
     def __repr__(self) -> str:
-        lab = "labelled" if self.has_labels else "unlabelled"
+        lab = (
+            "labelled"
+            if self.fully_labelled
+            else (f"{self.n_labelled:,} of {self.n_samples:,} labelled" if self.has_labels else "unlabelled")
+        )
         pay = f", {self._payload.kind}" if self._payload else ""
         return (
             f"<LogitFrame {self.n_samples} samples x {self.n_classes} classes, {self._logits.dtype}, "
