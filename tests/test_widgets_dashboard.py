@@ -48,7 +48,7 @@ def test_explore_builds_every_view_on_one_state(dash, mailroom, tmp_path):
     kinds = [ScoreScatter, ConfidenceHistogram, ConfusionHeatmap, SampleGallery, SampleCard, TemperatureDial]
     for view, kind in zip(views, [*kinds, RelabelQueue], strict=True):
         assert isinstance(view, kind) and view.state is dash.state and view.frame is mailroom
-    assert dash.issues.queue is dash.queue
+    assert dash.doubtful.queue is dash.queue
     assert dash.queue.path == str((tmp_path / "marks.json").resolve())
     assert [dash.tabs.get_title(i) for i in range(2)] == ["Explore", "Calibrate and decide"]
     # every explore view sits in the first tab

@@ -67,7 +67,7 @@ def suspect_labels(
     t = frame.temperature if temperature is None else an.check_temperature(temperature)
     assert frame.labels is not None
     with an.assume_valid():
-        ranking = an.rank_label_issues(frame.logits, frame.labels, method, temperature=t)  # type: ignore[arg-type]
+        ranking = an.rank_doubtful_labels(frame.logits, frame.labels, method, temperature=t)  # type: ignore[arg-type]
     n_flagged = len(ranking)
     if top is not None:
         ranking = ranking.top(int(top))

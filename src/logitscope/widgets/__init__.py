@@ -8,7 +8,7 @@ from .dashboard import Dashboard
 from .dial import TemperatureDial
 from .gallery import SampleGallery
 from .histogram import ConfidenceHistogram
-from .relabel import LabelIssuePicker, RelabelQueue
+from .relabel import DoubtfulLabelPicker, RelabelQueue
 from .reliability import ReliabilityDiagram
 from .scatter import ScoreScatter
 from .state import SharedState, as_rows
@@ -21,7 +21,7 @@ __all__ = [
     "ConfidenceHistogram",
     "ConfusionHeatmap",
     "Dashboard",
-    "LabelIssuePicker",
+    "DoubtfulLabelPicker",
     "RelabelQueue",
     "ReliabilityDiagram",
     "SampleCard",

@@ -2,7 +2,7 @@
 
 "Explore" holds the score scatter, the confidence histogram, the confusion
 heat map, the sample gallery and card, the temperature dial, the relabel
-queue and the label-issue picker. "Calibrate and decide" holds the
+queue and the doubtful-label picker. "Calibrate and decide" holds the
 calibration panel; it is built the first time the tab is opened (or
 :attr:`Dashboard.calibration` is read), so the first view appears sooner.
 "History" plots the set-level numbers of every frame the dashboard has shown.
@@ -36,7 +36,7 @@ from .dial import TemperatureDial
 from .gallery import SampleGallery
 from .histogram import ConfidenceHistogram
 from .history import EpochHistoryView
-from .relabel import LabelIssuePicker, RelabelQueue
+from .relabel import DoubtfulLabelPicker, RelabelQueue
 from .scatter import ScoreScatter
 from .state import SharedState
 
@@ -120,7 +120,7 @@ class Dashboard(LinkedView, widgets.VBox):
         self.card = SampleCard(frame, st)
         self.dial = TemperatureDial(frame, st)
         self.queue = RelabelQueue(frame, st, path=relabel_path)
-        self.issues = LabelIssuePicker(frame, st, queue=self.queue)
+        self.doubtful = DoubtfulLabelPicker(frame, st, queue=self.queue)
         self._calibration: CalibrationPanel | None = None
 
         self._summary = widgets.Label()
@@ -143,7 +143,7 @@ class Dashboard(LinkedView, widgets.VBox):
         )
         row2 = _row(_panel("Samples", self.gallery, flex="1 1 100%"))
         side = widgets.VBox(
-            [_panel("Relabel queue", self.queue), _panel("Label-issue candidates", self.issues)],
+            [_panel("Relabel queue", self.queue), _panel("Doubtful labels", self.doubtful)],
             layout=widgets.Layout(flex="1 1 380px", min_width="340px"),
         )
         row3 = _row(_panel("Confusion matrix", self.confusion, flex="1.4 1 640px"), side)
@@ -177,7 +177,7 @@ class Dashboard(LinkedView, widgets.VBox):
     def views(self) -> list[LinkedView]:
         """Every linked view of the dashboard (the calibration panel's once it is built), panel last."""
         out: list[LinkedView] = [
-            self.histogram, self.confusion, self.scatter, self.gallery, self.card, self.dial, self.queue, self.issues
+            self.histogram, self.confusion, self.scatter, self.gallery, self.card, self.dial, self.queue, self.doubtful
         ]  # fmt: skip
         if self._calibration is not None:
             c = self._calibration
