@@ -97,7 +97,7 @@ def test_a_brush_updates_the_other_views(dash, mailroom):
     np.testing.assert_array_equal(dash.selected, expected)
     assert dash.state.origin_name == "histogram"
     assert dash.gallery.n_shown == expected.size
-    assert dash.confusion._note.value.startswith(f"{expected.size:,} selected rows")
+    assert f"{expected.size:,} selected rows fall in" in dash.confusion._note.value
 
 
 def test_confusion_click_selects_the_cell_samples(dash, mailroom):

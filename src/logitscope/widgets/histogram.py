@@ -118,7 +118,7 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
             opacities=[1.0] * len(series),
             visible=False,
         )
-        self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none")
+        self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none", num_ticks=6)
         self._ay = bq.Axis(scale=self._sy, side="left", label="samples", grid_lines="none", tick_format="~s")
         self._brush = QuietIntervalBrush(scale=self._sx, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected"])

@@ -321,8 +321,8 @@ class ScoreScatter(LinkedView, widgets.VBox):
             stroke_width=2.0,
             visible=False,
         )
-        self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none")
-        self._ay = bq.Axis(scale=self._sy, label=y, side="left", grid_lines="none")
+        self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none", num_ticks=6)
+        self._ay = bq.Axis(scale=self._sy, label=y, side="left", grid_lines="none", num_ticks=6)
         self._brush = QuietBrush(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected_x", "selected_y"])
         self._probe: bq.Lines | None = None

@@ -13,6 +13,7 @@ from ..palette import CLASS_COLORS, INK, MUTED, OVER, REFERENCE, RIGHT, SELECTED
 
 __all__ = [
     "CLASS_COLORS",
+    "ENERGY",
     "INK",
     "LABEL_SCORES",
     "MUTED",

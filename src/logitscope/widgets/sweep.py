@@ -14,7 +14,6 @@ should also lower the other part's NLL.
 from __future__ import annotations
 
 import html
-import math
 from typing import Any
 
 import bqplot as bq
@@ -25,6 +24,8 @@ import traitlets
 from ..errors import ParameterError
 from ..findings import CalibrationSummary, SweepFinding, calibration_summary, sweep_finding, sweep_grid
 from ..frame import LogitFrame
+from ..parameters import RANGES
+from ..parameters import check as check_parameter
 from ..rows import rows_or_all
 from ..ticks import nice_ticks
 from .base import LinkedView
@@ -154,9 +155,11 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                 display_toolbar=False,
                 layout=widgets.Layout(width="300px", height="240px"),
             )  # fmt: skip
+        # the slider spans the accepted temperature range: any value the API takes can be set and shown
+        t_lo, t_hi, t_step = RANGES["temperature"].control_bounds()
         self.slider = widgets.FloatLogSlider(
-            value=1.0, base=10, min=-1.0, max=1.0, step=0.005, description="T", continuous_update=False,
-            readout_format=".3f", style={"description_width": "20px"}, layout={"width": "340px"},
+            value=1.0, base=10, min=t_lo, max=t_hi, step=t_step, description="T", continuous_update=False,
+            readout_format=".4g", style={"description_width": "20px"}, layout={"width": "340px"},
         )  # fmt: skip
         self.fit_button = widgets.Button(
             description="use fitted T",
@@ -242,8 +245,6 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
             else sweep_finding(self.frame, self._part(self.compare_rows), b, grid=grid, fit=False)
         )
         lo, hi = float(grid.min()), float(grid.max())
-        with self.quietly():
-            self.slider.min, self.slider.max = math.log10(lo), math.log10(hi)
         for key, _, _ in _METRICS:
             values = [getattr(first, key)] + (
                 [] if self.compare_finding is None else [getattr(self.compare_finding, key)]
@@ -276,10 +277,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
 
     def set_temperature(self, temperature: float) -> None:
         """Write the shared temperature (as dragging the dot or moving the slider does)."""
-        t = float(temperature)
-        if not math.isfinite(t) or t <= 0:
-            raise ParameterError(f"temperature must be positive and finite, got {temperature!r}")
-        self.state.temperature = t
+        self.state.temperature = float(check_parameter(temperature, "temperature"))
 
     def use_fitted(self) -> float:
         """Set the shared temperature to the fitted one; return it."""
@@ -303,7 +301,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                 self.marker.x, self.marker.y = [t], [now.nll]
             with self.marker_label.hold_sync():
                 self.marker_label.x, self.marker_label.y, self.marker_label.text = [t], [now.nll], [f"T {t:.3f}"]
-            self.slider.value = min(max(t, 10**self.slider.min), 10**self.slider.max)
+            self.slider.value = t
         for key, _, _ in _METRICS:
             sc = self._scales[key]
             y0, y1 = sc.min, sc.max
