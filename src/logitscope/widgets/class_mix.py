@@ -32,7 +32,7 @@ from ..parameters import check as check_parameter
 from ..text import shorten
 from .base import LinkedView
 from .state import SharedState
-from .style import REFERENCE, SELECTED, css
+from .style import REFERENCE, SELECTED, css, figure_layout
 
 __all__ = ["ClassMixView"]
 
@@ -143,7 +143,7 @@ class ClassMixView(LinkedView, widgets.VBox):
         self.figure = bq.Figure(
             marks=[self.bars, self.estimate_dots, self.selection_dots], axes=[self._ax_x, ax_y],
             fig_margin={"top": 14, "bottom": bottom, "left": 60, "right": 10}, display_toolbar=False,
-            layout=widgets.Layout(width="100%", height="340px", min_width="320px"),
+            layout=figure_layout("100%", "340px", "320px"),
         )  # fmt: skip
         self.readout = widgets.HTML()
         self.note = widgets.HTML()

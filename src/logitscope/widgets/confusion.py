@@ -33,7 +33,7 @@ from ..parameters import check as check_parameter
 from ..text import shorten
 from .base import LinkedView
 from .state import SharedState
-from .style import INK, MUTED, SELECTED, css
+from .style import INK, MUTED, SELECTED, css, figure_layout
 
 __all__ = ["ConfusionHeatmap", "short_label"]
 
@@ -183,7 +183,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             axes=[self._ax_col, self._ax_row],
             padding_x=0.0,
             padding_y=0.0,
-            layout=widgets.Layout(width="100%", height="430px", min_width="300px"),
+            layout=figure_layout("100%", "430px", "300px"),
         )
         self._place_ticks()
 
@@ -260,7 +260,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         # about 330 px of plot width at the narrowest layout: rotate when the names would run into each other
         rotate = char_px * longest + 6 > 330 / n_pos
         left = int(min(46 + char_px * longest, 230))
-        bottom = int(min(48 + 0.72 * char_px * longest, 210)) if rotate else 46
+        bottom = int(min(50 + 0.64 * char_px * longest, 210)) if rotate else 46
         with self.figure.hold_sync():
             self._ax_col.tick_labels = ticks
             self._ax_row.tick_labels = ticks

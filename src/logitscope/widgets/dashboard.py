@@ -152,9 +152,9 @@ class Dashboard(LinkedView, widgets.VBox):
             _panel("Confidence histogram", self.histogram, flex="1 1 300px", min_width="280px"),
         )
         row2 = _row(
-            _panel(None, self.gallery, flex="1 1 420px", min_width="310px"),
+            _panel(None, self.gallery, flex="1 1 330px", min_width="310px"),
             # the card's own stylesheet asks for at least 360 px plus its padding
-            _panel("Sample card", self.card, flex="0 0 400px", min_width="380px"),
+            _panel("Sample card", self.card, flex="0 0 380px", min_width="380px"),
         )
         side = widgets.VBox(
             [_panel(None, self.queue), _panel(None, self.doubtful)],

@@ -30,7 +30,7 @@ from ..rows import rows_or_all
 from ..ticks import nice_ticks
 from .base import LinkedView
 from .state import SharedState
-from .style import INK, SELECTED, css
+from .style import MARK, SELECTED, css, figure_layout
 
 __all__ = ["MAX_SELECTION_SWEEP", "TemperatureSweepView"]
 
@@ -115,7 +115,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                 visible=False, labels=[f"{label}, held out"],
             )  # fmt: skip
             rules = bq.Lines(
-                x=np.ones((2, 2)), y=np.zeros((2, 2)), scales=sc, colors=[_FITTED, INK], stroke_width=1.4,
+                x=np.ones((2, 2)), y=np.zeros((2, 2)), scales=sc, colors=[_FITTED, MARK], stroke_width=1.4,
                 line_style="dashed",
             )  # fmt: skip
             marks: list[bq.Mark] = [rules, comp, curve]
@@ -126,13 +126,13 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                     line_style="dash_dotted", visible=False, labels=["NLL, selection"],
                 )  # fmt: skip
                 self.marker = bq.Scatter(
-                    x=[1.0], y=[0.0], scales=sc, colors=[INK], default_size=90, enable_move=True, restrict_x=True,
+                    x=[1.0], y=[0.0], scales=sc, colors=[MARK], default_size=90, enable_move=True, restrict_x=True,
                     update_on_move=False, stroke="white", stroke_width=1.5,
                 )  # fmt: skip
                 # the dot's temperature as a label beside it, set from Python after every move (a tooltip
                 # would keep the value of the first draw)
                 self.marker_label = bq.Label(
-                    x=[1.0], y=[0.0], text=["T 1.000"], scales=sc, default_size=11, colors=[INK], x_offset=8,
+                    x=[1.0], y=[0.0], text=["T 1.000"], scales=sc, default_size=11, colors=[MARK], x_offset=8,
                     y_offset=-8, font_weight="bold",
                 )  # fmt: skip
                 self.marker.on_drag_end(self._on_drag_end)
@@ -141,7 +141,10 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
             self.figures[key] = bq.Figure(
                 marks=marks,
                 axes=[
-                    bq.Axis(scale=self._sx, label="temperature T", tick_format=".2~f", grid_lines="none"),
+                    bq.Axis(
+                        scale=self._sx, label="temperature T", tick_format=".2~f", grid_lines="none",
+                        label_offset="32px",
+                    ),
                     bq.Axis(
                         scale=self._scales[key], side="left", label=label, tick_format=".3~f", grid_lines="dashed",
                         label_offset="42px",
@@ -149,11 +152,11 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                 ],
                 title=f"{label} against temperature" + (" (drag the dot)" if key == "nll" else ""),
                 title_style={"font-size": "12.5px"},
-                fig_margin={"top": 30, "bottom": 44, "left": 58, "right": 12},
+                fig_margin={"top": 30, "bottom": 48, "left": 58, "right": 12},
                 padding_x=0.0,
                 padding_y=0.0,
                 display_toolbar=False,
-                layout=widgets.Layout(width="300px", height="240px"),
+                layout=figure_layout("256px", "240px"),
             )  # fmt: skip
         # the slider spans the accepted temperature range: any value the API takes can be set and shown
         t_lo, t_hi, t_step = RANGES["temperature"].control_bounds()
@@ -264,7 +267,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
         dashed = "" if self.compare_rows is None else f"; dashed: the {self.compare_rows.size:,} held-out rows"
         self.note.value = (
             f"{css('views')}<span class='ls-note'>Fitted on {html.escape(part_name)}: T = {fit.temperature:.4f} "
-            f"(red rule); black rule and dot: the current T{dashed}; dash-dotted: NLL of the selected samples. "
+            f"(red rule); grey rule and dot: the current T{dashed}; dash-dotted: NLL of the selected samples. "
             f"ECE with {html.escape(b.describe())}.{bound}</span>"
         )
         ticks = nice_ticks(lo, hi, log=True)

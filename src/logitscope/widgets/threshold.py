@@ -37,9 +37,10 @@ from ..parameters import RANGES
 from ..parameters import check as check_parameter
 from ..rows import rows_or_all
 from ..text import shorten
+from ..ticks import nice_ticks
 from .base import LinkedView
 from .state import SharedState
-from .style import SELECTED, css
+from .style import SELECTED, css, figure_layout
 
 __all__ = ["MODES", "ThresholdPicker"]
 
@@ -153,7 +154,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
         self._ax = bq.Axis(scale=self._sx, label="coverage (share accepted without review)", tick_format=".1f")
         self._ay = bq.Axis(
             scale=self._sy, side="left", label="accuracy of accepted", tick_format=".3~f", grid_lines="dashed",
-            label_offset="50px",
+            label_offset="54px",
         )  # fmt: skip
         self.brush = BrushIntervalSelector(scale=self._sx, marks=[], color=SELECTED)
         self.brush.observe(self._on_brush, ["brushing", "selected"])
@@ -165,7 +166,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
             title_style={"font-size": "12.5px"},
             fig_margin={"top": 30, "bottom": 42, "left": 70, "right": 14},
             display_toolbar=False,
-            layout=widgets.Layout(width="460px", height="320px", flex="0 0 auto"),
+            layout=figure_layout("420px", "320px"),
         )
         # every control takes its bounds from the parameter's accepted range: nothing the API accepts is clamped
         t_lo, t_hi, t_step = RANGES["threshold"].control_bounds()
@@ -209,7 +210,10 @@ class ThresholdPicker(LinkedView, widgets.VBox):
         )
         self.note = widgets.HTML()
         self.error = widgets.HTML()
-        side = widgets.VBox([self.readout, self.caution], layout={"margin": "24px 0 0 8px", "width": "380px"})
+        # a fixed width: the readout stays beside the chart (or, on a narrow page, below it) in every mode
+        side = widgets.VBox(
+            [self.readout, self.caution], layout={"margin": "24px 0 0 8px", "width": "340px", "flex": "0 0 340px"}
+        )
         widgets.VBox.__init__(
             self,
             children=[
@@ -218,7 +222,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
                 self._cost_box,
                 self.error,
                 widgets.HBox([self.slider, widgets.Label("curve:"), self._y_kind], layout={"align_items": "center"}),
-                widgets.HBox([self.figure, side], layout={"flex_flow": "row nowrap", "align_items": "flex-start"}),
+                widgets.HBox([self.figure, side], layout={"flex_flow": "row wrap", "align_items": "flex-start"}),
                 self.note,
                 self.class_table,
             ],
@@ -333,6 +337,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
         cy = c.accuracy if acc_mode else 1.0 - c.accuracy
         with self.figure.hold_sync():
             self._sy.min, self._sy.max = y0, y1
+            self._ay.tick_values = np.asarray(nice_ticks(y0, y1, n=5))  # few round ticks: none under the title
             self._ay.label = "accuracy of accepted" if acc_mode else "risk (error rate) of accepted"
             self.figure.title = (
                 "Accuracy of accepted predictions" if acc_mode else "Risk of accepted predictions"
