@@ -34,6 +34,7 @@ from .card import SampleCard
 from .confusion import ConfusionHeatmap
 from .dial import TemperatureDial
 from .gallery import SampleGallery
+from .gate import ShownWhenVisible
 from .histogram import ConfidenceHistogram
 from .history import EpochHistoryView
 from .relabel import DoubtfulLabelPicker, RelabelQueue
@@ -173,9 +174,11 @@ class Dashboard(LinkedView, widgets.VBox):
         self.tabs = widgets.Tab(children=self._tab_holders, titles=list(TAB_TITLES))
         self._attach_tab(0)
         self.tabs.observe(self._on_tab, "selected_index")
-        widgets.VBox.__init__(
-            self, children=[header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"), **kwargs
+        # drawn by the browser only once the dashboard is on screen (see ShownWhenVisible)
+        self.gate = ShownWhenVisible(
+            widgets.VBox([header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"))
         )
+        widgets.VBox.__init__(self, children=[self.gate], layout=widgets.Layout(width="100%"), **kwargs)
         self.add_class("logitscope-dashboard")
         self._on_temperature()
 

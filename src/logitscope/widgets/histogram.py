@@ -119,8 +119,10 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
             opacities=[1.0] * len(series),
             visible=False,
         )
-        self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none", tick_format="~g")
-        self._ay = bq.Axis(scale=self._sy, side="left", label="samples", grid_lines="none", tick_format="~s")
+        self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none", tick_format="~g", label_offset="34px")
+        self._ay = bq.Axis(
+            scale=self._sy, side="left", label="samples", grid_lines="none", tick_format="~s", label_offset="42px"
+        )
         self._brush = QuietIntervalBrush(scale=self._sx, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected"])
         self.figure = bq.Figure(
@@ -128,7 +130,7 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
             marks=[self._bars, self._sel_bars],
             axes=[self._ax, self._ay],
             interaction=self._brush,
-            fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
+            fig_margin={"top": 10, "bottom": 48, "left": 58, "right": 12},
             layout=figure_layout("100%", "330px", "260px"),
         )
         self._menu = widgets.Dropdown(

@@ -324,8 +324,10 @@ class ScoreScatter(LinkedView, widgets.VBox):
             stroke_width=2.0,
             visible=False,
         )
-        self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none", tick_format="~g")
-        self._ay = bq.Axis(scale=self._sy, label=y, side="left", grid_lines="none", tick_format="~g")
+        self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none", tick_format="~g", label_offset="34px")
+        self._ay = bq.Axis(
+            scale=self._sy, label=y, side="left", grid_lines="none", tick_format="~g", label_offset="42px"
+        )
         self._brush = QuietBrush(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected_x", "selected_y"])
         self._probe: bq.Lines | None = None
@@ -335,7 +337,7 @@ class ScoreScatter(LinkedView, widgets.VBox):
             marks=[self._mark, self._top_mark, self._focus_mark],
             axes=[self._ax, self._ay],
             interaction=self._brush,
-            fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
+            fig_margin={"top": 10, "bottom": 48, "left": 58, "right": 12},
             padding_x=0.0,
             padding_y=0.0,
             layout=figure_layout("100%", "360px", "320px"),

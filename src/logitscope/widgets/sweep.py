@@ -150,7 +150,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                         label_offset="42px",
                     ),
                 ],
-                title=f"{label} against temperature" + (" (drag the dot)" if key == "nll" else ""),
+                title=f"{label} against T" + (" (drag the dot)" if key == "nll" else ""),
                 title_style={"font-size": "12.5px"},
                 fig_margin={"top": 30, "bottom": 48, "left": 58, "right": 12},
                 padding_x=0.0,
