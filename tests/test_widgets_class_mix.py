@@ -91,9 +91,13 @@ def test_a_bar_click_selects_the_class_rows_and_the_gallery_shows_them(mailroom,
     assert view.bars.selected == [7]  # the bars stay marked while the selection is the view's
     assert gallery.scope == f"{expected.size} selected (class mix)"
     assert sorted(gallery.page_rows.tolist()) == expected.tolist()
-    # a second click on the same bars clears the selection
+    # a Ctrl-click on the same bars (bqplot sends no selection) clears it; so does the clear button
     view.bars.selected = None
-    assert state.rows.size == 0 and view.selected_class is None
+    assert state.rows.size == 0 and view.selected_class is None and view.clear_button.disabled
+    view.select_class(1)
+    assert not view.clear_button.disabled
+    view.clear_button.click()
+    assert state.rows.size == 0 and gallery.scope == "all 600 samples"
 
 
 def test_a_selection_elsewhere_shows_as_class_shares(mailroom, shifted_batch):

@@ -308,7 +308,10 @@ def test_no_console_errors_after_a_reload_with_hidden_tabs(
             "() => document.querySelectorAll('.logitscope-dashboard').length > 0", timeout=120_000
         )  # views built while hidden
         tab.click()
-        cell(page, 0).locator(".logitscope-threshold .bqplot").first.wait_for(state="visible", timeout=120_000)
+        ready = cell(page, 0).locator(".logitscope-threshold .bqplot").first
+        ready.wait_for(state="attached", timeout=120_000)
+        ready.scroll_into_view_if_needed()
+        ready.wait_for(state="visible", timeout=120_000)
     else:
         _wait_dashboard(page)
     _settle(page)
@@ -367,8 +370,8 @@ def test_a_class_mix_click_selects_its_rows_in_the_gallery(jupyter_server, noteb
     assert (scope.text_content() or "").strip() == f"{len(got['sevens'])} selected (class mix)"
     assert out.locator(".lsg-tile").count() == min(8, len(got["sevens"]))
     assert all((t or "").strip() == "seven" for t in out.locator(".lsg-pred").all_text_contents())
-    # the bars stay marked while the selection is the view's; a second click clears it
-    out.locator(".logitscope-class-mix .bargroup").nth(7).locator(".bar").last.click()
+    # the bars stay marked while the selection is the view's; a Ctrl-click on them clears it
+    out.locator(".logitscope-class-mix .bargroup").nth(7).locator(".bar").last.click(modifiers=["Control"])
     page.wait_for_function("(el) => el.textContent.startsWith('all 600')", arg=scope.element_handle())
     assert _kernel_json(page, 1)["selected"] == []
     assert browser_log.errors() == []

@@ -12,8 +12,8 @@ temperature.
 
 Like every linked view it follows the shared state: clicking a class's bars
 selects the batch's rows counted for that class (the gallery then shows
-them), clicking them again clears that selection, and a selection made in
-another view is drawn as the class shares of the selected rows.
+them), Ctrl-clicking them (or the "clear" button) clears that selection, and
+a selection made in another view is drawn as the class shares of the selected rows.
 """
 
 from __future__ import annotations
@@ -147,6 +147,10 @@ class ClassMixView(LinkedView, widgets.VBox):
         )  # fmt: skip
         self.readout = widgets.HTML()
         self.note = widgets.HTML()
+        self.clear_button = widgets.Button(
+            description="clear", tooltip="clear the class selection", disabled=True, layout={"width": "auto"}
+        )
+        self.clear_button.on_click(lambda _: self.select_class(None))
         swatch = "<span class='ls-swatch' style='background:{}'></span>{}"
         key = "".join(
             swatch.format(c, t)
@@ -161,7 +165,8 @@ class ClassMixView(LinkedView, widgets.VBox):
             css("views") + f"<div class='ls-subhead'>Class mix</div><span class='ls-key'>{key}"
             " · click a class's bars to select its rows</span>"
         )
-        widgets.VBox.__init__(self, children=[title, self.figure, self.note, self.readout], **kwargs)
+        note_row = widgets.HBox([self.note, self.clear_button], layout={"align_items": "center"})
+        widgets.VBox.__init__(self, children=[title, self.figure, note_row, self.readout], **kwargs)
         self.add_class("logitscope-class-mix")
         self.bars.observe(self._on_bar_click, "selected")
         self._draw()
@@ -262,6 +267,7 @@ class ClassMixView(LinkedView, widgets.VBox):
     def _show_selection(self) -> None:
         rows = self.state.rows
         mine = self.owns_selection and self.selected_class is not None
+        self.clear_button.disabled = not mine
         with self.quietly():
             self.bars.selected = [self.selected_class] if mine else None
         if rows.size == 0 or mine:
@@ -284,7 +290,7 @@ class ClassMixView(LinkedView, widgets.VBox):
         return (
             css("views") + f"<span class='ls-note'>{rows.size:,} batch rows {what} "
             f"<span title='{html.escape(full)}'>{html.escape(shorten(full, 40))}</span> selected "
-            "(click the bars again to clear)</span>"
+            "(Ctrl-click the bars or press clear to clear)</span>"
         )
 
     # ------------------------------------------------------------------ hooks of the linked view
