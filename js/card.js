@@ -1,9 +1,11 @@
-// SampleCard: the focused sample, large. Data strings go through textContent only.
+// SampleCard: the focused sample, large. Data strings go through textContent only; long names and ids are
+// cut in the middle for display, with the full text in the title attribute (shown on hover).
 
 const CSS = `
 .lsc-root { font-family: var(--jp-ui-font-family, system-ui, sans-serif); font-size: 12px;
   color: var(--jp-ui-font-color1, #1f2328); border: 1px solid var(--jp-border-color2, #dde1e5);
-  border-radius: 8px; padding: 10px 12px; background: var(--jp-layout-color1, #fff); min-width: 400px; }
+  border-radius: 8px; padding: 10px 12px; background: var(--jp-layout-color1, #fff); min-width: 360px;
+  box-sizing: border-box; overflow: auto; }
 .lsc-empty { color: var(--jp-ui-font-color2, #59636e); padding: 8px 2px; }
 .lsc-body { display: flex; flex-wrap: wrap; gap: 14px; align-items: flex-start; }
 .lsc-view { flex: 0 0 auto; display: flex; align-items: center; justify-content: center;
@@ -13,7 +15,7 @@ const CSS = `
   overflow-wrap: anywhere; line-height: 1.45; font-size: 12.5px; background: var(--jp-layout-color2, #f3f4f6);
   border-radius: 6px; padding: 8px 10px; }
 .lsc-missing { color: var(--jp-ui-font-color2, #59636e); padding: 10px; max-width: 240px; overflow-wrap: anywhere; }
-.lsc-info { flex: 1 1 280px; min-width: 240px; display: flex; flex-direction: column; gap: 8px; }
+.lsc-info { flex: 1 1 200px; min-width: 200px; display: flex; flex-direction: column; gap: 8px; }
 .lsc-id { font-family: var(--jp-code-font-family, ui-monospace, monospace); font-size: 13px; font-weight: 600;
   overflow-wrap: anywhere; }
 .lsc-verdict { display: flex; flex-wrap: wrap; gap: 6px 14px; font-size: 12.5px; }
@@ -21,7 +23,7 @@ const CSS = `
 .lsc-val { font-weight: 600; overflow-wrap: anywhere; }
 .lsc-right { color: var(--jp-success-color1, #1a7f37); font-weight: 600; }
 .lsc-wrong { color: var(--jp-error-color1, #cf222e); font-weight: 600; }
-.lsc-scores { display: grid; grid-template-columns: repeat(auto-fill, minmax(112px, 1fr)); gap: 4px 10px; }
+.lsc-scores { display: grid; grid-template-columns: repeat(auto-fill, minmax(96px, 1fr)); gap: 4px 10px; }
 .lsc-score { display: flex; flex-direction: column; }
 .lsc-score .lsc-num { font-variant-numeric: tabular-nums; font-size: 13px; }
 .lsc-h { font-weight: 600; font-size: 11px; text-transform: uppercase; letter-spacing: 0.04em;
@@ -46,6 +48,27 @@ function make(tag, cls, text) {
   if (text !== undefined && text !== null) node.textContent = String(text);
   return node;
 }
+
+// At most `max` characters, cut in the middle with an ellipsis (as logitscope.text.shorten does).
+function short(text, max) {
+  const s = String(text);
+  if (s.length <= max) return s;
+  const keep = max - 1;
+  const head = Math.ceil(keep / 2);
+  const tail = keep - head;
+  return s.slice(0, head) + "…" + (tail ? s.slice(s.length - tail) : "");
+}
+
+// A node showing `text` cut to `max` characters; the full text is its title when cut.
+function named(tag, cls, text, max) {
+  const full = text === null || text === undefined ? "" : String(text);
+  const node = make(tag, cls, short(full, max));
+  if (full.length > max) node.title = full;
+  return node;
+}
+
+// Longest text shown in the card; a longer one ends with a note of what was left out.
+const MAX_TEXT = 20000;
 
 function num(v) {
   if (v === null || v === undefined) return "";
@@ -91,19 +114,22 @@ function render({ model, el }) {
       view.appendChild(make("div", "lsc-missing", s.error));
       body.appendChild(view);
     } else if (s.text !== null && s.text !== undefined) {
-      body.appendChild(make("div", "lsc-text", s.text));
+      const text = String(s.text);
+      const more = text.length - MAX_TEXT;
+      const shown = more > 0 ? `${text.slice(0, MAX_TEXT)} … (${more} more characters)` : text;
+      body.appendChild(make("div", "lsc-text", shown));
     }
 
     const info = make("div", "lsc-info");
-    info.appendChild(make("div", "lsc-id", s.id));
+    info.appendChild(named("div", "lsc-id", s.id, 80));
     const verdict = make("div", "lsc-verdict");
     if (s.label !== null && s.label !== undefined) {
       const l = make("span");
-      l.append(make("span", "lsc-key", "label "), make("span", "lsc-val lsc-label", s.label));
+      l.append(make("span", "lsc-key", "label "), named("span", "lsc-val lsc-label", s.label, 48));
       verdict.appendChild(l);
     }
     const p = make("span");
-    p.append(make("span", "lsc-key", "predicted "), make("span", "lsc-val lsc-pred", s.predicted));
+    p.append(make("span", "lsc-key", "predicted "), named("span", "lsc-val lsc-pred", s.predicted, 48));
     if (s.correct === true) p.appendChild(make("span", "lsc-right", " ✓ right"));
     if (s.correct === false) p.appendChild(make("span", "lsc-wrong", " ✗ wrong"));
     verdict.appendChild(p);
@@ -124,8 +150,8 @@ function render({ model, el }) {
     );
     const bars = make("div", "lsc-bars");
     for (const [name, prob, isLabel] of s.probabilities) {
-      const n = make("span", "lsc-bname", name);
-      n.title = name;
+      const n = make("span", "lsc-bname", short(name, 60));
+      n.title = name; // the column cuts long names; the full name on hover
       const bar = make("div", "lsc-bar");
       const fill = make("div", "lsc-fill");
       fill.style.width = `${Math.max(0, Math.min(100, 100 * prob)).toFixed(2)}%`;
@@ -139,14 +165,16 @@ function render({ model, el }) {
     info.appendChild(bars);
     if (s.label_outside) {
       const [name, prob, rank] = s.label_outside;
-      info.appendChild(make("div", "lsc-note", `given label ${name}: ${pct(prob)}, rank ${rank} of ${s.n_classes}`));
+      const note = make("div", "lsc-note", `given label ${short(name, 60)}: ${pct(prob)}, rank ${rank} of ${s.n_classes}`);
+      note.title = name;
+      info.appendChild(note);
     }
     if (s.meta.length) {
       info.appendChild(make("div", "lsc-h", "metadata"));
       const table = make("table", "lsc-meta");
       for (const [k, v] of s.meta) {
         const tr = make("tr");
-        tr.append(make("td", null, k), make("td", null, v));
+        tr.append(named("td", null, k, 40), named("td", null, v, 200));
         table.appendChild(tr);
       }
       info.appendChild(table);

@@ -1,5 +1,6 @@
 // SampleGallery: one page of sample tiles (thumbnail or text snippet, id, label, prediction, top-3 bars).
 // Every string that comes from the data is set with textContent; the only markup we build is our own.
+// Long names and ids are cut in the middle for display, with the full text in the title attribute (on hover).
 
 const CSS = `
 .lsg-root { font-family: var(--jp-ui-font-family, system-ui, sans-serif); font-size: 12px;
@@ -37,10 +38,11 @@ const CSS = `
 .lsg-key { color: var(--jp-ui-font-color2, #59636e); }
 .lsg-mark-wrong { color: var(--jp-error-color1, #cf222e); font-weight: 600; }
 .lsg-mark-right { color: var(--jp-success-color1, #1a7f37); font-weight: 600; }
-.lsg-bars { display: grid; grid-template-columns: minmax(0, 1fr) 52px 34px; align-items: center;
-  column-gap: 4px; row-gap: 2px; font-size: 11px; }
-.lsg-bname { white-space: nowrap; overflow: hidden; text-overflow: ellipsis; }
-.lsg-bar { height: 7px; background: var(--jp-layout-color3, #e3e6ea); border-radius: 3px; overflow: hidden; }
+.lsg-bars { display: grid; grid-template-columns: minmax(0, 1fr) max-content; align-items: baseline;
+  column-gap: 4px; row-gap: 0; font-size: 11px; }
+.lsg-bname { white-space: nowrap; overflow: hidden; text-overflow: ellipsis; min-width: 0; }
+.lsg-bar { grid-column: 1 / -1; height: 5px; margin: 1px 0 3px; background: var(--jp-layout-color3, #e3e6ea);
+  border-radius: 3px; overflow: hidden; }
 .lsg-fill { height: 100%; background: var(--jp-brand-color1, #1f6fd1); border-radius: 3px; }
 .lsg-fill.lsg-is-label { background: var(--jp-success-color1, #1a7f37); }
 .lsg-pct { text-align: right; font-variant-numeric: tabular-nums; color: var(--jp-ui-font-color2, #59636e); }
@@ -48,11 +50,31 @@ const CSS = `
 .lsg-empty { padding: 16px; color: var(--jp-ui-font-color2, #59636e); }
 `;
 
+// How the sort menu names the score columns (the column name with spaces where not listed).
+const SORT_NAMES = {
+  true_probability: "label probability",
+  true_log_probability: "label log-probability",
+  true_rank: "label rank",
+  brier: "Brier score",
+  correct: "right / wrong",
+  row: "row (frame order)",
+};
+
 function make(tag, cls, text) {
   const node = document.createElement(tag);
   if (cls) node.className = cls;
   if (text !== undefined && text !== null) node.textContent = String(text);
   return node;
+}
+
+// At most `max` characters, cut in the middle with an ellipsis (as logitscope.text.shorten does).
+function short(text, max) {
+  const s = String(text);
+  if (s.length <= max) return s;
+  const keep = max - 1;
+  const head = Math.ceil(keep / 2);
+  const tail = keep - head;
+  return s.slice(0, head) + "…" + (tail ? s.slice(s.length - tail) : "");
 }
 
 function pct(p) {
@@ -99,7 +121,7 @@ function render({ model, el }) {
     const current = model.get("sort_by");
     if (sortSel.options.length !== cols.length || [...sortSel.options].some((o, i) => o.value !== cols[i])) {
       sortSel.replaceChildren(...cols.map((c) => {
-        const o = make("option", null, c.replace(/_/g, " "));
+        const o = make("option", null, SORT_NAMES[c] || c.replace(/_/g, " "));
         o.value = c;
         return o;
       }));
@@ -123,14 +145,15 @@ function render({ model, el }) {
   function bars(top, labelName) {
     const box = make("div", "lsg-bars");
     for (const [name, p] of top) {
-      const n = make("span", "lsg-bname", name);
+      // the name and its share on one line, the bar below across the tile: long names keep their room
+      const n = make("span", "lsg-bname", short(name, 60));
       n.title = name;
       const bar = make("div", "lsg-bar");
       const fill = make("div", "lsg-fill");
       if (name === labelName) fill.classList.add("lsg-is-label");
       fill.style.width = `${Math.max(0, Math.min(100, 100 * p)).toFixed(1)}%`;
       bar.appendChild(fill);
-      box.append(n, bar, make("span", "lsg-pct", pct(p)));
+      box.append(n, make("span", "lsg-pct", pct(p)), bar);
     }
     return box;
   }
@@ -159,25 +182,26 @@ function render({ model, el }) {
     } else if (t.text !== null && t.text !== undefined) {
       node.appendChild(make("div", "lsg-text", t.text));
     }
-    const id = make("div", "lsg-id", t.id);
+    const id = make("div", "lsg-id", short(t.id, 60));
     id.title = t.id;
     node.appendChild(id);
     const labels = make("div", "lsg-labels");
     if (t.label !== null && t.label !== undefined) {
       const line = make("div", "lsg-line");
-      line.append(make("span", "lsg-key", "label "), make("span", "lsg-label", t.label));
+      line.append(make("span", "lsg-key", "label "), make("span", "lsg-label", short(t.label, 60)));
       line.title = t.label;
       labels.appendChild(line);
     }
     const pl = make("div", "lsg-line");
-    pl.append(make("span", "lsg-key", "predicted "), make("span", "lsg-pred", t.predicted));
+    pl.append(make("span", "lsg-key", "predicted "), make("span", "lsg-pred", short(t.predicted, 60)));
     if (t.correct === true) pl.appendChild(make("span", "lsg-mark-right", " ✓"));
     if (t.correct === false) pl.appendChild(make("span", "lsg-mark-wrong", " ✗"));
     pl.title = t.predicted;
     labels.appendChild(pl);
     node.appendChild(labels);
     node.appendChild(bars(t.top, t.label));
-    node.appendChild(make("div", "lsg-value", `${model.get("sort_by").replace(/_/g, " ")} ${fmt(t.value)}`));
+    const key = model.get("sort_by");
+    node.appendChild(make("div", "lsg-value", `${SORT_NAMES[key] || key.replace(/_/g, " ")} ${fmt(t.value)}`));
     const pick = () => {
       model.set("focus", t.row);
       model.save_changes();

@@ -1,4 +1,4 @@
-// RelabelQueue and LabelIssuePicker (one module; the model's `_kind` says which to draw).
+// RelabelQueue and DoubtfulLabelPicker (one module; the model's `_kind` says which to draw).
 // Data strings (ids, class names, notes, paths) are set with textContent only.
 
 const CSS = `
@@ -45,6 +45,24 @@ function make(tag, cls, text) {
   return node;
 }
 
+// At most `max` characters, cut in the middle with an ellipsis (as logitscope.text.shorten does).
+function short(text, max) {
+  const s = String(text);
+  if (s.length <= max) return s;
+  const keep = max - 1;
+  const head = Math.ceil(keep / 2);
+  const tail = keep - head;
+  return s.slice(0, head) + "…" + (tail ? s.slice(s.length - tail) : "");
+}
+
+// A node showing `text` cut to `max` characters; the full text is its title when cut.
+function named(tag, cls, text, max) {
+  const full = text === null || text === undefined ? "" : String(text);
+  const node = make(tag, cls, short(full, max));
+  if (full.length > max) node.title = full;
+  return node;
+}
+
 function option(value, text) {
   const o = make("option", null, text);
   o.value = value;
@@ -85,7 +103,7 @@ function renderQueue({ model, el }) {
   function drawHead() {
     const n = model.get("n_marks");
     count.textContent = `${n} mark${n === 1 ? "" : "s"}`;
-    path.textContent = `saved to ${model.get("path")}`;
+    path.textContent = `saved to ${short(model.get("path"), 160)}`;
     path.title = model.get("path");
     status.textContent = model.get("status");
   }
@@ -95,14 +113,19 @@ function renderQueue({ model, el }) {
     markSel.textContent = `selection (${k})`;
     markSel.disabled = k === 0;
     const fid = model.get("focus_id");
-    markFocus.textContent = fid ? `focused: ${fid}` : "focused sample";
+    markFocus.textContent = fid ? `focused: ${short(fid, 32)}` : "focused sample";
+    markFocus.title = fid;
     markFocus.disabled = !fid;
     const classes = model.get("classes");
     const keep = suggested.value;
     const def = model.get("focus_default");
-    const defText = def ? `model's suggestion (focused: ${def})` : "model's suggestion";
+    const defText = def ? `model's suggestion (focused: ${short(def, 40)})` : "model's suggestion";
     if (suggested.options.length !== classes.length + 1) {
-      suggested.replaceChildren(option("", defText), ...classes.map((c) => option(c, c)));
+      suggested.replaceChildren(option("", defText), ...classes.map((c) => {
+        const o = option(c, short(c, 60));
+        o.title = c;
+        return o;
+      }));
     } else {
       suggested.options[0].textContent = defText;
     }
@@ -127,9 +150,9 @@ function renderQueue({ model, el }) {
     for (const m of items) {
       const tr = make("tr");
       const idCell = make("td", "lsr-id");
-      const idText = make("span", m.row !== null && m.row !== undefined ? "lsr-link" : null, m.id_text);
+      const idText = named("span", m.row !== null && m.row !== undefined ? "lsr-link" : null, m.id_text, 32);
       if (m.row !== null && m.row !== undefined) {
-        idText.title = "show in the sample card";
+        idText.title = `${m.id_text}: show in the sample card`;
         idText.addEventListener("click", () => model.send({ action: "focus", row: m.row }));
       }
       idCell.appendChild(idText);
@@ -139,9 +162,9 @@ function renderQueue({ model, el }) {
       rmCell.appendChild(rm);
       tr.append(
         idCell,
-        make("td", "lsr-given", m.given_label),
-        make("td", "lsr-sugg", m.suggested_label),
-        make("td", "lsr-notecell", m.note),
+        named("td", "lsr-given", m.given_label, 32),
+        named("td", "lsr-sugg", m.suggested_label, 32),
+        named("td", "lsr-notecell", m.note, 400),
         make("td", "lsr-time", m.marked_at),
         rmCell,
       );
@@ -176,21 +199,23 @@ function renderPicker({ model, el }) {
   const method = make("select", "lsr-method");
   const n = make("input", "lsr-n");
   n.type = "number";
-  n.min = "1";
   n.step = "1";
-  const go = make("button", "lsr-primary lsr-pick", "Select candidates");
-  row.append(make("span", "lsr-title", "Label issues"), make("span", "lsr-key", "method"), method,
-    make("span", "lsr-key", "top"), n, go);
+  const go = make("button", "lsr-primary lsr-pick", "Select the most doubtful");
+  row.append(make("span", "lsr-title", "Doubtful labels"), make("span", "lsr-key", "method"), method,
+    make("span", "lsr-key", "how many"), n, go);
   const status = make("div", "lsr-status");
   el.append(row, status);
 
   function draw() {
     const methods = model.get("methods");
     if (method.options.length !== methods.length) {
-      method.replaceChildren(...methods.map((m) => option(m, m.replace(/_/g, " "))));
+      method.replaceChildren(...methods.map(([value, text]) => option(value, text)));
     }
     method.value = model.get("method");
-    if (document.activeElement !== n) n.value = String(model.get("n"));
+    // the box's bounds are the parameter's accepted range; a value outside it is refused by Python, not clamped
+    n.min = String(model.get("n_min"));
+    n.max = String(model.get("n_max"));
+    n.value = String(model.get("n"));
     const enabled = model.get("enabled");
     method.disabled = !enabled;
     n.disabled = !enabled;
@@ -202,14 +227,9 @@ function renderPicker({ model, el }) {
     model.set("method", method.value);
     model.save_changes();
   });
-  n.addEventListener("change", () => {
-    const v = Math.max(1, Math.floor(Number(n.value) || 1));
-    n.value = String(v);
-    model.set("n", v);
-    model.save_changes();
-  });
+  n.addEventListener("change", () => model.send({ action: "n", value: n.value }));
   go.addEventListener("click", () => model.send({ action: "pick" }));
-  const names = ["methods", "method", "n", "enabled", "status"];
+  const names = ["methods", "method", "n", "n_min", "n_max", "enabled", "status"];
   for (const name of names) model.on(`change:${name}`, draw);
   draw();
   return () => {

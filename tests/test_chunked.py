@@ -282,11 +282,11 @@ def test_counts_bins_and_scores_equal_the_in_memory_ones(digits_frame, tmp_path)
         np.testing.assert_allclose(np.asarray(getattr(lazy, name)), value, rtol=RTOL, atol=1e-15, err_msg=name)
 
 
-@pytest.mark.parametrize("method", ["confident_learning", "self_confidence", "normalized_margin"])
-def test_label_issue_candidates_merged_across_chunks(digits_frame, tmp_path, method):
+@pytest.mark.parametrize("method", ["confident_learning", "given_probability", "label_margin"])
+def test_doubtful_label_candidates_merged_across_chunks(digits_frame, tmp_path, method):
     cf = _store(digits_frame, tmp_path, chunk_rows=90)
-    ref = an.rank_label_issues(digits_frame.logits, digits_frame.labels, method=method).top(40)
-    got = ck.rank_label_issues(cf, method=method, top=40)
+    ref = an.rank_doubtful_labels(digits_frame.logits, digits_frame.labels, method=method).top(40)
+    got = ck.rank_doubtful_labels(cf, method=method, top=40)
     np.testing.assert_array_equal(got.index, ref.index)
     np.testing.assert_allclose(got.score, ref.score, rtol=RTOL)
     np.testing.assert_array_equal(got.suggested, ref.suggested)
@@ -384,5 +384,6 @@ def test_sub_blocks_inside_a_chunk_give_the_same_numbers(tied_frame, tmp_path, m
     assert_summary_equal(
         cf.summary(target_accuracy=0.7), with_chunked_aurc(tied_frame, tied_frame.summary(target_accuracy=0.7))
     )
-    got = ck.rank_label_issues(cf, top=30)
-    np.testing.assert_array_equal(got.index, an.rank_label_issues(tied_frame.logits, tied_frame.labels).top(30).index)
+    got = ck.rank_doubtful_labels(cf, top=30)
+    ref = an.rank_doubtful_labels(tied_frame.logits, tied_frame.labels).top(30)
+    np.testing.assert_array_equal(got.index, ref.index)

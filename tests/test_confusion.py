@@ -6,7 +6,7 @@ import numpy as np
 import pytest
 from sklearn.metrics import confusion_matrix as sk_confusion_matrix
 
-from logitscope.analysis import confusion_matrix, most_confused_pairs, normalize_rows, top_k_confusion
+from logitscope.analysis import confusion_matrix, largest_confusions, normalize_rows, top_k_confusion
 from logitscope.errors import LabelError, ParameterError, ShapeError
 
 
@@ -54,10 +54,10 @@ def test_top_k_confusion_float32(make_logits):
     np.testing.assert_array_equal(top_k_confusion(z, y, k=2), _top_k_loop(z, y, 2))
 
 
-def test_most_confused_pairs_against_sorting(make_logits):
+def test_largest_confusions_against_sorting(make_logits):
     z, y = make_logits(n=900, k=7, scale=1.0)
     m = confusion_matrix(y, z.argmax(axis=1), 7)
-    pairs = most_confused_pairs(m, n=10)
+    pairs = largest_confusions(m, n=10)
     # reference: every off-diagonal cell sorted by count descending, then by (true, other)
     cells = sorted(
         ((-int(m[i, j]), i, j) for i in range(7) for j in range(7) if i != j and m[i, j] > 0),
@@ -68,7 +68,7 @@ def test_most_confused_pairs_against_sorting(make_logits):
     # with a top-k matrix the rate divides by the class size, not the row sum
     tk = top_k_confusion(z, y, k=3)
     sizes = np.bincount(y, minlength=7)
-    for p in most_confused_pairs(tk, n=5, class_counts=sizes):
+    for p in largest_confusions(tk, n=5, class_counts=sizes):
         assert p.rate == pytest.approx(tk[p.true, p.other] / sizes[p.true])
         assert 0 < p.rate <= 1
 
@@ -83,6 +83,6 @@ def test_confusion_input_errors():
     with pytest.raises(ParameterError, match=r"k must lie in \[1, 3\]"):
         top_k_confusion(np.zeros((2, 3)), [0, 1], k=4)
     with pytest.raises(ShapeError, match="must be square"):
-        most_confused_pairs(np.zeros((2, 3)))
+        largest_confusions(np.zeros((2, 3)))
     with pytest.raises(ShapeError, match="must be 2-D"):
         normalize_rows([1, 2, 3])

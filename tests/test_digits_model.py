@@ -14,7 +14,7 @@ from scipy import optimize, special, stats
 from sklearn.metrics import accuracy_score, log_loss, top_k_accuracy_score
 
 from logitscope import LogitFrame, load_demo
-from logitscope.analysis import rank_label_issues
+from logitscope.analysis import rank_doubtful_labels
 
 
 @pytest.fixture(scope="module")
@@ -91,21 +91,21 @@ def test_threshold_on_the_digits(digits):
     assert 0.0 < s["threshold"]["coverage"] < 1.0
 
 
-def test_mailroom_label_issues_find_the_flips():
+def test_mailroom_doubtful_labels_find_the_flips():
     f = load_demo("mailroom")
     flipped = f.meta["was_flipped"].to_numpy()
     before = f.meta["keyed_before_flip"].to_numpy()
     n_flips = int(flipped.sum())
     assert n_flips > 0
     # confident learning flags few samples, and most of them are flips; most flips are flagged
-    cl = rank_label_issues(f.logits, f.labels, method="confident_learning")
+    cl = rank_doubtful_labels(f.logits, f.labels, method="confident_learning")
     hits = int(flipped[cl.index].sum())
     assert hits >= 0.6 * n_flips and hits >= 0.8 * len(cl)
     # where a flagged sample is a flip, the suggested label is the digit keyed before the flip
     m = flipped[cl.index]
     assert np.mean(cl.suggested[m] == before[cl.index][m]) >= 0.9
     # ranking every sample: most flips are among the first n_flips, all of them well inside the first 2 x n_flips
-    for method in ("self_confidence", "normalized_margin"):
-        r = rank_label_issues(f.logits, f.labels, method=method)
+    for method in ("given_probability", "label_margin"):
+        r = rank_doubtful_labels(f.logits, f.labels, method=method)
         assert flipped[r.index[:n_flips]].sum() >= 0.75 * n_flips, method
         assert flipped[r.index[: 2 * n_flips]].sum() >= 0.95 * n_flips, method

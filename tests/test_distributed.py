@@ -58,7 +58,7 @@ def test_summary_on_the_cluster_equals_the_in_memory_one(cluster, store, monkeyp
         got = cf.summary(fit_temperature=True, target_accuracy=0.95)
         plain = cf.summary(temperature=0.8)
         cm = ck.confusion_matrix(cf)
-        issues = ck.rank_label_issues(cf, top=25)
+        issues = ck.rank_doubtful_labels(cf, top=25)
     assert ck.active_client() is None
     assert_summary_equal(got, fitted_reference(frame, got, target_accuracy=0.95))
     assert_summary_equal(plain, frame.summary(temperature=0.8))
@@ -66,7 +66,7 @@ def test_summary_on_the_cluster_equals_the_in_memory_one(cluster, store, monkeyp
     np.testing.assert_array_equal(cm, np.bincount(frame.labels * 10 + s.predicted, minlength=100).reshape(10, 10))
     from logitscope import analysis as an
 
-    np.testing.assert_array_equal(issues.index, an.rank_label_issues(frame.logits, frame.labels).top(25).index)
+    np.testing.assert_array_equal(issues.index, an.rank_doubtful_labels(frame.logits, frame.labels).top(25).index)
 
 
 def test_cli_sends_the_work_to_the_cluster_and_leaves_it_running(cluster, store, capsys, monkeypatch):

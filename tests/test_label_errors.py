@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from scipy import special
 
-from logitscope.analysis import confident_joint, per_class_thresholds_cl, rank_label_issues
+from logitscope.analysis import confident_joint, mean_given_probability, rank_doubtful_labels
 from logitscope.errors import LabelError, ParameterError
 
 
@@ -54,20 +54,20 @@ def test_against_the_papers_definitions(make_logits, backend, t):
     p = special.softmax(z / t, axis=1)  # scipy.special.softmax
     thresholds, joint, assigned, self_conf, margin, best_other = _reference(p, y)
 
-    np.testing.assert_allclose(per_class_thresholds_cl(z, y, temperature=t), thresholds, rtol=1e-12)
+    np.testing.assert_allclose(mean_given_probability(z, y, temperature=t), thresholds, rtol=1e-12)
     np.testing.assert_array_equal(confident_joint(z, y, temperature=t), joint)
 
-    r = rank_label_issues(z, y, method="self_confidence", temperature=t)
+    r = rank_doubtful_labels(z, y, method="given_probability", temperature=t)
     np.testing.assert_array_equal(r.index, np.argsort(self_conf, kind="stable"))
     np.testing.assert_allclose(r.score, self_conf[r.index], rtol=1e-12)
     np.testing.assert_array_equal(r.suggested, best_other[r.index])
 
-    r = rank_label_issues(z, y, method="normalized_margin", temperature=t)
+    r = rank_doubtful_labels(z, y, method="label_margin", temperature=t)
     np.testing.assert_array_equal(r.index, np.argsort(margin, kind="stable"))
     np.testing.assert_allclose(r.score, margin[r.index], rtol=1e-10, atol=1e-14)
     np.testing.assert_array_equal(r.suggested, best_other[r.index])
 
-    r = rank_label_issues(z, y, method="confident_learning", temperature=t)
+    r = rank_doubtful_labels(z, y, method="confident_learning", temperature=t)
     flagged = np.flatnonzero((assigned >= 0) & (assigned != y))  # off-diagonal of the confident joint
     assert len(r) == flagged.size == joint.sum() - np.trace(joint)
     np.testing.assert_array_equal(r.index, flagged[np.argsort(margin[flagged], kind="stable")])
@@ -77,8 +77,8 @@ def test_against_the_papers_definitions(make_logits, backend, t):
 
 def test_planted_label_errors_rank_first(make_logits):
     z, y, flipped = _noisy_problem(make_logits, flips=30)
-    for method in ("confident_learning", "self_confidence", "normalized_margin"):
-        top = rank_label_issues(z, y, method=method).top(30)
+    for method in ("confident_learning", "given_probability", "label_margin"):
+        top = rank_doubtful_labels(z, y, method=method).top(30)
         assert top.method == method
         # the model is right on the true labels (logit bonus 4), so the flips stand out; confident
         # learning returns only the flagged samples, the other two rank every sample
@@ -90,17 +90,17 @@ def test_planted_label_errors_rank_first(make_logits):
 def test_absent_class_gets_no_threshold(rng):
     z = rng.normal(size=(60, 4))
     y = rng.integers(0, 3, 60)  # class 3 never given as a label
-    thr = per_class_thresholds_cl(z, y)
+    thr = mean_given_probability(z, y)
     assert np.isnan(thr[3]) and np.all(np.isfinite(thr[:3]))
     joint = confident_joint(z, y)
     assert joint[:, 3].sum() == 0 and joint[3].sum() == 0
-    r = rank_label_issues(z, y)
+    r = rank_doubtful_labels(z, y)
     assert not np.any(r.suggested == 3)
 
 
 def test_label_errors_input_errors(rng):
     z = rng.normal(size=(10, 3))
     with pytest.raises(ParameterError, match="method must be"):
-        rank_label_issues(z, np.zeros(10, int), method="votes")
+        rank_doubtful_labels(z, np.zeros(10, int), method="votes")
     with pytest.raises(LabelError, match="out of range"):
         confident_joint(z, np.full(10, 3))

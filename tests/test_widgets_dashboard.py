@@ -48,7 +48,7 @@ def test_explore_builds_every_view_on_one_state(dash, mailroom, tmp_path):
     kinds = [ScoreScatter, ConfidenceHistogram, ConfusionHeatmap, SampleGallery, SampleCard, TemperatureDial]
     for view, kind in zip(views, [*kinds, RelabelQueue], strict=True):
         assert isinstance(view, kind) and view.state is dash.state and view.frame is mailroom
-    assert dash.issues.queue is dash.queue
+    assert dash.doubtful.queue is dash.queue
     assert dash.queue.path == str((tmp_path / "marks.json").resolve())
     assert [dash.tabs.get_title(i) for i in range(2)] == ["Explore", "Calibrate and decide"]
     # every explore view sits in the first tab
@@ -97,7 +97,7 @@ def test_a_brush_updates_the_other_views(dash, mailroom):
     np.testing.assert_array_equal(dash.selected, expected)
     assert dash.state.origin_name == "histogram"
     assert dash.gallery.n_shown == expected.size
-    assert dash.confusion._note.value.startswith(f"{expected.size:,} selected rows")
+    assert f"{expected.size:,} selected rows fall in" in dash.confusion._note.value
 
 
 def test_confusion_click_selects_the_cell_samples(dash, mailroom):

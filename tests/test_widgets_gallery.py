@@ -1,4 +1,4 @@
-"""SampleGallery, SampleCard, RelabelQueue and LabelIssuePicker: traits and callbacks, no browser.
+"""SampleGallery, SampleCard, RelabelQueue and DoubtfulLabelPicker: traits and callbacks, no browser.
 
 Numbers are checked against scipy (``scipy.special.softmax``, ``scipy.stats.entropy``) on the
 mail-room demo, whose images are scikit-learn's bundled 8 x 8 digits; image encoding against
@@ -21,8 +21,8 @@ from scipy import special, stats
 
 import logitscope
 from logitscope import LabelError, LogitFrame, ParameterError
-from logitscope.analysis import rank_label_issues
-from logitscope.widgets import LabelIssuePicker, RelabelQueue, SampleCard, SampleGallery, SharedState
+from logitscope.analysis import rank_doubtful_labels
+from logitscope.widgets import DoubtfulLabelPicker, RelabelQueue, SampleCard, SampleGallery, SharedState
 from logitscope.widgets import relabel as relabel_widgets
 from logitscope.widgets._assets import esm
 from logitscope.widgets.thumbnails import ThumbnailCache, encode_png, snippet
@@ -341,19 +341,19 @@ def test_picker_selects_top_candidates(mailroom: LogitFrame, tmp_path: Path) -> 
     state = SharedState(mailroom.n_samples)
     queue = RelabelQueue(mailroom, state, path=tmp_path / "picked.json")
     gallery = SampleGallery(mailroom, state)
-    picker = LabelIssuePicker(mailroom, state, method="self_confidence", n=15, queue=queue)
+    picker = DoubtfulLabelPicker(mailroom, state, method="given_probability", n=15, queue=queue)
     msg(picker, action="pick")
-    # self-confidence: the 15 samples whose given label has the lowest probability (scipy softmax)
+    # given-label probability: the 15 samples whose given label has the lowest probability (scipy softmax)
     p_label = scipy_probs(mailroom, 1.0)[np.arange(mailroom.n_samples), mailroom.labels]
     assert set(state.rows.tolist()) == set(np.argsort(p_label, kind="stable")[:15].tolist())
-    assert state.origin_name == "label issue picker"
-    assert gallery.n_shown == 15 and gallery.scope == "15 selected (label issue picker)"
+    assert state.origin_name == "doubtful-label picker"
+    assert gallery.n_shown == 15 and gallery.scope == "15 selected (doubtful-label picker)"
 
     picker.method = "confident_learning"
     picker.n = 10
     state.temperature = 1.5
     picker.pick()
-    ranking = rank_label_issues(mailroom.logits, mailroom.labels, "confident_learning", temperature=1.5)
+    ranking = rank_doubtful_labels(mailroom.logits, mailroom.labels, "confident_learning", temperature=1.5)
     assert state.rows.tolist() == np.sort(ranking.index[:10]).tolist()
     assert f"of {len(ranking)} flagged" in picker.status
     # the queue's default suggestions are now the pick's
@@ -368,7 +368,7 @@ def test_picker_selects_top_candidates(mailroom: LogitFrame, tmp_path: Path) -> 
 
 
 def test_picker_without_labels(mailroom: LogitFrame) -> None:
-    picker = LabelIssuePicker(mailroom.with_labels(None))
+    picker = DoubtfulLabelPicker(mailroom.with_labels(None))
     assert picker.enabled is False and "no labels" in picker.status
     with pytest.raises(LabelError):
         picker.pick()

@@ -23,6 +23,7 @@ from logitscope.widgets import (
     SharedState,
     TemperatureDial,
 )
+from logitscope.widgets.confusion import short_label
 from logitscope.widgets.scatter import CLASS_COLORS, FADED, PointRaster
 
 XSS = "<img src=x onerror=alert(1)>"
@@ -406,10 +407,11 @@ def test_confusion_with_1000_classes_shows_top_30_and_other():
 def test_confusion_class_names_reach_the_front_end_as_plain_text(parcels):
     view = ConfusionHeatmap(parcels)
     # bqplot draws tick labels as SVG text (d3 .text()); the name must arrive unchanged, not escaped twice
-    assert view._ax_row.tick_labels["3"] == XSS
-    assert view._ax_col.tick_labels["3"] == XSS
+    assert view.position_names[3] == XSS and view.tick_labels[3] == short_label(XSS)
+    assert view._ax_row.tick_labels[XSS] == short_label(XSS) and view._ax_col.tick_labels[XSS] == short_label(XSS)
     view._on_cell_click(view._grid, {"data": {"rowNum": 3, "columnNum": 0}})
-    assert XSS in view._row_button.description  # ipywidgets Button text is set as text, not HTML
+    assert short_label(XSS) in view._row_button.description  # ipywidgets Button text is set as text, not HTML
+    assert XSS in view._row_button.tooltip
 
 
 def test_confusion_without_labels_explains():
@@ -443,10 +445,10 @@ def test_dial_slider_and_state_stay_in_step(mailroom):
     assert state.temperature == pytest.approx(2.0)
     state.temperature = 0.5
     assert dial.slider.value == pytest.approx(0.5)
-    # a temperature beyond the slider's range is kept; the slider rests at its end
+    # the slider spans the accepted range (parameters.RANGES), so any accepted temperature shows as it is
     state.temperature = 100.0
-    assert state.temperature == 100.0 and dial.slider.value == pytest.approx(20.0)
-    assert "T = 100" in dial.readout.value
+    assert state.temperature == 100.0 and dial.slider.value == pytest.approx(100.0)
+    assert "T = 100" in dial.readout.value and dial.box.value == 100.0
     dial.reset_button.click()
     assert state.temperature == 1.0
     with pytest.raises(ParameterError):
@@ -502,3 +504,72 @@ def test_colour_modes_that_need_labels_are_refused_on_an_unlabelled_frame():
     with pytest.raises(traitlets.TraitError, match="predicted class"):
         view.color_by = "correct / wrong"
     assert view.color_by == "predicted class"
+
+
+def _label_map(mark) -> dict:  # type: ignore[no-untyped-def]
+    """{(row class, column class): text} of a bqplot Label mark drawn on the heat map's scales."""
+    rows, cols, texts = mark.y.tolist(), mark.x.tolist(), mark.text.tolist()
+    return {(r, c): t for r, c, t in zip(rows, cols, texts, strict=True)}
+
+
+def test_confusion_selection_is_outlined_with_its_counts(mailroom):
+    view = ConfusionHeatmap(mailroom)
+    y = np.asarray(mailroom.labels)
+    pred = np.asarray(mailroom.logits).argmax(axis=1)
+    ref = sk_confusion_matrix(y, pred, labels=range(10))  # scikit-learn
+    rows = np.arange(0, mailroom.n_samples, 13)
+    view.state.select(rows, origin="python")
+    # the selected rows' own confusion matrix (scikit-learn) says which cells hold them and how many
+    sel = sk_confusion_matrix(y[rows], pred[rows], labels=range(10))
+    assert view.outlined == [(int(i), int(j)) for i, j in np.argwhere(sel > 0)]
+    assert sorted(map(tuple, view._grid.selected.tolist())) == view.outlined
+    assert view._grid.selected_style["stroke-width"] == "3px" and view._grid.unselected_style == {}  # nothing fades
+    got = _label_map(view._selected_numbers)
+    names = mailroom.classes
+    for i, j in view.outlined:
+        assert got[(names[i], names[j])] == f"{sel[i, j]:,} sel."
+    # each cell still shows its own count
+    assert view.cell_text[4][9] == f"{ref[4, 9]:,}"
+    view.state.clear()
+    assert view.outlined == [] and view._selected_numbers.visible is False
+
+
+def test_confusion_hidden_diagonal_is_blank_not_zero(mailroom):
+    view = ConfusionHeatmap(mailroom, normalize=True)
+    y = np.asarray(mailroom.labels)
+    pred = np.asarray(mailroom.logits).argmax(axis=1)
+    ref = sk_confusion_matrix(y, pred, normalize="true")  # scikit-learn's row shares
+    assert view.cell_text[3][3] == f"{ref[3, 3]:.2f}"
+    view.hide_diagonal = True
+    assert [view.cell_text[i][i] for i in range(10)] == [""] * 10
+    assert view.cell_text[4][9] == f"{ref[4, 9]:.2f}"
+    shown = _label_map(view._numbers)
+    assert shown[("three", "three")] == "" and shown[("four", "nine")] == f"{ref[4, 9]:.2f}"
+
+
+def test_confusion_whole_row_button_forgets_a_cleared_cell(mailroom):
+    view = ConfusionHeatmap(mailroom)
+    view.select_position(4, 9)
+    assert view._row_button.description.startswith("whole row: true four") and not view._row_button.disabled
+    view.state.clear()
+    assert view.clicked is None and view._row_button.disabled
+    assert view._row_button.description == view._col_button.description.replace("column", "row")
+    view.select_position(2, 3)
+    view.state.select([0, 1], origin="python")  # another view's selection: the clicked cell no longer applies
+    assert view.clicked is None and view._row_button.disabled
+
+
+def test_confusion_names_long_classes_in_full_where_it_cuts_them():
+    long = "returns to sender, " * 12 + "depot"
+    rng = np.random.default_rng(4)
+    y = rng.integers(0, 3, 300)
+    z = rng.normal(size=(300, 3))
+    z[np.arange(300), y] += 1.5
+    view = ConfusionHeatmap(LogitFrame(z, labels=y, classes=["letter", long, "parcel"]))
+    assert view.tick_labels[1] == short_label(long) and len(view.tick_labels[1]) <= 24
+    assert view._tooltip.fields == ["row", "column", "color"]  # the hovered cell names both classes in full
+    assert list(view._grid.row) == ["letter", long, "parcel"]
+    view.select_position(1, 1)
+    assert view._row_button.tooltip == f"every sample of true class {long}"
+    pair = next(b for b in view._pair_box.children if long[:5] in b.description)
+    assert long in pair.tooltip and long not in pair.description

@@ -10,6 +10,7 @@ from __future__ import annotations
 __all__ = [
     "CLASS_COLORS",
     "INK",
+    "MARK",
     "MUTED",
     "OVER",
     "REFERENCE",
@@ -25,8 +26,11 @@ RIGHT = "#0f8a6d"
 WRONG = "#d2581c"
 #: Rows without a label.
 UNLABELLED = "#8a7fb8"
-#: The current selection, drawn over everything else.
-SELECTED = "#1d3557"
+#: The current selection, drawn over everything else: a purple that reads on a white page and on a dark one
+#: (contrast about 5:1 against white and 3.7:1 against JupyterLab's dark background).
+SELECTED = "#8f4fd0"
+#: Neutral marks (dots, the current-temperature rule): mid-grey, visible on light and dark backgrounds.
+MARK = "#5b6776"
 #: Over-confident gaps (confidence above accuracy) and under-confident ones.
 OVER = "#d2581c"
 UNDER = "#2a7ab8"

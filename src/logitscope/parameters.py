@@ -203,11 +203,11 @@ _ALL = (
     ),
     ParameterRange(
         "n_candidates", "n_candidates", "int", 1, 100_000, 1, 24,
-        meaning="label-error candidates listed",
+        meaning="doubtful labels listed",
     ),
     ParameterRange(
         "n_pairs", "n_pairs", "int", 1, 1000, 1, 8,
-        meaning="most confused class pairs listed",
+        meaning="largest confusions listed (a true class read as another)",
     ),
     ParameterRange(
         "max_classes", "max_classes", "int", 2, 1000, 1, 30,

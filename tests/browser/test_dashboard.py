@@ -364,7 +364,7 @@ def test_hostile_names_show_as_text_and_never_run(jupyter_server, notebook_dir, 
         XSS,
     )
     # SVG tick labels show the names literally (long ones cut to short_label's length)
-    assert XSS in found["ticks"] and short_label(f"parcel {XSS}") in found["ticks"]
+    assert short_label(XSS) in found["ticks"] and short_label(f"parcel {XSS}") in found["ticks"]
     assert any(XSS in b for b in found["buttons"])  # whole-row button and pair buttons
     assert XSS in found["gallery"]  # ids and texts in the tiles
     assert found["injected"] == 0  # no element was made from the data

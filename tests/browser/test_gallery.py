@@ -39,7 +39,7 @@ import numpy as np
 import ipywidgets as widgets
 import logitscope
 from logitscope import LogitFrame
-from logitscope.widgets import LabelIssuePicker, RelabelQueue, SampleCard, SampleGallery, SharedState
+from logitscope.widgets import DoubtfulLabelPicker, RelabelQueue, SampleCard, SampleGallery, SharedState
 
 HOSTILE = {hostile!r}
 MARKS = pathlib.Path({marks!r})
@@ -52,7 +52,7 @@ state.select(np.flatnonzero(frame.labels == 7), origin="python")
 gallery = SampleGallery(frame, state, page_size=12)
 card = SampleCard(frame, state)
 queue = RelabelQueue(frame, state, path=MARKS)
-picker = LabelIssuePicker(frame, state, n=10, queue=queue)
+picker = DoubtfulLabelPicker(frame, state, n=10, queue=queue)
 widgets.VBox([picker, gallery, widgets.HBox([card, queue])])"""
 
 TEXTS = """\
@@ -159,7 +159,7 @@ def test_gallery_card_queue_in_lab(jupyter_server, notebook_dir, browser_page, b
     out.locator(".lsr-pick").scroll_into_view_if_needed()
     out.locator(".lsr-pick").click()
     page.wait_for_function(
-        "el => el.textContent === '10 selected (label issue picker)'", arg=out.locator(".lsg-scope").element_handle()
+        "el => el.textContent === '10 selected (doubtful-label picker)'", arg=out.locator(".lsg-scope").element_handle()
     )
     assert out.locator(".lsg-tile").count() == 10
     assert out.locator(".lsr-picker .lsr-status").inner_text().startswith("selected 10 of ")

@@ -44,8 +44,8 @@ from .compare import (
     per_class_accuracy_change,
     rank_forgetting,
 )
-from .confusion import ConfusedPair, confusion_matrix, most_confused_pairs, normalize_rows, top_k_confusion
-from .label_errors import LabelIssueRanking, confident_joint, per_class_thresholds_cl, rank_label_issues
+from .confusion import ConfusedPair, confusion_matrix, largest_confusions, normalize_rows, top_k_confusion
+from .label_errors import DoubtfulLabelRanking, confident_joint, mean_given_probability, rank_doubtful_labels
 from .metrics import (
     accuracy,
     brier,
@@ -89,9 +89,9 @@ __all__ = [
     "ClassMixCheck",
     "ClassMixTest",
     "ConfusedPair",
+    "DoubtfulLabelRanking",
     "FlipTable",
     "ForgettingRanking",
-    "LabelIssueRanking",
     "PriorEstimate",
     "ReliabilityBins",
     "RiskCoverage",
@@ -130,21 +130,21 @@ __all__ = [
     "fit_temperature",
     "flip_table",
     "holm_adjust",
+    "largest_confusions",
     "log_softmax",
     "logsumexp",
     "maximum_calibration_error",
     "mcnemar_exact",
     "mean_confidence",
     "mean_entropy",
-    "most_confused_pairs",
+    "mean_given_probability",
     "nll",
     "normalize_rows",
     "per_class_accuracy_change",
     "per_class_thresholds",
-    "per_class_thresholds_cl",
     "random_split",
+    "rank_doubtful_labels",
     "rank_forgetting",
-    "rank_label_issues",
     "reliability_bins",
     "risk_coverage_curve",
     "sample_scores",

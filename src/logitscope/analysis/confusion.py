@@ -12,7 +12,7 @@ from ..parameters import check as check_parameter
 from ._blocks import block_slices
 from ._validation import check_k, check_labels, check_logits
 
-__all__ = ["ConfusedPair", "confusion_matrix", "most_confused_pairs", "normalize_rows", "top_k_confusion"]
+__all__ = ["ConfusedPair", "confusion_matrix", "largest_confusions", "normalize_rows", "top_k_confusion"]
 
 
 def confusion_matrix(labels: ArrayLike, predicted: ArrayLike, n_classes: int) -> np.ndarray:
@@ -99,7 +99,7 @@ class ConfusedPair:
     rate: float
 
 
-def most_confused_pairs(matrix: ArrayLike, n: int = 10, class_counts: ArrayLike | None = None) -> list[ConfusedPair]:
+def largest_confusions(matrix: ArrayLike, n: int = 10, class_counts: ArrayLike | None = None) -> list[ConfusedPair]:
     """The largest off-diagonal cells of a confusion matrix, largest first.
 
     ``rate`` is the count over the number of samples of the true class:
@@ -108,7 +108,7 @@ def most_confused_pairs(matrix: ArrayLike, n: int = 10, class_counts: ArrayLike 
 
     Examples
     --------
-    >>> [(p.true, p.other, p.count) for p in most_confused_pairs([[5, 2, 0], [3, 4, 0], [0, 1, 6]], n=2)]
+    >>> [(p.true, p.other, p.count) for p in largest_confusions([[5, 2, 0], [3, 4, 0], [0, 1, 6]], n=2)]
     [(1, 0, 3), (0, 1, 2)]
     """
     n = int(check_parameter(n, "n_pairs"))

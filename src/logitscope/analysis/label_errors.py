@@ -1,18 +1,19 @@
-"""Ranking samples whose given label is likely wrong.
+"""Ranking samples whose given label is doubtful (likely wrong).
 
-Three rankings, each returning row indices most-suspect first with a score
-(lower score = more suspect):
+Three rankings, each returning row indices most doubtful first with a score
+(lower score = more doubtful):
 
-- ``self_confidence``: ``p_y``, the probability the model gives the label;
-- ``normalized_margin``: ``p_y - max_{k != y} p_k`` (both from Northcutt,
-  Jiang and Chuang 2021, "Confident Learning: Estimating Uncertainty in
-  Dataset Labels", Section 3.2 ranking options);
+- ``given_probability``: ``p_y``, the probability the model gives the label;
+- ``label_margin``: ``p_y - max_{k != y} p_k``, how far the given label's
+  probability lies above (or below) the best other class (both scores are
+  among the ranking options of Northcutt, Jiang and Chuang 2021, "Confident
+  Learning: Estimating Uncertainty in Dataset Labels", Section 3.2);
 - ``confident_learning``: the off-diagonal of the *confident joint* of the
   same paper. Each class ``j`` gets the threshold ``t_j`` = mean of ``p_j``
   over the samples labelled ``j``; a sample counts for class ``j`` when
   ``p_j >= t_j``, the largest such ``p_j`` deciding between several. Samples
   labelled ``y`` that count for some ``j != y`` are flagged, ranked by
-  normalised margin.
+  label margin.
 
 The probabilities should be out-of-sample (cross-validated), as the paper
 assumes; in-sample probabilities hide label errors that the model memorised.
@@ -32,14 +33,14 @@ from ._blocks import as_float64_block, block_slices
 from ._validation import assume_valid, check_labels, check_logits, check_temperature
 from .scores import sample_scores
 
-__all__ = ["LabelIssueRanking", "confident_joint", "per_class_thresholds_cl", "rank_label_issues"]
+__all__ = ["DoubtfulLabelRanking", "confident_joint", "mean_given_probability", "rank_doubtful_labels"]
 
-Method = Literal["self_confidence", "normalized_margin", "confident_learning"]
+Method = Literal["given_probability", "label_margin", "confident_learning"]
 
 
 @dataclass(frozen=True)
-class LabelIssueRanking:
-    """Rows ordered most-suspect first, with their scores and suggested labels."""
+class DoubtfulLabelRanking:
+    """Rows ordered most doubtful first, with their scores and suggested labels."""
 
     method: str
     index: np.ndarray
@@ -49,10 +50,10 @@ class LabelIssueRanking:
     def __len__(self) -> int:
         return int(self.index.shape[0])
 
-    def top(self, n: int) -> LabelIssueRanking:
+    def top(self, n: int) -> DoubtfulLabelRanking:
         """The first ``n`` rows of the ranking (``n`` in the range of ``n_candidates``)."""
         n = int(check_parameter(n, "n_candidates"))
-        return LabelIssueRanking(self.method, self.index[:n], self.score[:n], self.suggested[:n])
+        return DoubtfulLabelRanking(self.method, self.index[:n], self.score[:n], self.suggested[:n])
 
 
 def _probs_block(z: np.ndarray, rows: slice, beta: float) -> np.ndarray:
@@ -63,14 +64,17 @@ def _probs_block(z: np.ndarray, rows: slice, beta: float) -> np.ndarray:
     return b
 
 
-def per_class_thresholds_cl(logits: ArrayLike, labels: ArrayLike, temperature: float = 1.0) -> np.ndarray:
-    """Confident-learning thresholds ``t_j = mean(p_j | y = j)`` (NaN for an absent class).
+def mean_given_probability(logits: ArrayLike, labels: ArrayLike, temperature: float = 1.0) -> np.ndarray:
+    """Mean probability of each class over the samples labelled with it: ``t_j = mean(p_j | y = j)``.
+
+    These are the per-class thresholds of confident learning (Northcutt et al.
+    2021, Eq. 2); NaN for a class no sample is labelled with.
 
     Examples
     --------
     >>> import numpy as np
     >>> z = np.log(np.array([[0.8, 0.2], [0.6, 0.4], [0.3, 0.7]]))
-    >>> per_class_thresholds_cl(z, [0, 0, 1]).round(3)
+    >>> mean_given_probability(z, [0, 0, 1]).round(3)
     array([0.7, 0.7])
     """
     z = check_logits(logits)
@@ -118,40 +122,41 @@ def confident_joint(logits: ArrayLike, labels: ArrayLike, temperature: float = 1
     y = check_labels(labels, n, k)
     t = check_temperature(temperature)
     with assume_valid():
-        assigned = _confident_assignment(z, y, 1.0 / t, per_class_thresholds_cl(z, y, t))
+        assigned = _confident_assignment(z, y, 1.0 / t, mean_given_probability(z, y, t))
     m = assigned >= 0
     return np.bincount(y[m] * k + assigned[m], minlength=k * k).reshape(k, k)
 
 
-def rank_label_issues(
+def rank_doubtful_labels(
     logits: ArrayLike,
     labels: ArrayLike,
     method: Method = "confident_learning",
     temperature: float = 1.0,
-) -> LabelIssueRanking:
-    """Rank samples by how likely their label is wrong, most suspect first.
+) -> DoubtfulLabelRanking:
+    """Rank samples by how doubtful their given label is, most doubtful first.
 
     Parameters
     ----------
     logits : array_like of shape (N, K)
         Preferably out-of-sample (cross-validated) logits.
     labels : array_like of shape (N,)
-    method : {"confident_learning", "self_confidence", "normalized_margin"}
-        ``self_confidence`` and ``normalized_margin`` rank every sample;
+    method : {"confident_learning", "given_probability", "label_margin"}
+        ``given_probability`` (the label's probability) and ``label_margin``
+        (the label's probability minus the best other class's) rank every sample;
         ``confident_learning`` returns only the flagged ones.
     temperature : float
         Softmax temperature.
 
     Returns
     -------
-    LabelIssueRanking
+    DoubtfulLabelRanking
         ``suggested`` is the model's most probable class other than the label.
 
     Examples
     --------
     >>> import numpy as np
     >>> z = np.log(np.array([[0.8, 0.2], [0.6, 0.4], [0.3, 0.7], [0.1, 0.9]]))
-    >>> r = rank_label_issues(z, [0, 0, 1, 0])
+    >>> r = rank_doubtful_labels(z, [0, 0, 1, 0])
     >>> r.index.tolist(), r.suggested.tolist()
     ([3], [1])
     """
@@ -171,15 +176,15 @@ def rank_label_issues(
         rows = np.flatnonzero(s.correct)
         with assume_valid():
             suggested[rows] = _runner_up(z[rows])
-    if method == "self_confidence":
+    if method == "given_probability":
         score = s.true_probability
         idx = np.argsort(score, kind="stable")
-    elif method == "normalized_margin":
+    elif method == "label_margin":
         score = nm
         idx = np.argsort(score, kind="stable")
     elif method == "confident_learning":
         with assume_valid():
-            thr = per_class_thresholds_cl(z, y, t)
+            thr = mean_given_probability(z, y, t)
             assigned = _confident_assignment(z, y, 1.0 / t, thr)
         flagged = np.flatnonzero((assigned >= 0) & (assigned != y))
         order = np.argsort(nm[flagged], kind="stable")
@@ -189,9 +194,9 @@ def rank_label_issues(
         suggested[flagged] = assigned[flagged]
     else:
         raise ParameterError(
-            f"method must be 'confident_learning', 'self_confidence' or 'normalized_margin', got {method!r}"
+            f"method must be 'confident_learning', 'given_probability' or 'label_margin', got {method!r}"
         )
-    return LabelIssueRanking(method=method, index=idx, score=score[idx], suggested=suggested[idx])
+    return DoubtfulLabelRanking(method=method, index=idx, score=score[idx], suggested=suggested[idx])
 
 
 def _runner_up(z: np.ndarray) -> np.ndarray:

@@ -57,7 +57,7 @@ __all__ = [
     "evaluate_threshold",
     "exact_order",
     "fit_temperature",
-    "rank_label_issues",
+    "rank_doubtful_labels",
     "reliability_bins",
     "risk_coverage_curve",
     "sample_scores",
@@ -760,7 +760,7 @@ class _CLThresholds(_Collector):
         return {"total": np.bincount(y, weights=s.true_probability, minlength=self.k)}
 
 
-class _IssueCandidates(_Collector):
+class _DoubtfulCandidates(_Collector):
     def __init__(self, method: str, top: int, beta: float, thresholds: np.ndarray | None) -> None:
         self.method, self.top, self.beta, self.thresholds = method, top, beta, thresholds
 
@@ -773,9 +773,9 @@ class _IssueCandidates(_Collector):
             rows = np.flatnonzero(s.correct)
             with assume_valid():
                 suggested[rows] = _runner_up(z[rows])
-        if self.method == "self_confidence":
+        if self.method == "given_probability":
             score, keep = s.true_probability, np.arange(len(s))
-        elif self.method == "normalized_margin":
+        elif self.method == "label_margin":
             score, keep = nm, np.arange(len(s))
         else:
             assert self.thresholds is not None
@@ -795,21 +795,21 @@ class _IssueCandidates(_Collector):
         return score[order], index[order], suggested[order]
 
 
-def rank_label_issues(
+def rank_doubtful_labels(
     cf: ChunkedFrame,
-    method: Literal["confident_learning", "self_confidence", "normalized_margin"] = "confident_learning",
+    method: Literal["confident_learning", "given_probability", "label_margin"] = "confident_learning",
     temperature: float | None = None,
     top: int = 1000,
-) -> an.LabelIssueRanking:
-    """The first ``top`` rows of :func:`logitscope.analysis.rank_label_issues`: each chunk's best, merged.
+) -> an.DoubtfulLabelRanking:
+    """The first ``top`` rows of :func:`logitscope.analysis.rank_doubtful_labels`: each chunk's best, merged.
 
     Confident learning (Northcutt et al. 2021) first needs its per-class
     thresholds over all rows: one pass more.
     """
-    _require_labels(cf, "rank_label_issues")
-    if method not in ("confident_learning", "self_confidence", "normalized_margin"):
+    _require_labels(cf, "rank_doubtful_labels")
+    if method not in ("confident_learning", "given_probability", "label_margin"):
         raise ParameterError(
-            f"method must be 'confident_learning', 'self_confidence' or 'normalized_margin', got {method!r}"
+            f"method must be 'confident_learning', 'given_probability' or 'label_margin', got {method!r}"
         )
     t = _t(cf, temperature)
     beta = 1.0 / t
@@ -818,9 +818,9 @@ def rank_label_issues(
         part, conf = _run(cf, t, [_CLThresholds(cf.n_classes, beta), _Confusion(cf.n_classes)])
         with np.errstate(invalid="ignore", divide="ignore"):
             thresholds = part["total"] / conf["labels"]
-    (found,) = _run(cf, t, [_IssueCandidates(method, int(top), beta, thresholds)])
+    (found,) = _run(cf, t, [_DoubtfulCandidates(method, int(top), beta, thresholds)])
     score, index, suggested = found
-    return an.LabelIssueRanking(method=method, index=index, score=score, suggested=suggested)
+    return an.DoubtfulLabelRanking(method=method, index=index, score=score, suggested=suggested)
 
 
 # --------------------------------------------------------------------------- the summary

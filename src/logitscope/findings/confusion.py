@@ -80,7 +80,7 @@ def confusion_summary(
         with an.assume_valid():
             top = an.top_k_confusion(z, y, k)
     counts = np.bincount(y, minlength=kk)
-    pairs = an.most_confused_pairs(top, n=n_pairs, class_counts=counts)
+    pairs = an.largest_confusions(top, n=n_pairs, class_counts=counts)
     return ConfusionSummary(
         temperature=t, k=int(k), matrix=matrix, top_k_matrix=top, class_counts=counts, pairs=tuple(pairs), n=int(y.size)
     )

@@ -70,7 +70,7 @@ def suspect_labels(
     z = frame.logits if keep is None else frame.logits[keep]
     y = frame.labels if keep is None else frame.labels[keep]
     with an.assume_valid():
-        ranking = an.rank_label_issues(z, y, method, temperature=t)  # type: ignore[arg-type]
+        ranking = an.rank_doubtful_labels(z, y, method, temperature=t)  # type: ignore[arg-type]
     n_flagged = len(ranking)
     if top is not None:
         ranking = ranking.top(int(top))

@@ -11,7 +11,7 @@ from .forgetting import ForgettingList
 from .gallery import SampleGallery
 from .histogram import ConfidenceHistogram
 from .pick_table import PickTable
-from .relabel import LabelIssuePicker, RelabelQueue
+from .relabel import DoubtfulLabelPicker, RelabelQueue
 from .reliability import ReliabilityDiagram
 from .scatter import ScoreScatter
 from .state import SharedState, as_rows
@@ -26,8 +26,8 @@ __all__ = [
     "ConfidenceHistogram",
     "ConfusionHeatmap",
     "Dashboard",
+    "DoubtfulLabelPicker",
     "ForgettingList",
-    "LabelIssuePicker",
     "PickTable",
     "RelabelQueue",
     "ReliabilityDiagram",

@@ -35,6 +35,7 @@ from ..analysis.split import Split, random_split, split_by_values
 from ..errors import LogitscopeError
 from ..findings import Choices, HeldOutCheck, fitted_temperature, held_out_check
 from ..frame import LogitFrame
+from ..parameters import RANGES
 from .base import LinkedView
 from .reliability import ReliabilityDiagram
 from .state import SharedState
@@ -129,17 +130,22 @@ class CalibrationPanel(LinkedView, widgets.VBox):
             tooltips=["judge on the rows fitted on", "seeded random split", "fit on rows with chosen values"],
             disabled=not labelled,
         )
+        # bounds from the accepted range (an open interval: its ends moved in by one step); no typed readout,
+        # so no value is ever clamped (use_random_split takes any fraction of the range from Python)
+        f_lo, f_hi, f_step = RANGES["held_out_fraction"].control_bounds()
         self._fraction = widgets.FloatSlider(
-            value=0.5,
-            min=0.1,
-            max=0.9,
-            step=0.05,
+            value=RANGES["held_out_fraction"].default,
+            min=f_lo,
+            max=f_hi,
+            step=f_step,
             description="held out",
-            readout_format=".0%",
+            readout=False,
             continuous_update=False,
             style={"description_width": "60px"},
-            layout={"width": "260px"},
+            layout={"width": "220px"},
         )
+        self._fraction_text = widgets.Label()
+        self._fraction.observe(lambda c: self._show_fraction(), "value")
         self._seed = widgets.IntText(
             value=0, description="seed", style={"description_width": "34px"}, layout={"width": "120px"}
         )
@@ -156,7 +162,10 @@ class CalibrationPanel(LinkedView, widgets.VBox):
         self._values = widgets.SelectMultiple(
             options=[], description="fit on", rows=4, style={"description_width": "50px"}, layout={"width": "260px"}
         )
-        self._random_box = widgets.HBox([self._fraction, self._seed, self._stratify], layout={"align_items": "center"})
+        self._random_box = widgets.HBox(
+            [self._fraction, self._fraction_text, self._seed, self._stratify], layout={"align_items": "center"}
+        )
+        self._show_fraction()
         self._column_box = widgets.HBox([self._column, self._values])
         self.split_note = widgets.HTML()
         self._split_box = widgets.VBox([self._split_mode, self._random_box, self._column_box, self.split_note])
@@ -216,6 +225,9 @@ class CalibrationPanel(LinkedView, widgets.VBox):
         self._show_split_controls()
 
     # ------------------------------------------------------------------ split
+
+    def _show_fraction(self) -> None:
+        self._fraction_text.value = f"{self._fraction.value:.0%}"
 
     def _show_split_controls(self) -> None:
         self._random_box.layout.display = "" if self.split_mode == "random split" else "none"

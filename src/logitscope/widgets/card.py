@@ -15,6 +15,7 @@ from ._assets import esm
 from .base import LinkedView
 from .gallery import page_probabilities
 from .state import SharedState
+from .style import ENERGY
 from .thumbnails import ThumbnailCache
 
 __all__ = ["SampleCard"]
@@ -45,7 +46,8 @@ class SampleCard(LinkedView, anywidget.AnyWidget):
     """The sample in ``state.focus``, shown large.
 
     The image (enlarged) or the full text, the id, the given label, the
-    prediction, confidence, entropy, margin and energy, every class
+    prediction, confidence, entropy, margin and energy (not for a frame built
+    from probabilities, whose free energy is 0 in every row), every class
     probability as a bar (the ``top`` most probable when there are more
     classes, plus the given label's), and the row's metadata. Follows the
     shared temperature.
@@ -118,6 +120,8 @@ class SampleCard(LinkedView, anywidget.AnyWidget):
             label_outside = [classes[label], float(p[label]), rank]
         scores = []
         for name, title in _SCORES:
+            if name == ENERGY and frame.source == "probabilities":
+                continue  # a frame built from probabilities has free energy 0 in every row: nothing to read
             arr = getattr(s, name)
             if arr is not None:
                 v = arr[row]

@@ -3,8 +3,14 @@
 With many classes only the ``max_classes`` classes with the most errors
 (as true class plus as predicted class) get their own row and column; the
 rest are summed into one "other" row and column, so a 1,000-class frame
-still draws a small grid. A list of the most confused pairs, also within
-the top k, sits beside the grid; each entry selects its samples.
+still draws a small grid. Beside the grid, the largest confusions (a true
+class read as another, also within the top k); each entry selects its samples.
+
+A selection made anywhere is drawn as an outline around every cell that
+holds selected rows, with the number of selected rows written under the
+cell's own number (for grids of up to 12 classes). The numbers are a label
+mark of their own, so a hidden diagonal leaves its cells blank. Long class
+names are cut on the axes; the cell's tooltip names both classes in full.
 
 The predicted class (the arg max of the logits) does not depend on the
 temperature, so neither does this view.
@@ -23,27 +29,49 @@ from .. import analysis as an
 from ..errors import ClassNameError, ParameterError
 from ..findings import ConfusionSummary, confusion_summary
 from ..frame import LogitFrame
+from ..parameters import check as check_parameter
+from ..text import shorten
 from .base import LinkedView
 from .state import SharedState
+from .style import INK, MUTED, SELECTED, css, figure_layout
 
 __all__ = ["ConfusionHeatmap", "short_label"]
 
-_LABEL_CHARS = 28
+_LABEL_CHARS = 24
 _ZERO_COLOR = "#f7fbff"
-_FULL_COLOR = "#3d85c6"  # light enough for the black cell numbers
+_FULL_COLOR = "#3d85c6"  # light enough for the dark cell numbers
+#: Grids with at most this many rows and columns carry numbers in their cells.
+MAX_NUMBERED = 12
+#: Entries of the "within" menu beyond top 1.
+_K_MENU = 5
+_ROW_BUTTON = "whole row of the clicked cell"
+_COL_BUTTON = "whole column of the clicked cell"
 
 
 def short_label(name: str, limit: int = _LABEL_CHARS) -> str:
-    """A class name cut to ``limit`` characters (with an ellipsis) for axis ticks.
+    """A class name cut in the middle to ``limit`` characters (with an ellipsis) for axis ticks and buttons.
 
     Examples
     --------
     >>> short_label("parcel")
     'parcel'
     >>> short_label("a" * 40, limit=10)
-    'aaaaaaaaa…'
+    'aaaaa…aaaa'
     """
-    return name if len(name) <= limit else name[: limit - 1] + "…"
+    return shorten(name, limit)
+
+
+def _unique_keys(names: list[str]) -> list[str]:
+    """The names, made unique where an aggregate name equals a class name (zero-width spaces appended)."""
+    seen: set[str] = set()
+    out = []
+    for name in names:
+        key = name
+        while key in seen:
+            key += "\u200b"
+        seen.add(key)
+        out.append(key)
+    return out
 
 
 class ConfusionHeatmap(LinkedView, widgets.VBox):
@@ -56,14 +84,14 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
     state : SharedState, optional
         Shared state; a new one is made when None.
     max_classes : int, default 30
-        Classes drawn individually; with more classes the ones with the most
-        errors are drawn and the rest summed into "other".
+        Classes drawn individually (in the range of ``max_classes``, :mod:`logitscope.parameters`);
+        with more classes the ones with the most errors are drawn and the rest summed into "other".
     normalize : bool, default False
         Colour by row share (recall per true class) instead of counts.
     n_pairs : int, default 8
-        Entries in the most-confused list.
+        Entries in the list of largest confusions.
     k : int, default 1
-        Most-confused pairs counted within the top ``k`` (1 = the confusion matrix).
+        Largest confusions counted within the top ``k`` (1 = the confusion matrix).
     name : str, optional
         Readable name shown where the view's selection is described.
 
@@ -77,14 +105,16 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
     [[1.0, 0.0, 0.0], [0.0, 1.0, 0.0], [1.0, 0.0, 1.0]]
     >>> view.select_cell("east", "north").tolist()  # true east, predicted north
     [2]
+    >>> view.outlined, view.cell_text[2][0]  # the selected cell is outlined and says how many it holds
+    ([(2, 0)], '1')
     >>> [(p.true, p.other, p.count) for p in view.pairs]
     [(2, 0, 1)]
     """
 
     kind = "confusion matrix"
     normalize = traitlets.Bool(False, help="colour by row share instead of counts")
-    hide_diagonal = traitlets.Bool(False, help="draw the diagonal (correct samples) as zero")
-    k = traitlets.Int(1, help="most-confused pairs within the top k")
+    hide_diagonal = traitlets.Bool(False, help="leave the diagonal (correct samples) out: blank cells")
+    k = traitlets.Int(1, help="largest confusions within the top k")
 
     def __init__(
         self,
@@ -99,70 +129,63 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         **kwargs: Any,
     ) -> None:
         self.link(frame, state, name)
-        if int(max_classes) < 1:
-            raise ParameterError(f"max_classes must be at least 1, got {max_classes}")
-        self.n_pairs = int(n_pairs)
+        max_classes = int(check_parameter(max_classes, "max_classes"))
+        self.n_pairs = int(check_parameter(n_pairs, "n_pairs"))
         self.pairs: list[an.ConfusedPair] = []
         self.clicked: tuple[int, int] | None = None
+        self.outlined: list[tuple[int, int]] = []
+        self.cell_text: list[list[str]] = []
         if not frame.has_labels:
             widgets.VBox.__init__(
                 self, children=[widgets.Label("The confusion matrix needs labels; this frame has none.")]
             )
             self._ready = False
             return
-        self._ready = True
-        self._max_classes = int(max_classes)
         kk = frame.n_classes
+        k = int(check_parameter(k, "k", upper=kk))
+        self._ready = True
+        self._max_classes = max_classes
         self._compute_structure()
-        n_pos = self.n_positions
-        ticks = {str(i): short_label(n) for i, n in enumerate(self.position_names)}
         self._s_row = bq.OrdinalScale(reverse=True)
         self._s_col = bq.OrdinalScale()
         self._s_color = bq.ColorScale(colors=[_ZERO_COLOR, _FULL_COLOR], min=0.0)
+        self._tooltip = bq.Tooltip(
+            fields=["row", "column", "color"], labels=["true class", "predicted", "samples"], formats=["", "", ".0f"]
+        )
         self._grid = bq.GridHeatMap(
-            row=np.arange(n_pos),
-            column=np.arange(n_pos),
-            color=np.zeros((n_pos, n_pos)),
+            row=np.asarray(self._keys, dtype=object),
+            column=np.asarray(self._keys, dtype=object),
+            color=np.zeros((self.n_positions, self.n_positions)),
             scales={"row": self._s_row, "column": self._s_col, "color": self._s_color},
             stroke="white",
-            selected_style={"opacity": 1.0},
-            unselected_style={"opacity": 0.3},
+            # a selection is an outline round each cell holding selected rows; nothing fades
+            selected_style={"stroke": SELECTED, "stroke-width": "3px"},
+            unselected_style={},
             display_format=None,
-            font_style={"font-size": "10px"},
+            tooltip=self._tooltip,
         )
         self._grid.on_element_click(self._on_cell_click)
-        font = {"font-size": "10px" if n_pos > 12 else "12px"}
-        longest = max(len(short_label(n)) for n in self.position_names)
-        text_px = 6.5 if n_pos > 12 else 7.5  # width of one tick-label character
-        left = int(min(40 + text_px * longest, 220))
-        bottom = int(min(45 + 0.72 * text_px * longest, 200)) if n_pos > 6 else 45
-        self._ax_col = bq.Axis(
-            scale=self._s_col,
-            label="predicted class",
-            label_offset=f"{bottom - 12}px",
-            tick_labels=ticks,
-            tick_rotate=-45 if n_pos > 6 else 0,
-            tick_style={**font, "text-anchor": "end"} if n_pos > 6 else font,
-            grid_lines="none",
-        )
-        self._ax_row = bq.Axis(
-            scale=self._s_row,
-            side="left",
-            label="true class",
-            label_offset=f"{left - 14}px",
-            tick_labels=ticks,
-            tick_style=font,
-            grid_lines="none",
-        )
+        label_scales = {"x": self._s_col, "y": self._s_row}
+        size = 11 if self.n_positions <= 8 else 10
+        self._numbers = bq.Label(
+            x=np.zeros(0), y=np.zeros(0), text=[], scales=label_scales, align="middle", default_size=size,
+            colors=[INK], apply_clip=False,
+        )  # fmt: skip
+        self._selected_numbers = bq.Label(
+            x=np.zeros(0), y=np.zeros(0), text=[], scales=label_scales, align="middle", default_size=size - 1,
+            colors=[SELECTED], font_weight="bold", y_offset=8, visible=False,
+        )  # fmt: skip
+        self._ax_col = bq.Axis(scale=self._s_col, label="predicted class", grid_lines="none")
+        self._ax_row = bq.Axis(scale=self._s_row, side="left", label="true class", grid_lines="none")
         self.figure = bq.Figure(
             display_toolbar=False,
-            marks=[self._grid],
+            marks=[self._grid, self._numbers, self._selected_numbers],
             axes=[self._ax_col, self._ax_row],
-            fig_margin={"top": 10, "bottom": bottom, "left": left, "right": 10},
             padding_x=0.0,
             padding_y=0.0,
-            layout=widgets.Layout(width="100%", height="430px"),
+            layout=figure_layout("100%", "430px", "300px"),
         )
+        self._place_ticks()
 
         self._color_buttons = widgets.ToggleButtons(
             options=["counts", "row share"],
@@ -172,31 +195,32 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self._diag_box = widgets.Checkbox(
             value=False, description="hide diagonal", indent=False, layout={"width": "auto"}
         )
-        self._row_button = widgets.Button(description="whole row", disabled=True, layout={"width": "auto"})
-        self._col_button = widgets.Button(description="whole column", disabled=True, layout={"width": "auto"})
+        self._row_button = widgets.Button(description=_ROW_BUTTON, disabled=True, layout={"width": "auto"})
+        self._col_button = widgets.Button(description=_COL_BUTTON, disabled=True, layout={"width": "auto"})
         self._row_button.on_click(lambda b: self._select_clicked("row"))
         self._col_button.on_click(lambda b: self._select_clicked("column"))
         self._k_menu = widgets.Dropdown(
-            options=[(f"top {i}" if i > 1 else "top 1 (errors)", i) for i in range(1, min(5, kk) + 1)],
-            value=max(1, min(int(k), 5, kk)),
-            description="within",
-            style={"description_width": "50px"},
+            options=self._k_options(k), value=k, description="within", style={"description_width": "50px"},
             layout={"width": "190px"},
-        )
+        )  # fmt: skip
         self._pair_box = widgets.VBox(layout={"width": "100%"})
-        self._note = widgets.Label()
-        self._note.add_class("logitscope-note")
+        self._note = widgets.HTML()
         pair_panel = widgets.VBox(
-            [widgets.HTML("<b>Most confused pairs</b>"), self._k_menu, self._pair_box],
+            [widgets.HTML(css("views") + "<div class='ls-subhead'>Where the model mixes classes up</div>"),
+             self._k_menu, self._pair_box],
             layout={"width": "250px", "min_width": "220px"},
-        )
+        )  # fmt: skip
         controls = widgets.HBox([self._color_buttons, self._diag_box], layout={"flex_flow": "row wrap"})
         click_row = widgets.HBox([self._row_button, self._col_button], layout={"flex_flow": "row wrap"})
-        grid_panel = widgets.VBox([controls, self.figure, click_row, self._note], layout={"flex": "1 1 auto"})
-        widgets.VBox.__init__(self, children=[widgets.HBox([grid_panel, pair_panel])], **kwargs)
+        grid_panel = widgets.VBox(
+            [controls, self.figure, click_row, self._note], layout={"flex": "1 1 300px", "min_width": "0"}
+        )
+        widgets.VBox.__init__(
+            self, children=[widgets.HBox([grid_panel, pair_panel], layout={"flex_flow": "row wrap"})], **kwargs
+        )
         self.add_class("logitscope-confusion")
 
-        self.normalize, self.k = bool(normalize), int(self._k_menu.value)
+        self.normalize, self.k = bool(normalize), k
         widgets.link((self._diag_box, "value"), (self, "hide_diagonal"))
         widgets.link((self._k_menu, "value"), (self, "k"))
         self._color_buttons.observe(lambda c: setattr(self, "normalize", c["new"] == "row share"), "value")
@@ -205,6 +229,47 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self._recolor()
         self._on_k()
         self._on_rows()
+
+    # ------------------------------------------------------------------ readouts
+
+    @property
+    def tick_labels(self) -> list[str]:
+        """The class names as the axes show them (cut to a few characters), in position order."""
+        return [short_label(n) for n in self.position_names]
+
+    def _k_options(self, k: int) -> list[tuple[str, int]]:
+        kk = self.frame.n_classes
+        values = sorted(set(range(1, min(_K_MENU, kk) + 1)) | {int(k)})
+        return [(f"top {i}" if i > 1 else "top 1 (errors)", i) for i in values]
+
+    @traitlets.validate("k")
+    def _valid_k(self, proposal: Any) -> int:
+        k = int(check_parameter(proposal["value"], "k", upper=self.frame.n_classes))
+        menu = getattr(self, "_k_menu", None)
+        if menu is not None and k not in [v for _, v in menu.options]:
+            menu.options = self._k_options(k)
+        return k
+
+    def _place_ticks(self) -> None:
+        """Tick labels cut to a few characters, rotated when they would not fit under their column."""
+        n_pos = self.n_positions
+        ticks = dict(zip(self._keys, self.tick_labels, strict=True))
+        longest = max(len(t) for t in ticks.values())
+        char_px = 6.5 if n_pos > 12 else 7.0  # width of one tick-label character at the tick font size
+        font = {"font-size": "10px" if n_pos > 12 else "11.5px"}
+        # about 330 px of plot width at the narrowest layout: rotate when the names would run into each other
+        rotate = char_px * longest + 6 > 330 / n_pos
+        left = int(min(46 + char_px * longest, 230))
+        bottom = int(min(50 + 0.64 * char_px * longest, 210)) if rotate else 46
+        with self.figure.hold_sync():
+            self._ax_col.tick_labels = ticks
+            self._ax_row.tick_labels = ticks
+            self._ax_col.tick_rotate = -45 if rotate else 0
+            self._ax_col.tick_style = {**font, "text-anchor": "end"} if rotate else font
+            self._ax_row.tick_style = font
+            self._ax_col.label_offset = f"{bottom - 12}px"
+            self._ax_row.label_offset = f"{left - 14}px"
+            self.figure.fig_margin = {"top": 10, "bottom": bottom, "left": left, "right": 10}
 
     # ------------------------------------------------------------------ structure
 
@@ -240,6 +305,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self.position_names = [names[i] for i in self.shown_classes]
         if self.has_other:
             self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
+        self._keys = _unique_keys(self.position_names)
         known = self._labels >= 0  # unlabelled rows (a partly labelled batch) fall in no cell: position -1
         self._true_pos = np.where(known, self.position[np.maximum(self._labels, 0)], -1)
         self._pred_pos = self.position[self._predicted]
@@ -282,44 +348,104 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
 
     def _recolor(self, change: Any = None) -> None:
         m = self.matrix()
-        n = self.n_positions
         with self._grid.hold_sync():
             self._s_color.max = float(m.max()) if m.max() > 0 else 1.0
             self._grid.color = m
-            if n <= 12:
-                self._grid.display_format = ".2f" if self.normalize else ".0f"
+            self._tooltip.labels = [
+                "true class",
+                "predicted",
+                "share of the true class" if self.normalize else "samples",
+            ]
+            self._tooltip.formats = ["", "", ".3f" if self.normalize else ".0f"]
+        self._draw_numbers()
+
+    def _hidden(self) -> np.ndarray:
+        """Which drawn cells are left blank: the diagonal with ``hide_diagonal`` (not the "other" cell)."""
+        n = self.n_positions
+        hidden = np.zeros((n, n), dtype=bool)
+        if self.hide_diagonal:
+            hidden[np.arange(n), np.arange(n)] = True
+            if self.has_other:
+                hidden[-1, -1] = False  # it holds the confusions among the "other" classes
+        return hidden
+
+    def _draw_numbers(self) -> None:
+        """Each cell's number (blank where hidden), and under it how many selected rows the cell holds."""
+        n = self.n_positions
+        m = self.matrix()
+        hidden = self._hidden()
+        text = [["" if hidden[i, j] else (f"{m[i, j]:.2f}" if self.normalize else f"{int(m[i, j]):,}")
+                 for j in range(n)] for i in range(n)]  # fmt: skip
+        self.cell_text = text
+        rows_sel = self.state.rows
+        if rows_sel.size:
+            per_cell = np.bincount(self._cell[rows_sel], minlength=n * n).reshape(n, n)
+        else:
+            per_cell = np.zeros((n, n), dtype=np.int64)
+        cells = np.argwhere(per_cell > 0)
+        self.outlined = [(int(i), int(j)) for i, j in cells]
+        show = n <= MAX_NUMBERED
+        if not show:
+            cells = cells[:0]
+        ii, jj = np.meshgrid(np.arange(n), np.arange(n), indexing="ij")
+        keys = np.asarray(self._keys, dtype=object)
+        with self.figure.hold_sync():
+            with self._numbers.hold_sync():
+                if show:
+                    dim = rows_sel.size > 0
+                    pairs = list(zip(ii.ravel().tolist(), jj.ravel().tolist(), strict=True))
+                    self._numbers.x, self._numbers.y = keys[jj.ravel()], keys[ii.ravel()]
+                    self._numbers.text = [text[i][j] for i, j in pairs]
+                    self._numbers.colors = [MUTED if dim and per_cell[i, j] == 0 else INK for i, j in pairs]
+                    self._numbers.y_offset = -5 if cells.size else 0
+                self._numbers.visible = show
+            with self._selected_numbers.hold_sync():
+                if cells.size:
+                    self._selected_numbers.x, self._selected_numbers.y = keys[cells[:, 1]], keys[cells[:, 0]]
+                    self._selected_numbers.text = [f"{int(per_cell[i, j]):,} sel." for i, j in cells]
+                self._selected_numbers.visible = bool(cells.size)
 
     def _on_k(self, change: Any = None) -> None:
         self.pairs = list(self.summary_at(self.k).pairs)
         names = self.frame.classes
         buttons = []
         for pair in self.pairs:
-            text = f"{short_label(names[pair.true], 18)} → {short_label(names[pair.other], 18)}: {pair.count:,}"
-            b = widgets.Button(
-                description=text,
-                tooltip=f"{names[pair.true]} → {names[pair.other]}: {pair.rate:.1%} of the true class",
-                layout={"width": "100%"},
-            )
-            b.add_class("logitscope-pair")
-            b.on_click(lambda _b, p=pair: self.select_pair(p.true, p.other))
-            buttons.append(b)
+            a, b = names[pair.true], names[pair.other]
+            if self.k == 1:
+                text = f"{short_label(a, 18)} read as {short_label(b, 18)} ({pair.count:,})"
+                tip = f"{a} read as {b}: {pair.count:,} samples, {pair.rate:.1%} of the true class"
+            else:
+                text = f"{short_label(a, 18)}: {short_label(b, 18)} in its top {self.k} ({pair.count:,})"
+                tip = f"{a} with {b} among its top {self.k}: {pair.count:,} samples, {pair.rate:.1%} of the true class"
+            btn = widgets.Button(description=text, tooltip=tip, layout={"width": "100%"})
+            btn.add_class("logitscope-pair")
+            btn.on_click(lambda _b, p=pair: self.select_pair(p.true, p.other))
+            buttons.append(btn)
         if not buttons:
-            buttons = [widgets.Label("no confused pairs")]
+            buttons = [widgets.Label("no sample is read as another class")]
         self._pair_box.children = buttons
 
     # ------------------------------------------------------------------ selection in
 
     def _on_rows(self, change: Any = None) -> None:
         rows = self.state.rows
+        if not self.owns_selection or rows.size == 0:
+            self._reset_click_buttons()
         if rows.size == 0:
             self._grid.selected = None
             self._note.value = ""
+            self._draw_numbers()
             return
         n = self.n_positions
         codes = self._cell[rows]
         cells = np.flatnonzero(np.bincount(codes[codes >= 0], minlength=n * n))
         self._grid.selected = np.stack([cells // n, cells % n], axis=1).astype(np.int32)
-        self._note.value = f"{rows.size:,} selected rows fall in {cells.size:,} cells"
+        self._draw_numbers()
+        held = "" if n <= MAX_NUMBERED else " (hover a cell for its numbers)"
+        self._note.value = (
+            css("views") + f"<span class='ls-note'>{rows.size:,} selected rows fall in {cells.size:,} cells, "
+            f"outlined{held}{self.selected_by()}</span>"
+        )
 
     # ------------------------------------------------------------------ selection out
 
@@ -375,9 +501,10 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         n = self.n_positions
         if not (0 <= row < n and 0 <= column < n):
             raise ParameterError(f"cell positions must lie in [0, {n}), got ({row}, {column})")
+        picked = self.select(np.flatnonzero((self._true_pos == row) & (self._pred_pos == column)))
         self.clicked = (int(row), int(column))
         self._update_click_buttons()
-        return self.select(np.flatnonzero((self._true_pos == row) & (self._pred_pos == column)))
+        return picked
 
     def select_pair(self, true: int, other: int) -> np.ndarray:
         """Select samples of class ``true`` with ``other`` among their top ``k`` logits (k = 1: predicted)."""
@@ -407,9 +534,19 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         r, c = self.clicked
         nr = int(self.aggregated[r].sum())
         nc = int(self.aggregated[:, c].sum())
-        self._row_button.description = f"whole row: true {short_label(self.position_names[r])} ({nr:,})"
-        self._col_button.description = f"whole column: predicted {short_label(self.position_names[c])} ({nc:,})"
+        true, pred = self.position_names[r], self.position_names[c]
+        self._row_button.description = f"whole row: true {short_label(true)} ({nr:,})"
+        self._row_button.tooltip = f"every sample of true class {true}"
+        self._col_button.description = f"whole column: predicted {short_label(pred)} ({nc:,})"
+        self._col_button.tooltip = f"every sample predicted as {pred}"
         self._row_button.disabled = self._col_button.disabled = False
+
+    def _reset_click_buttons(self) -> None:
+        """No clicked cell: the buttons go back to their plain labels (the selection was cleared or replaced)."""
+        self.clicked = None
+        self._row_button.description, self._col_button.description = _ROW_BUTTON, _COL_BUTTON
+        self._row_button.tooltip = self._col_button.tooltip = "click a cell first"
+        self._row_button.disabled = self._col_button.disabled = True
 
     def _select_clicked(self, which: str) -> None:
         if self.clicked is None:
@@ -431,11 +568,11 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         if not self._ready or not self.frame.has_labels:
             return
         self._compute_structure()
-        ticks = {str(i): short_label(n) for i, n in enumerate(self.position_names)}
-        self._ax_col.tick_labels = ticks
-        self._ax_row.tick_labels = ticks
-        self.clicked = None
-        self._row_button.disabled = self._col_button.disabled = True
+        with self._grid.hold_sync():
+            keys = np.asarray(self._keys, dtype=object)
+            self._grid.row, self._grid.column = keys, keys
+        self._place_ticks()
+        self._reset_click_buttons()
         self._recolor()
         self._on_k()
         self._on_rows()

@@ -2,7 +2,7 @@
 
 "Explore" holds the score scatter, the confidence histogram, the confusion
 heat map, the sample gallery and card, the temperature dial, the relabel
-queue and the label-issue picker. "Calibrate and decide" holds the
+queue and the doubtful-label picker. "Calibrate and decide" holds the
 calibration panel; it is built the first time the tab is opened (or
 :attr:`Dashboard.calibration` is read), so the first view appears sooner.
 "History" plots the set-level numbers of every frame the dashboard has shown
@@ -43,9 +43,10 @@ from .confusion import ConfusionHeatmap
 from .dial import TemperatureDial
 from .forgetting import ForgettingList
 from .gallery import SampleGallery
+from .gate import ShownWhenVisible
 from .histogram import ConfidenceHistogram
 from .history import EpochHistoryView
-from .relabel import LabelIssuePicker, RelabelQueue
+from .relabel import DoubtfulLabelPicker, RelabelQueue
 from .scatter import ScoreScatter
 from .state import SharedState
 
@@ -60,13 +61,20 @@ COMPARE_TITLE = "Compare"
 _HISTORY_TAB = 2
 #: Names of the two frames in the comparison tab and its messages.
 COMPARE_NAMES = ("this dashboard's frame", "the other frame")
+#: Height of the sample card: fixed, so the layout does not move when it fills (its content scrolls).
+CARD_HEIGHT = "520px"
+#: Tiles per gallery page: three rows beside the card on a wide page.
+GALLERY_PAGE = 12
+#: Long side of the image in the card: small enough for the image and the scores to sit side by side.
+CARD_IMAGE = 168
 #: Frames kept for stepping back to an earlier update (the numbers of every update are kept).
 KEEP_FRAMES = 10
 
 
-def _panel(title: str, child: widgets.Widget, **layout: str) -> widgets.VBox:
-    head = widgets.HTML(f"<b>{html.escape(title)}</b>")
-    box = widgets.VBox([head, child], layout=widgets.Layout(**{"padding": "4px 6px", "min_width": "0", **layout}))
+def _panel(title: str | None, child: widgets.Widget, **layout: str) -> widgets.VBox:
+    """A view in a padded box, under a bold title (None: the view shows its own title)."""
+    parts = [child] if title is None else [widgets.HTML(f"<b>{html.escape(title)}</b>"), child]
+    box = widgets.VBox(parts, layout=widgets.Layout(**{"padding": "4px 6px", "min_width": "0", **layout}))
     box.add_class("logitscope-panel")
     return box
 
@@ -137,11 +145,11 @@ class Dashboard(LinkedView, widgets.VBox):
         self.histogram = ConfidenceHistogram(frame, st)
         self.confusion = ConfusionHeatmap(frame, st, max_classes=max_classes)
         self.scatter = ScoreScatter(frame, st)
-        self.gallery = SampleGallery(frame, st)
-        self.card = SampleCard(frame, st)
+        self.gallery = SampleGallery(frame, st, page_size=GALLERY_PAGE)
+        self.card = SampleCard(frame, st, image_size=CARD_IMAGE)
         self.dial = TemperatureDial(frame, st)
         self.queue = RelabelQueue(frame, st, path=relabel_path)
-        self.issues = LabelIssuePicker(frame, st, queue=self.queue)
+        self.doubtful = DoubtfulLabelPicker(frame, st, queue=self.queue)
         self._calibration: CalibrationPanel | None = None
         self.comparison: CheckpointComparisonView | None = None
         self.forgetting_list = ForgettingList(frame, st)
@@ -154,20 +162,27 @@ class Dashboard(LinkedView, widgets.VBox):
         self._clear.on_click(lambda b: self.state.clear(origin=self.origin))
         title = widgets.HTML("<b>logitscope</b>")
         header = widgets.HBox(
-            [title, self._summary, self.dial],
+            [title, self._summary], layout=widgets.Layout(align_items="center", flex_flow="row wrap", gap="0 16px")
+        )
+        # the selection line and the temperature dial share a row; the dial wraps below on a narrow page
+        selection_bar = widgets.HBox(
+            [widgets.HBox([self._selection, self._clear], layout=widgets.Layout(align_items="center")), self.dial],
             layout=widgets.Layout(align_items="center", justify_content="space-between", flex_flow="row wrap"),
         )
-        selection_bar = widgets.HBox([self._selection, self._clear], layout=widgets.Layout(align_items="center"))
-
+        # The card sits beside the gallery at a fixed height (its content scrolls inside), so a click on
+        # a tile never moves the tiles: the layout stays put whatever the card shows.
+        self.card.layout.height = CARD_HEIGHT
         row1 = _row(
-            _panel("Score scatter", self.scatter, flex="1.3 1 400px", min_width="360px"),
-            _panel("Confidence histogram", self.histogram, flex="1 1 280px", min_width="270px"),
-            # the card's own stylesheet asks for at least 400 px plus its padding
-            _panel("Sample card", self.card, flex="0 0 440px", min_width="440px"),
+            _panel("Score scatter", self.scatter, flex="1.3 1 420px", min_width="360px"),
+            _panel("Confidence histogram", self.histogram, flex="1 1 300px", min_width="280px"),
         )
-        row2 = _row(_panel("Samples", self.gallery, flex="1 1 100%"))
+        row2 = _row(
+            _panel(None, self.gallery, flex="1 1 330px", min_width="310px"),
+            # the card's own stylesheet asks for at least 360 px plus its padding
+            _panel("Sample card", self.card, flex="0 0 380px", min_width="380px"),
+        )
         side = widgets.VBox(
-            [_panel("Relabel queue", self.queue), _panel("Label-issue candidates", self.issues)],
+            [_panel(None, self.queue), _panel(None, self.doubtful)],
             layout=widgets.Layout(flex="1 1 380px", min_width="340px"),
         )
         row3 = _row(_panel("Confusion matrix", self.confusion, flex="1.4 1 640px"), side)
@@ -176,14 +191,19 @@ class Dashboard(LinkedView, widgets.VBox):
         self.history_view = EpochHistoryView(
             [epoch_record(frame, 0, label, st.binning)], on_pick=self.show_update, kept=lambda i: i in self._frames
         )
-        # Tabs out of sight get their views when first opened: bqplot lays out a figure drawn in a
-        # hidden tab at zero size (negative plot areas, console errors) until the next resize.
-        self.history_tab = widgets.VBox([widgets.Label("drawing the history…")])
-        self.tabs = widgets.Tab(children=[self.explore, self._calibrate_box, self.history_tab], titles=list(TAB_TITLES))
+        self.history_tab = widgets.VBox([self.history_view, self.forgetting_list], layout=widgets.Layout(width="100%"))
+        # Each tab holds its content only while it is shown: a bqplot figure drawn inside a hidden tab
+        # (also after a page reload) has no size and fills the console with negative-size errors.
+        self._tab_contents: list[widgets.Widget] = [self.explore, self._calibrate_box, self.history_tab]
+        self._tab_holders = [widgets.VBox(layout=widgets.Layout(width="100%")) for _ in self._tab_contents]
+        self.tabs = widgets.Tab(children=self._tab_holders, titles=list(TAB_TITLES))
+        self._attach_tab(0)
         self.tabs.observe(self._on_tab, "selected_index")
-        widgets.VBox.__init__(
-            self, children=[header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"), **kwargs
+        # drawn by the browser only once the dashboard is on screen (see ShownWhenVisible)
+        self.gate = ShownWhenVisible(
+            widgets.VBox([header, selection_bar, self.tabs], layout=widgets.Layout(width="100%"))
         )
+        widgets.VBox.__init__(self, children=[self.gate], layout=widgets.Layout(width="100%"), **kwargs)
         self.add_class("logitscope-dashboard")
         self._on_temperature()
         if compare_to is not None:
@@ -209,8 +229,8 @@ class Dashboard(LinkedView, widgets.VBox):
     def views(self) -> list[LinkedView]:
         """Every linked view of the dashboard (the calibration panel's once it is built), panel last."""
         out: list[LinkedView] = [
-            self.histogram, self.confusion, self.scatter, self.gallery, self.card, self.dial, self.queue, self.issues,
-            self.forgetting_list,
+            self.histogram, self.confusion, self.scatter, self.gallery, self.card, self.dial, self.queue,
+            self.doubtful, self.forgetting_list,
         ]  # fmt: skip
         if self.comparison is not None:
             out.append(self.comparison)
@@ -261,15 +281,17 @@ class Dashboard(LinkedView, widgets.VBox):
         self.comparison = view
         titles = [self.tabs.get_title(i) for i in range(len(self.tabs.children))]
         if old is None:
-            self._compare_box = widgets.VBox([widgets.Label("drawing the comparison…")], layout={"width": "100%"})
-            self.tabs.children = [*self.tabs.children, self._compare_box]
+            self._tab_contents.append(view)
+            self._tab_holders.append(widgets.VBox(layout=widgets.Layout(width="100%")))
+            self.tabs.children = [*self.tabs.children, self._tab_holders[-1]]
             self.tabs.titles = [*titles, COMPARE_TITLE]
         else:
+            self._tab_contents[self._compare_index] = view
             old.close()
         # out of sight the view neither redraws on each selection nor recompares on each update
         view.live = self.tabs.selected_index == self._compare_index
         if view.live:
-            self._compare_box.children = [view]
+            self._attach_tab(self._compare_index)
         return view
 
     def forgetting(self) -> FrameForgetting:
@@ -400,7 +422,9 @@ class Dashboard(LinkedView, widgets.VBox):
             self._calibration = CalibrationPanel(self.frame, self.state)
             self._calibration.relabel_store = self.queue.store
             self._calibration.sweep.live = self.tabs.selected_index == 1
-            self._calibrate_box.children = [self._calibration]
+            self._tab_contents[1] = self._calibration
+            if self.tabs.selected_index == 1:
+                self._attach_tab(1)
         return self._calibration
 
     # ------------------------------------------------------------------ callbacks
@@ -409,20 +433,28 @@ class Dashboard(LinkedView, widgets.VBox):
     def _compare_index(self) -> int:
         return len(TAB_TITLES)
 
+    def _attach_tab(self, index: int | None) -> None:
+        """Put the content of tab ``index`` in its holder and take every other tab's content out."""
+        for i, holder in enumerate(self._tab_holders):
+            want: tuple[widgets.Widget, ...] = (self._tab_contents[i],) if i == index else ()
+            if holder.children != want:
+                holder.children = want
+
     def _on_tab(self, change: Any) -> None:
+        index = change["new"]
+        if index == 1:
+            self.calibration  # noqa: B018 (built on first use)
+        self._attach_tab(index)
         # the sweep's selection curve costs a pass per temperature: keep it for when its tab is in sight
-        if change["new"] == 1:
+        if index == 1:
             self.calibration.sweep.live = True
         elif self._calibration is not None:
             self._calibration.sweep.live = False
         # the forgetting ranking costs a pass over every kept frame: made when its tab is in sight
-        if change["new"] == _HISTORY_TAB:
-            self.history_tab.children = [self.history_view, self.forgetting_list]
+        if index == _HISTORY_TAB:
             self._refresh_forgetting()
         if self.comparison is not None:
-            self.comparison.live = change["new"] == self._compare_index
-            if self.comparison.live:
-                self._compare_box.children = [self.comparison]
+            self.comparison.live = index == self._compare_index
 
     def _on_rows(self, change: Any = None) -> None:
         rows = self.state.rows

@@ -14,9 +14,10 @@ from ..frame import LogitFrame
 from ._assets import esm
 from .base import LinkedView
 from .state import SharedState
+from .style import ENERGY
 from .thumbnails import ThumbnailCache, snippet
 
-__all__ = ["SampleGallery", "page_probabilities"]
+__all__ = ["SampleGallery", "page_probabilities", "sort_columns"]
 
 NAME = "gallery"
 
@@ -111,8 +112,7 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
         self.page_size = int(page_size)
         self._thumbnail_size = int(thumbnail_size)
         self.thumbnails = ThumbnailCache(frame.payload, size=thumbnail_size)
-        cols = [c for c in an.SCORE_COLUMNS if c != "predicted" and (frame.has_labels or c in _UNLABELLED)]
-        cols.append("row")
+        cols = sort_columns(frame)
         self._check_sort(sort_by, cols)
         self._order_key: tuple[Any, ...] | None = None
         self._order_rows: np.ndarray | None = None
@@ -285,3 +285,23 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
 
 
 _UNLABELLED = {"confidence", "entropy", "margin", "logit_margin", "energy"}
+
+
+def sort_columns(frame: LogitFrame) -> list[str]:
+    """The columns a gallery of ``frame`` can sort by: its scores (no energy for probabilities), then ``"row"``.
+
+    Examples
+    --------
+    >>> import logitscope
+    >>> frame = logitscope.load_demo("mailroom")
+    >>> "energy" in sort_columns(frame), "energy" in sort_columns(LogitFrame.from_probabilities(frame.probabilities()))
+    (True, False)
+    """
+    cols = [
+        c
+        for c in an.SCORE_COLUMNS
+        if c != "predicted"
+        and (frame.has_labels or c in _UNLABELLED)
+        and not (c == ENERGY and frame.source == "probabilities")
+    ]
+    return [*cols, "row"]

@@ -19,9 +19,10 @@ from traittypes import Array  # the array trait bqplot declares its own with
 
 from ..errors import ParameterError
 from ..frame import LogitFrame
+from ..ticks import nice_ticks
 from .base import LinkedView
 from .state import SharedState
-from .style import RIGHT, SELECTED, UNLABELLED, WRONG, css, score_menu
+from .style import RIGHT, SCORE_NAMES, UNLABELLED, WRONG, css, figure_layout, score_menu, score_options
 
 __all__ = ["ConfidenceHistogram", "QuietIntervalBrush"]
 
@@ -113,15 +114,17 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
             x=np.zeros(1),
             y=np.zeros((len(series), 1)),
             scales={"x": self._sx, "y": self._sy},
-            colors=[SELECTED, "#7a2e0b"] if labelled else [SELECTED],
+            colors=[RIGHT, WRONG] if labelled else [RIGHT],
             labels=[f"{s}, selected" for s in series],
             padding=0.05,
             type="stacked",
             opacities=[1.0] * len(series),
             visible=False,
         )
-        self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none")
-        self._ay = bq.Axis(scale=self._sy, side="left", label="samples", grid_lines="none", tick_format="~s")
+        self._ax = bq.Axis(scale=self._sx, label=score, grid_lines="none", tick_format="~g", label_offset="34px")
+        self._ay = bq.Axis(
+            scale=self._sy, side="left", label="samples", grid_lines="none", tick_format="~s", label_offset="42px"
+        )
         self._brush = QuietIntervalBrush(scale=self._sx, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected"])
         self.figure = bq.Figure(
@@ -129,11 +132,11 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
             marks=[self._bars, self._sel_bars],
             axes=[self._ax, self._ay],
             interaction=self._brush,
-            fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
-            layout=widgets.Layout(width="100%", height="330px"),
+            fig_margin={"top": 10, "bottom": 48, "left": 58, "right": 12},
+            layout=figure_layout("100%", "330px", "260px"),
         )
         self._menu = widgets.Dropdown(
-            options=self.scores_offered, value=score, description="score", layout={"width": "210px"}
+            options=score_options(self.scores_offered), value=score, description="score", layout={"width": "210px"}
         )
         self._mode_buttons = widgets.ToggleButtons(
             options=["stacked", "side by side"], value=layout_mode, style={"button_width": "106px"}
@@ -141,7 +144,7 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
         key = "".join(
             f"<span class='ls-swatch' style='background:{c}'></span>{s}" for c, s in zip(colors, series, strict=True)
         )
-        self._key = widgets.HTML(f"{css('views')}<span class='ls-key'>{key} (darker: selected)</span>")
+        self._key = widgets.HTML(f"{css('views')}<span class='ls-key'>{key} (selected: full colour)</span>")
         widgets.VBox.__init__(
             self,
             children=[
@@ -208,10 +211,11 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
         width = self.edges[1] - self.edges[0]
         with self.figure.hold_sync():
             self._sx.min, self._sx.max = lo - width / 2, hi + width / 2
+            self._ax.tick_values = np.asarray(nice_ticks(lo, hi, n=6))
             with self._bars.hold_sync():
                 self._bars.x = centres
                 self._bars.y = self.counts()
-            self._ax.label = self.score.replace("_", " ")
+            self._ax.label = SCORE_NAMES.get(self.score, self.score)
             with self._sel_bars.hold_sync():
                 self._sel_bars.x = centres
                 self._sel_bars.y = np.zeros((len(self._groups()), self.n_bins))

@@ -20,7 +20,7 @@ import traitlets
 
 from ..findings import EPOCH_COLUMNS, EpochRecord
 from ..ticks import nice_ticks
-from .style import MUTED, SELECTED, css
+from .style import MUTED, SELECTED, css, figure_layout
 
 __all__ = ["EpochHistoryView"]
 
@@ -99,7 +99,7 @@ class EpochHistoryView(widgets.VBox):
                 fig_margin={"top": 28, "bottom": 40, "left": 52, "right": 10},
                 padding_y=0.1,
                 display_toolbar=False,
-                layout=widgets.Layout(width="230px", height="190px"),
+                layout=figure_layout("230px", "190px"),
             )
         self.note = widgets.HTML()
         widgets.VBox.__init__(

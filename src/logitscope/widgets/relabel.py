@@ -1,4 +1,4 @@
-"""RelabelQueue (marks for relabeling, saved to a file) and LabelIssuePicker (select likely label errors)."""
+"""RelabelQueue (marks for relabeling, saved to a file) and DoubtfulLabelPicker (select the most doubtful labels)."""
 
 from __future__ import annotations
 
@@ -12,19 +12,26 @@ import numpy as np
 import pandas as pd
 import traitlets
 
-from ..errors import ClassNameError, LabelError, LogitscopeError, ParameterError
+from ..errors import ClassNameError, InputTypeError, LabelError, LogitscopeError, ParameterError
 from ..findings import SuspectLabels, suspect_labels
 from ..frame import LogitFrame
+from ..parameters import RANGES
+from ..parameters import check as check_parameter
 from ..relabel_store import RelabelStore, RelabelStoreWarning, default_path
 from ._assets import esm
 from .base import LinkedView
 from .state import SharedState
 
-__all__ = ["LabelIssuePicker", "RelabelQueue"]
+__all__ = ["DoubtfulLabelPicker", "RelabelQueue"]
 
 QUEUE_NAME = "relabel queue"
-PICKER_NAME = "label issue picker"
-METHODS = ("confident_learning", "self_confidence", "normalized_margin")
+PICKER_NAME = "doubtful-label picker"
+#: The ranking methods and how the picker's menu names them.
+METHODS = {
+    "confident_learning": "confident learning",
+    "given_probability": "given-label probability",
+    "label_margin": "label margin",
+}
 #: Most samples one click on "mark selection" marks; more is likely a slip (Python's mark() has no limit).
 UI_MARK_LIMIT = 5000
 
@@ -40,7 +47,7 @@ class RelabelQueue(LinkedView, anywidget.AnyWidget):
     The suggested label defaults, per sample, to the most probable class other
     than the given label (the prediction when the model disagrees with the
     label), or, for samples flagged by the latest pick of a linked
-    :class:`LabelIssuePicker`, the class that pick suggested.
+    :class:`DoubtfulLabelPicker`, the class that pick suggested.
 
     Parameters
     ----------
@@ -131,7 +138,7 @@ class RelabelQueue(LinkedView, anywidget.AnyWidget):
         return out.astype(np.int64)
 
     def set_suggestions(self, rows: Any, classes: Any) -> None:
-        """Use these suggested class indices for these rows (a label-issue pick calls this)."""
+        """Use these suggested class indices for these rows (a doubtful-label pick calls this)."""
         r = np.asarray(rows, dtype=np.int64).ravel()
         c = np.asarray(classes, dtype=np.int64).ravel()
         if r.shape != c.shape:
@@ -284,14 +291,20 @@ class RelabelQueue(LinkedView, anywidget.AnyWidget):
         self._show()
 
 
-class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
-    """Select the samples whose given label is most likely wrong.
+class DoubtfulLabelPicker(LinkedView, anywidget.AnyWidget):
+    """Select the samples whose given label the model doubts most.
 
-    Ranks the frame with :func:`logitscope.analysis.rank_label_issues` (method
-    ``confident_learning``, ``self_confidence`` or ``normalized_margin``, at
-    the shared temperature) and selects the top ``n`` in the state, so the
-    gallery shows them. With ``queue`` given, the pick's suggested labels
-    become that queue's defaults for these samples.
+    Ranks the frame with :func:`logitscope.analysis.rank_doubtful_labels` at
+    the shared temperature, by one of three methods:
+
+    - ``"confident_learning"`` (Northcutt, Jiang and Chuang 2021): flags the
+      samples that confidently count for another class than their label;
+    - ``"given_probability"``: every sample, lowest probability of its given label first;
+    - ``"label_margin"``: every sample, lowest given-label probability minus the best other class's first;
+
+    and selects the top ``n`` in the state, so the gallery shows them. With
+    ``queue`` given, the pick's suggested labels become that queue's defaults
+    for these samples.
 
     Parameters
     ----------
@@ -300,25 +313,28 @@ class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
     state : SharedState, optional
     method : str, default "confident_learning"
     n : int, default 24
+        How many to select, in the range of ``n_candidates`` (:mod:`logitscope.parameters`).
     queue : RelabelQueue, optional
 
     Examples
     --------
     >>> import logitscope
     >>> frame = logitscope.load_demo("mailroom")
-    >>> picker = LabelIssuePicker(frame, n=10)
+    >>> picker = DoubtfulLabelPicker(frame, n=10)
     >>> picker.pick()
     >>> picker.state.rows.size, picker.state.origin_name
-    (10, 'label issue picker')
+    (10, 'doubtful-label picker')
     """
 
     _esm = esm("relabel.js")
-    kind = "label issue picker"
+    kind = PICKER_NAME
 
     _kind = traitlets.Unicode("picker").tag(sync=True)
-    methods = traitlets.List(traitlets.Unicode(), list(METHODS)).tag(sync=True)
+    methods = traitlets.List(traitlets.List(traitlets.Unicode()), help="[value, text] of each method").tag(sync=True)
     method = traitlets.Unicode("confident_learning").tag(sync=True)
     n = traitlets.Int(24).tag(sync=True)
+    n_min = traitlets.Int(1, help="smallest n the box accepts (from the parameter range)").tag(sync=True)
+    n_max = traitlets.Int(100_000, help="largest n the box accepts (from the parameter range)").tag(sync=True)
     status = traitlets.Unicode("").tag(sync=True)
     enabled = traitlets.Bool(True).tag(sync=True)
 
@@ -335,11 +351,15 @@ class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
         self.queue = queue
         self.ranking: SuspectLabels | None = None
         self._cache: dict[tuple[str, float], SuspectLabels] = {}
-        super().__init__(method=method, n=n, enabled=frame.has_labels, **kwargs)
+        lo, hi, _ = RANGES["n_candidates"].control_bounds()
+        super().__init__(
+            methods=[[m, t] for m, t in METHODS.items()], method=method, n=n, n_min=int(lo), n_max=int(hi),
+            enabled=frame.has_labels, **kwargs,
+        )  # fmt: skip
         self.status = (
             "choose a method and how many, then select"
             if frame.has_labels
-            else "this frame has no labels: label issues cannot be ranked"
+            else "this frame has no labels: doubtful labels cannot be ranked"
         )
         self.on_msg(self._on_msg)
 
@@ -347,18 +367,16 @@ class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
     def _valid_method(self, proposal: Any) -> str:
         if proposal["value"] not in METHODS:
             raise ParameterError(f"method must be one of {', '.join(METHODS)}; got {proposal['value']!r}")
-        return proposal["value"]
+        return str(proposal["value"])
 
     @traitlets.validate("n")
     def _valid_n(self, proposal: Any) -> int:
-        if int(proposal["value"]) < 1:
-            raise ParameterError(f"n must be at least 1, got {proposal['value']}")
-        return int(proposal["value"])
+        return int(check_parameter(proposal["value"], "n_candidates"))
 
     def rank(self) -> SuspectLabels:
         """The full ranking for the current method at the shared temperature (cached; labelled rows only)."""
         if self.frame.labels is None:
-            raise LabelError("ranking label issues needs labels; this frame has none (use with_labels)")
+            raise LabelError("ranking doubtful labels needs labels; this frame has none (use with_labels)")
         key = (self.method, float(self.state.temperature))
         hit = self._cache.get(key)
         if hit is None:
@@ -367,27 +385,51 @@ class LabelIssuePicker(LinkedView, anywidget.AnyWidget):
         return hit
 
     def pick(self) -> None:
-        """Select the top ``n`` candidates in the state (origin ``"label issue picker"``)."""
+        """Select the ``n`` most doubtful samples in the state (origin: this picker)."""
         ranking = self.rank()
         top = ranking.top(self.n)
         self.ranking = top
         if self.queue is not None:
             self.queue.set_suggestions(top.rows, top.suggested)
         self.select(top.rows)
-        flagged = (
-            f" of {ranking.n_flagged:,} flagged"
-            if self.method == "confident_learning"
-            else f" of {ranking.n_flagged:,} ranked"
-        )
         t = self.state.temperature
-        self.status = f"selected {len(top):,}{flagged} ({self.method.replace('_', ' ')}, T = {t:.3g})"
+        how = f"{METHODS[self.method]}, T = {t:.3g}"
+        if ranking.n_flagged == 0:
+            self.status = f"no sample is flagged ({how})"
+            return
+        verb = "flagged" if self.method == "confident_learning" else "ranked"
+        self.status = f"selected {len(top):,} of {ranking.n_flagged:,} {verb} ({how})"
+
+    def set_count(self, value: Any) -> bool:
+        """Set ``n`` from the number box (text or number); return whether it was taken.
+
+        A value outside the range of ``n_candidates`` is refused with a message
+        in ``status`` and the box shows the kept value again: never clamped.
+        """
+        try:
+            number: Any = float(value)
+            number = int(number) if number.is_integer() else number
+        except (TypeError, ValueError, OverflowError):
+            number = value
+        try:
+            self.n = number
+        except (LogitscopeError, InputTypeError, traitlets.TraitError) as exc:
+            self.status = f"not changed: {exc}"
+            self.send_state("n")  # the box shows the kept value again
+            return False
+        return True
 
     def _on_msg(self, widget: Any, content: Any, buffers: Any) -> None:
-        if isinstance(content, dict) and content.get("action") == "pick":
-            try:
+        if not isinstance(content, dict):
+            return
+        action = content.get("action")
+        try:
+            if action == "pick":
                 self.pick()
-            except LogitscopeError as exc:
-                self.status = f"not done: {exc}"
+            elif action == "n":
+                self.set_count(content.get("value"))
+        except LogitscopeError as exc:
+            self.status = f"not done: {exc}"
 
     def on_frame(self) -> None:
         self.ranking = None

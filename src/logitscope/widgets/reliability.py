@@ -27,9 +27,9 @@ from ..frame import LogitFrame
 from ..rows import rows_or_all
 from .base import LinkedView
 from .state import SharedState
-from .style import INK, MUTED, OVER, REFERENCE, SELECTED, UNDER, css
+from .style import MARK, MUTED, OVER, REFERENCE, SELECTED, UNDER, css, figure_layout
 
-__all__ = ["ReliabilityDiagram", "numbers_table"]
+__all__ = ["ReliabilityDiagram", "count_labels", "numbers_table"]
 
 _STRATEGY_BUTTONS = {"equal width": "uniform", "equal mass": "quantile"}
 _COUNT_FILL = "#9fb3c8"
@@ -59,6 +59,39 @@ def numbers_table(summary: CalibrationSummary, caption: str = "") -> str:
     cap = f"<caption>{html.escape(caption)}</caption>" if caption else ""
     body = "".join(f"<tr><th>{k}</th><td data-key='{k}'>{v}</td></tr>" for k, v in rows)
     return f"<table class='ls-numbers'>{cap}{body}</table>"
+
+
+#: Width in pixels of the count strip's plot area (330 px figure less its 52 + 14 px margins).
+_STRIP_PX = 264.0
+
+
+def count_labels(lower: np.ndarray, upper: np.ndarray, counts: np.ndarray, width_px: float = _STRIP_PX) -> list[str]:
+    """The count written over each bar of the strip, or "" where it would run into its left neighbour's.
+
+    Bars are placed left to right on a 0..1 axis of ``width_px`` pixels; a label
+    of ``d`` characters takes about ``5.6 d + 4`` pixels at the strip's 9 px font.
+    A label is kept when it starts right of where the last kept one ends, so no
+    two labels overlap however narrow the bins (equal-mass bins crowd near 1).
+
+    Examples
+    --------
+    >>> count_labels(np.array([0.0, 0.5]), np.array([0.5, 1.0]), np.array([3, 40]))
+    ['3', '40']
+    >>> count_labels(np.array([0.90, 0.91]), np.array([0.91, 0.92]), np.array([1234, 5678]))
+    ['1,234', '']
+    """
+    out: list[str] = []
+    right = -np.inf
+    for lo, hi, c in zip(lower.tolist(), upper.tolist(), counts.tolist(), strict=True):
+        text = f"{int(c):,}"
+        half = (5.6 * len(text) + 4) / 2
+        centre = (lo + hi) / 2 * width_px
+        if centre - half >= right:
+            out.append(text)
+            right = centre + half
+        else:
+            out.append("")
+    return out
 
 
 def _rects(lo: np.ndarray, hi: np.ndarray, y0: np.ndarray, y1: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -147,7 +180,7 @@ class ReliabilityDiagram(LinkedView, widgets.VBox):
         self._size = bq.LinearScale(min=0.0, max=1.0)
         self.dots = bq.Scatter(
             x=[0.5], y=[0.5], scales={**scales, "size": self._size}, size=[0.0], default_size=220,
-            colors=[INK], stroke="white", stroke_width=1.2,
+            colors=[MARK], stroke="white", stroke_width=1.2,
             tooltip=bq.Tooltip(fields=["x", "y"], labels=["mean confidence", "accuracy"], formats=[".3f", ".3f"]),
         )  # fmt: skip
         self.dots.on_element_click(self._on_click)
@@ -161,7 +194,7 @@ class ReliabilityDiagram(LinkedView, widgets.VBox):
             padding_x=0.0,
             padding_y=0.0,
             display_toolbar=False,
-            layout=widgets.Layout(width="330px", height="310px"),
+            layout=figure_layout("330px", "310px"),
             title=title,
             title_style={"font-size": "13px"},
         )
@@ -182,7 +215,7 @@ class ReliabilityDiagram(LinkedView, widgets.VBox):
             padding_x=0.0,
             padding_y=0.0,
             display_toolbar=False,
-            layout=widgets.Layout(width="330px", height="100px"),
+            layout=figure_layout("330px", "100px"),
         )
         lo, hi = Binning.N_BINS_RANGE
         self._strategy_buttons = widgets.ToggleButtons(
@@ -302,13 +335,13 @@ class ReliabilityDiagram(LinkedView, widgets.VBox):
             with self._count_labels.hold_sync():
                 self._count_labels.x = (lo + hi) / 2
                 self._count_labels.y = counts
-                self._count_labels.text = [f"{int(c):,}" for c in counts] if used.size <= 20 else [""] * used.size
+                self._count_labels.text = count_labels(lo, hi, counts)
         self.numbers_html.value = css("views") + numbers_table(f, f.binning.describe())
         self.on_selection(self.state.rows, self.owns_selection)
 
     def _paint_dots(self) -> None:
-        fills = [SELECTED if b == self.selected_bin else INK for b in self._drawn_bins]
-        self.dots.colors = fills or [INK]
+        fills = [SELECTED if b == self.selected_bin else MARK for b in self._drawn_bins]
+        self.dots.colors = fills or [MARK]
 
     # ------------------------------------------------------------------ selection out
 
@@ -368,7 +401,7 @@ class ReliabilityDiagram(LinkedView, widgets.VBox):
         _set_shapes(self.selected_bars, x, y, SELECTED, 1.0)
         self.selected_bars.visible = True
         where = self.selected_by()
-        self.note.value = f"{int(mine_mask.sum()):,} of these samples selected{where} (dark in the count strip)"
+        self.note.value = f"{int(mine_mask.sum()):,} of these samples selected{where} (purple in the count strip)"
 
     def on_temperature(self, temperature: float) -> None:
         self._redraw()

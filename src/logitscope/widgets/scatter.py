@@ -31,9 +31,22 @@ from traittypes import Array  # the array trait bqplot declares its own with
 
 from ..errors import ParameterError
 from ..frame import LogitFrame
+from ..text import shorten
+from ..ticks import nice_ticks
 from .base import LinkedView
 from .state import SharedState
-from .style import CLASS_COLORS, RIGHT, SELECTED, UNLABELLED, WRONG, css, score_menu
+from .style import (
+    CLASS_COLORS,
+    RIGHT,
+    SCORE_NAMES,
+    SELECTED,
+    UNLABELLED,
+    WRONG,
+    css,
+    figure_layout,
+    score_menu,
+    score_options,
+)  # fmt: skip
 
 __all__ = [
     "FADED",
@@ -44,8 +57,9 @@ __all__ = [
 ]
 
 _COLOR_MODES = {"correct / wrong": "correct", "true class": "label", "predicted class": "predicted"}
-#: Alpha factor of the points outside the selection while a selection is shown.
-FADED = 0.35
+#: Alpha factor of the points outside the selection while a selection is shown: faded, still readable
+#: on a white page and on JupyterLab's dark theme.
+FADED = 0.5
 
 
 class QuietBrush(BrushSelector):
@@ -288,7 +302,7 @@ class ScoreScatter(LinkedView, widgets.VBox):
         self.resolution = (width, height)
         n = frame.n_samples
         # bigger, more opaque discs for a few points; smaller, lighter ones for many
-        self._radius2, self._depth = (5.0, 1.2) if n <= 5_000 else (2.0, 1.5) if n <= 50_000 else (2.0, 2.5)
+        self._radius2, self._depth = (5.0, 0.8) if n <= 5_000 else (2.0, 1.2) if n <= 50_000 else (2.0, 2.0)
         self._columns: dict[str, np.ndarray] = {}
         self._columns_t: float | None = None
         self._last_box: tuple[float, float, float, float] | None = None
@@ -321,8 +335,10 @@ class ScoreScatter(LinkedView, widgets.VBox):
             stroke_width=2.0,
             visible=False,
         )
-        self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none")
-        self._ay = bq.Axis(scale=self._sy, label=y, side="left", grid_lines="none")
+        self._ax = bq.Axis(scale=self._sx, label=x, grid_lines="none", tick_format="~g", label_offset="34px")
+        self._ay = bq.Axis(
+            scale=self._sy, label=y, side="left", grid_lines="none", tick_format="~g", label_offset="42px"
+        )
         self._brush = QuietBrush(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
         self._brush.observe(self._on_brush, ["brushing", "selected_x", "selected_y"])
         self._probe: bq.Lines | None = None
@@ -332,13 +348,13 @@ class ScoreScatter(LinkedView, widgets.VBox):
             marks=[self._mark, self._top_mark, self._focus_mark],
             axes=[self._ax, self._ay],
             interaction=self._brush,
-            fig_margin={"top": 10, "bottom": 40, "left": 55, "right": 10},
+            fig_margin={"top": 10, "bottom": 48, "left": 58, "right": 12},
             padding_x=0.0,
             padding_y=0.0,
-            layout=widgets.Layout(width="100%", height="360px"),
+            layout=figure_layout("100%", "360px", "320px"),
         )
 
-        menu = {"options": self.scores_offered, "layout": {"width": "190px"}}
+        menu = {"options": score_options(self.scores_offered), "layout": {"width": "190px"}}
         self._x_menu = widgets.Dropdown(value=x, description="x", **menu)
         self._y_menu = widgets.Dropdown(value=y, description="y", **menu)
         self._c_menu = widgets.Dropdown(
@@ -405,12 +421,14 @@ class ScoreScatter(LinkedView, widgets.VBox):
         with self.figure.hold_sync():
             self._sx.min, self._sx.max = x0, x1
             self._sy.min, self._sy.max = y0, y1
+            self._ax.tick_values = np.asarray(nice_ticks(x0, x1, n=6))
+            self._ay.tick_values = np.asarray(nice_ticks(y0, y1, n=5))
             for mark in (self._mark, self._top_mark):
                 with mark.hold_sync():
                     mark.x = np.array([x0, x1])
                     mark.y = np.array([y0, y1])
-            self._ax.label = self.x_score.replace("_", " ")
-            self._ay.label = self.y_score.replace("_", " ")
+            self._ax.label = SCORE_NAMES.get(self.x_score, self.x_score)
+            self._ay.label = SCORE_NAMES.get(self.y_score, self.y_score)
         if self._probe is not None:
             with self._probe.hold_sync():
                 self._probe.x = x.astype(np.float32)
@@ -449,9 +467,9 @@ class ScoreScatter(LinkedView, widgets.VBox):
         if self.frame.has_labels and not self.frame.fully_labelled and field != "predicted":
             key.append((UNLABELLED, "no label"))
         self._base = None
-        swatch = "<span class='ls-swatch' style='background:{}'></span>{}"
-        # class names are user data: escaped before they reach HTML
-        parts = "".join(swatch.format(c, html.escape(str(s))) for c, s in key)
+        swatch = "<span class='ls-swatch' style='background:{}'></span><span title='{}'>{}</span>"
+        # class names are user data: escaped before they reach HTML, long ones cut (in full on hover)
+        parts = "".join(swatch.format(c, html.escape(str(s)), html.escape(shorten(s, 24))) for c, s in key)
         if not key:
             parts = "colour: class index modulo 10"
         self._key.value = f"{css('views')}<span class='ls-key'>{parts}</span>"

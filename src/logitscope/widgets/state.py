@@ -15,6 +15,7 @@ import numpy as np
 import traitlets
 
 from ..findings import Binning
+from ..parameters import check as check_parameter
 from ..rows import as_rows, rows_or_all
 
 __all__ = ["SharedState", "as_rows", "rows_or_all"]
@@ -107,10 +108,8 @@ class SharedState(traitlets.HasTraits):
 
     @traitlets.validate("temperature")
     def _valid_temperature(self, proposal: Any) -> float:
-        t = float(proposal["value"])
-        if not np.isfinite(t) or t <= 0:
-            raise traitlets.TraitError(f"temperature must be positive and finite, got {t}")
-        return t
+        # the one accepted range of every layer (logitscope.parameters): outside it, a ParameterError
+        return float(check_parameter(proposal["value"], "temperature"))
 
     def select(self, rows: Any, origin: str = "") -> None:
         """Replace the selection; ``origin`` is the token of the view making it.

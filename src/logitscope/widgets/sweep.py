@@ -14,7 +14,6 @@ should also lower the other part's NLL.
 from __future__ import annotations
 
 import html
-import math
 from typing import Any
 
 import bqplot as bq
@@ -25,11 +24,13 @@ import traitlets
 from ..errors import ParameterError
 from ..findings import CalibrationSummary, SweepFinding, calibration_summary, sweep_finding, sweep_grid
 from ..frame import LogitFrame
+from ..parameters import RANGES
+from ..parameters import check as check_parameter
 from ..rows import rows_or_all
 from ..ticks import nice_ticks
 from .base import LinkedView
 from .state import SharedState
-from .style import INK, SELECTED, css
+from .style import MARK, SELECTED, css, figure_layout
 
 __all__ = ["MAX_SELECTION_SWEEP", "TemperatureSweepView"]
 
@@ -114,7 +115,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                 visible=False, labels=[f"{label}, held out"],
             )  # fmt: skip
             rules = bq.Lines(
-                x=np.ones((2, 2)), y=np.zeros((2, 2)), scales=sc, colors=[_FITTED, INK], stroke_width=1.4,
+                x=np.ones((2, 2)), y=np.zeros((2, 2)), scales=sc, colors=[_FITTED, MARK], stroke_width=1.4,
                 line_style="dashed",
             )  # fmt: skip
             marks: list[bq.Mark] = [rules, comp, curve]
@@ -125,13 +126,13 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                     line_style="dash_dotted", visible=False, labels=["NLL, selection"],
                 )  # fmt: skip
                 self.marker = bq.Scatter(
-                    x=[1.0], y=[0.0], scales=sc, colors=[INK], default_size=90, enable_move=True, restrict_x=True,
+                    x=[1.0], y=[0.0], scales=sc, colors=[MARK], default_size=90, enable_move=True, restrict_x=True,
                     update_on_move=False, stroke="white", stroke_width=1.5,
                 )  # fmt: skip
                 # the dot's temperature as a label beside it, set from Python after every move (a tooltip
                 # would keep the value of the first draw)
                 self.marker_label = bq.Label(
-                    x=[1.0], y=[0.0], text=["T 1.000"], scales=sc, default_size=11, colors=[INK], x_offset=8,
+                    x=[1.0], y=[0.0], text=["T 1.000"], scales=sc, default_size=11, colors=[MARK], x_offset=8,
                     y_offset=-8, font_weight="bold",
                 )  # fmt: skip
                 self.marker.on_drag_end(self._on_drag_end)
@@ -140,23 +141,28 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
             self.figures[key] = bq.Figure(
                 marks=marks,
                 axes=[
-                    bq.Axis(scale=self._sx, label="temperature T", tick_format=".2~f", grid_lines="none"),
+                    bq.Axis(
+                        scale=self._sx, label="temperature T", tick_format=".2~f", grid_lines="none",
+                        label_offset="32px",
+                    ),
                     bq.Axis(
                         scale=self._scales[key], side="left", label=label, tick_format=".3~f", grid_lines="dashed",
                         label_offset="42px",
                     ),
                 ],
-                title=f"{label} against temperature" + (" (drag the dot)" if key == "nll" else ""),
+                title=f"{label} against T" + (" (drag the dot)" if key == "nll" else ""),
                 title_style={"font-size": "12.5px"},
-                fig_margin={"top": 30, "bottom": 44, "left": 58, "right": 12},
+                fig_margin={"top": 30, "bottom": 48, "left": 58, "right": 12},
                 padding_x=0.0,
                 padding_y=0.0,
                 display_toolbar=False,
-                layout=widgets.Layout(width="300px", height="240px"),
+                layout=figure_layout("256px", "240px"),
             )  # fmt: skip
+        # the slider spans the accepted temperature range: any value the API takes can be set and shown
+        t_lo, t_hi, t_step = RANGES["temperature"].control_bounds()
         self.slider = widgets.FloatLogSlider(
-            value=1.0, base=10, min=-1.0, max=1.0, step=0.005, description="T", continuous_update=False,
-            readout_format=".3f", style={"description_width": "20px"}, layout={"width": "340px"},
+            value=1.0, base=10, min=t_lo, max=t_hi, step=t_step, description="T", continuous_update=False,
+            readout_format=".4g", style={"description_width": "20px"}, layout={"width": "340px"},
         )  # fmt: skip
         self.fit_button = widgets.Button(
             description="use fitted T",
@@ -242,8 +248,6 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
             else sweep_finding(self.frame, self._part(self.compare_rows), b, grid=grid, fit=False)
         )
         lo, hi = float(grid.min()), float(grid.max())
-        with self.quietly():
-            self.slider.min, self.slider.max = math.log10(lo), math.log10(hi)
         for key, _, _ in _METRICS:
             values = [getattr(first, key)] + (
                 [] if self.compare_finding is None else [getattr(self.compare_finding, key)]
@@ -263,7 +267,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
         dashed = "" if self.compare_rows is None else f"; dashed: the {self.compare_rows.size:,} held-out rows"
         self.note.value = (
             f"{css('views')}<span class='ls-note'>Fitted on {html.escape(part_name)}: T = {fit.temperature:.4f} "
-            f"(red rule); black rule and dot: the current T{dashed}; dash-dotted: NLL of the selected samples. "
+            f"(red rule); grey rule and dot: the current T{dashed}; dash-dotted: NLL of the selected samples. "
             f"ECE with {html.escape(b.describe())}.{bound}</span>"
         )
         ticks = nice_ticks(lo, hi, log=True)
@@ -276,10 +280,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
 
     def set_temperature(self, temperature: float) -> None:
         """Write the shared temperature (as dragging the dot or moving the slider does)."""
-        t = float(temperature)
-        if not math.isfinite(t) or t <= 0:
-            raise ParameterError(f"temperature must be positive and finite, got {temperature!r}")
-        self.state.temperature = t
+        self.state.temperature = float(check_parameter(temperature, "temperature"))
 
     def use_fitted(self) -> float:
         """Set the shared temperature to the fitted one; return it."""
@@ -303,7 +304,7 @@ class TemperatureSweepView(LinkedView, widgets.VBox):
                 self.marker.x, self.marker.y = [t], [now.nll]
             with self.marker_label.hold_sync():
                 self.marker_label.x, self.marker_label.y, self.marker_label.text = [t], [now.nll], [f"T {t:.3f}"]
-            self.slider.value = min(max(t, 10**self.slider.min), 10**self.slider.max)
+            self.slider.value = t
         for key, _, _ in _METRICS:
             sc = self._scales[key]
             y0, y1 = sc.min, sc.max

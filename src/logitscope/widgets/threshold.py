@@ -33,11 +33,14 @@ from .. import analysis as an
 from ..errors import LogitscopeError, ParameterError
 from ..findings import INTERVAL_NAMES, ThresholdDecision, ThresholdRule, threshold_decision
 from ..frame import LogitFrame
+from ..parameters import RANGES
+from ..parameters import check as check_parameter
 from ..rows import rows_or_all
 from ..text import shorten
+from ..ticks import nice_ticks
 from .base import LinkedView
 from .state import SharedState
-from .style import SELECTED, css
+from .style import SELECTED, css, figure_layout
 
 __all__ = ["MODES", "ThresholdPicker"]
 
@@ -79,7 +82,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
     interval : {"wilson", "clopper-pearson"}
         Binomial confidence interval of the accuracy readouts.
     level : float
-        Confidence level of the interval, one of 0.9, 0.95, 0.99.
+        Confidence level of the interval, in (0, 1) (the menu offers 90 %, 95 % and 99 %, and this level).
     name : str, optional
         Readable name shown where the view's selection is described.
 
@@ -127,8 +130,6 @@ class ThresholdPicker(LinkedView, widgets.VBox):
     ) -> None:
         if mode not in MODES:
             raise ParameterError(f"mode must be one of {MODES}, got {mode!r}")
-        if float(level) not in LEVELS:
-            raise ParameterError(f"level must be one of {', '.join(f'{v:g}' for v in LEVELS)}, got {level!r}")
         # every rule option is checked once, by the rule itself
         ThresholdRule("accuracy", target_accuracy=target_accuracy, interval=interval, level=level)  # type: ignore[arg-type]
         ThresholdRule("cost", error_cost=error_cost, review_cost=review_cost)
@@ -153,7 +154,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
         self._ax = bq.Axis(scale=self._sx, label="coverage (share accepted without review)", tick_format=".1f")
         self._ay = bq.Axis(
             scale=self._sy, side="left", label="accuracy of accepted", tick_format=".3~f", grid_lines="dashed",
-            label_offset="50px",
+            label_offset="54px",
         )  # fmt: skip
         self.brush = BrushIntervalSelector(scale=self._sx, marks=[], color=SELECTED)
         self.brush.observe(self._on_brush, ["brushing", "selected"])
@@ -165,11 +166,12 @@ class ThresholdPicker(LinkedView, widgets.VBox):
             title_style={"font-size": "12.5px"},
             fig_margin={"top": 30, "bottom": 42, "left": 70, "right": 14},
             display_toolbar=False,
-            layout=widgets.Layout(width="460px", height="320px", flex="0 0 auto"),
+            layout=figure_layout("420px", "320px"),
         )
-        k = max(frame.n_classes, 2)
+        # every control takes its bounds from the parameter's accepted range: nothing the API accepts is clamped
+        t_lo, t_hi, t_step = RANGES["threshold"].control_bounds()
         self.slider = widgets.FloatSlider(
-            value=0.5, min=round(1.0 / k, 4), max=1.0, step=0.0005, description="threshold", readout_format=".4f",
+            value=0.5, min=t_lo, max=t_hi, step=t_step / 2, description="threshold", readout_format=".4f",
             continuous_update=False, style={"description_width": "64px"}, layout={"width": "420px"},
         )  # fmt: skip
         self._mode_buttons = widgets.ToggleButtons(
@@ -178,20 +180,22 @@ class ThresholdPicker(LinkedView, widgets.VBox):
             style={"button_width": "124px"},
             tooltips=["move the slider", "lowest threshold reaching a target accuracy", "least expected cost"],
         )
-        self._target = widgets.BoundedFloatText(
-            value=target_accuracy, min=0.001, max=1.0, step=0.005, description="target accuracy",
+        # a plain number box: a value outside the accepted range is refused with a message, never clamped
+        self._target = widgets.FloatText(
+            value=target_accuracy, step=0.005, description="target accuracy",
+            tooltip=f"in {RANGES['target_accuracy'].interval()}",
             style={"description_width": "110px"}, layout={"width": "210px"},
         )  # fmt: skip
         self._lower = widgets.Checkbox(value=False, description="interval's lower bound must reach it", indent=False)
         self._per_class = widgets.Checkbox(value=False, description="one threshold per predicted class", indent=False)
-        self._error_cost = _cost_box("cost of an error", error_cost)
-        self._review_cost = _cost_box("cost of a review", review_cost)
+        self._error_cost = _cost_box("cost of an accepted error", error_cost, "error_cost")
+        self._review_cost = _cost_box("cost of a review", review_cost, "review_cost")
         self._interval = widgets.Dropdown(
             options=[(v, k) for k, v in INTERVAL_NAMES.items()], value=interval, description="interval",
             style={"description_width": "56px"}, layout={"width": "250px"},
         )  # fmt: skip
         self._level = widgets.Dropdown(
-            options=[(f"{v:.0%}", v) for v in LEVELS], value=float(level), description="level",
+            options=_level_options(float(level)), value=float(level), description="level",
             style={"description_width": "40px"}, layout={"width": "120px"},
         )  # fmt: skip
         self._y_kind = widgets.ToggleButtons(
@@ -206,7 +210,10 @@ class ThresholdPicker(LinkedView, widgets.VBox):
         )
         self.note = widgets.HTML()
         self.error = widgets.HTML()
-        side = widgets.VBox([self.readout, self.caution], layout={"margin": "24px 0 0 8px", "width": "380px"})
+        # a fixed width: the readout stays beside the chart (or, on a narrow page, below it) in every mode
+        side = widgets.VBox(
+            [self.readout, self.caution], layout={"margin": "24px 0 0 8px", "width": "340px", "flex": "0 0 340px"}
+        )
         widgets.VBox.__init__(
             self,
             children=[
@@ -215,7 +222,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
                 self._cost_box,
                 self.error,
                 widgets.HBox([self.slider, widgets.Label("curve:"), self._y_kind], layout={"align_items": "center"}),
-                widgets.HBox([self.figure, side], layout={"flex_flow": "row nowrap", "align_items": "flex-start"}),
+                widgets.HBox([self.figure, side], layout={"flex_flow": "row wrap", "align_items": "flex-start"}),
                 self.note,
                 self.class_table,
             ],
@@ -256,6 +263,14 @@ class ThresholdPicker(LinkedView, widgets.VBox):
         if self.state.threshold is not None and mode == "by hand":
             self.threshold = float(self.state.threshold)
         self._refresh(apply_rule=True)
+
+    @traitlets.validate("level")
+    def _valid_level(self, proposal: Any) -> float:
+        level = float(check_parameter(proposal["value"], "level"))
+        menu = getattr(self, "_level", None)
+        if menu is not None and level not in [v for _, v in menu.options]:
+            menu.options = _level_options(level)
+        return level
 
     # ------------------------------------------------------------------ the rule and its finding
 
@@ -322,6 +337,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
         cy = c.accuracy if acc_mode else 1.0 - c.accuracy
         with self.figure.hold_sync():
             self._sy.min, self._sy.max = y0, y1
+            self._ay.tick_values = np.asarray(nice_ticks(y0, y1, n=5))  # few round ticks: none under the title
             self._ay.label = "accuracy of accepted" if acc_mode else "risk (error rate) of accepted"
             self.figure.title = (
                 "Accuracy of accepted predictions" if acc_mode else "Risk of accepted predictions"
@@ -359,7 +375,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
             ("accepted", f"{c.n_accepted:,}"),
             ("sent for review", f"{c.n_review:,}"),
             ("accuracy of accepted", _num(c.accuracy)),
-            (f"{c.level:.0%} interval ({INTERVAL_NAMES[c.interval_method]})", f"[{_num(lo)}, {_num(hi)}]"),
+            (f"{_level_text(c.level)} interval ({INTERVAL_NAMES[c.interval_method]})", f"[{_num(lo)}, {_num(hi)}]"),
         ]
         if c.expected_cost is not None:
             rows.append(("expected cost per sample", _num(c.expected_cost)))
@@ -374,7 +390,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
                 ("coverage", _pct(cb.coverage)),
                 ("sent for review", f"{cb.n_review:,}"),
                 ("accuracy of accepted", _num(cb.accuracy)),
-                (f"{cb.level:.0%} interval", f"[{_num(cb.interval[0])}, {_num(cb.interval[1])}]"),
+                (f"{_level_text(cb.level)} interval", f"[{_num(cb.interval[0])}, {_num(cb.interval[1])}]"),
             ]
         body = "".join(f"<tr><th>{k}</th><td>{v}</td></tr>" for k, v in rows)
         return f"<table class='ls-readout'>{body}</table>"
@@ -436,6 +452,7 @@ class ThresholdPicker(LinkedView, widgets.VBox):
         def copy(change: Any) -> None:
             value = change["new"]
             try:
+                check_parameter(value, trait)  # the declared range (parameters.RANGES), as the analysis layer
                 if trait == "target_accuracy":
                     ThresholdRule("accuracy", target_accuracy=value)
                 else:
@@ -570,8 +587,20 @@ class ThresholdPicker(LinkedView, widgets.VBox):
             self.selected_points.visible = True
 
 
-def _cost_box(description: str, value: float) -> widgets.FloatText:
-    """A cost entry of the cost rule (any non-negative number; the rule says when it is not)."""
+def _cost_box(description: str, value: float, name: str) -> widgets.FloatText:
+    """A cost entry of the cost rule (any number of its range; the rule says when it is not), never clamped."""
     return widgets.FloatText(
-        value=value, description=description, style={"description_width": "110px"}, layout={"width": "220px"}
-    )
+        value=value, description=description, tooltip=f"in {RANGES[name].interval()}",
+        style={"description_width": "initial"}, layout={"width": "auto"},
+    )  # fmt: skip
+
+
+def _level_text(level: float) -> str:
+    """``0.95`` as ``"95%"``, ``0.975`` as ``"97.5%"``."""
+    return f"{100 * level:.4g}%"
+
+
+def _level_options(level: float) -> list[tuple[str, float]]:
+    """The offered interval levels, with ``level`` among them (any level of the accepted range)."""
+    values = sorted({*LEVELS, float(check_parameter(level, "level"))})
+    return [(_level_text(v), v) for v in values]
