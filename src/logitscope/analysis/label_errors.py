@@ -31,7 +31,7 @@ from ..errors import ParameterError
 from ..parameters import check as check_parameter
 from ._blocks import as_float64_block, block_slices
 from ._validation import assume_valid, check_labels, check_logits, check_temperature
-from .scores import sample_scores
+from .scores import SampleScores, sample_scores
 
 __all__ = ["DoubtfulLabelRanking", "confident_joint", "mean_given_probability", "rank_doubtful_labels"]
 
@@ -93,9 +93,17 @@ def mean_given_probability(logits: ArrayLike, labels: ArrayLike, temperature: fl
 
 def _confident_assignment(z: np.ndarray, y: np.ndarray, beta: float, thresholds: np.ndarray) -> np.ndarray:
     """Class each row confidently counts for, or -1 where no ``p_j >= t_j``."""
+    from ._sweep import numba_kernels
+    from .scores import _numba_blocks, _pick
+
     n, k = z.shape
     assigned = np.full(n, -1, dtype=np.int64)
     thr = np.where(np.isnan(thresholds), np.inf, thresholds)
+    if _pick("auto") == "numba":
+        for rows, zc in _numba_blocks(z):
+            chunks = int(min(64, max(1, zc.shape[0] // 1024)))
+            numba_kernels().confident_kernel(zc, float(beta), thr.astype(np.float64), assigned[rows], chunks)
+        return assigned
     for rows in block_slices(n, k):
         p = _probs_block(z, rows, beta)
         above = np.where(p >= thr[None, :] - 1e-12, p, -1.0)
@@ -132,6 +140,8 @@ def rank_doubtful_labels(
     labels: ArrayLike,
     method: Method = "confident_learning",
     temperature: float = 1.0,
+    *,
+    scores: SampleScores | None = None,
 ) -> DoubtfulLabelRanking:
     """Rank samples by how doubtful their given label is, most doubtful first.
 
@@ -146,6 +156,9 @@ def rank_doubtful_labels(
         ``confident_learning`` returns only the flagged ones.
     temperature : float
         Softmax temperature.
+    scores : SampleScores, optional
+        :func:`sample_scores` of these logits and labels at this temperature, when already computed
+        (a frame's cached scores); not checked against them.
 
     Returns
     -------
@@ -165,7 +178,7 @@ def rank_doubtful_labels(
     y = check_labels(labels, n, k)
     t = check_temperature(temperature)
     with assume_valid():
-        s = sample_scores(z, y, temperature=t)
+        s = sample_scores(z, y, temperature=t) if scores is None else scores
     assert s.true_probability is not None and s.correct is not None
     second = s.confidence - s.margin  # the runner-up probability
     best_other = np.where(s.correct, second, s.confidence)
@@ -175,7 +188,7 @@ def rank_doubtful_labels(
     if np.any(s.correct):
         rows = np.flatnonzero(s.correct)
         with assume_valid():
-            suggested[rows] = _runner_up(z[rows])
+            suggested[rows] = _runner_up(z, rows)
     if method == "given_probability":
         score = s.true_probability
         idx = np.argsort(score, kind="stable")
@@ -183,8 +196,10 @@ def rank_doubtful_labels(
         score = nm
         idx = np.argsort(score, kind="stable")
     elif method == "confident_learning":
+        # t_j = mean of p_j over the rows labelled j: p_y of each row is already among the scores
+        with np.errstate(invalid="ignore", divide="ignore"):
+            thr = np.bincount(y, weights=s.true_probability, minlength=k) / np.bincount(y, minlength=k)
         with assume_valid():
-            thr = mean_given_probability(z, y, t)
             assigned = _confident_assignment(z, y, 1.0 / t, thr)
         flagged = np.flatnonzero((assigned >= 0) & (assigned != y))
         order = np.argsort(nm[flagged], kind="stable")
@@ -199,8 +214,21 @@ def rank_doubtful_labels(
     return DoubtfulLabelRanking(method=method, index=idx, score=score[idx], suggested=suggested[idx])
 
 
-def _runner_up(z: np.ndarray) -> np.ndarray:
-    """Index of the second-largest logit of each row."""
+def _runner_up(z: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
+    """Index of the second-largest logit of each row (of ``rows`` only, read in place, when given)."""
+    from ._sweep import numba_kernels
+    from .scores import _pick
+
+    if rows is not None:
+        if _pick("auto") == "numba" and z.dtype in (np.float32, np.float64) and z.flags.c_contiguous:
+            out = np.empty(rows.size, dtype=np.int64)
+            numba_kernels().runner_up_kernel(z, rows.astype(np.int64, copy=False), out)
+            return out
+        got = np.empty(rows.size, dtype=np.int64)
+        per = max(1, (1 << 20) // max(1, z.shape[1]))
+        for a in range(0, rows.size, per):  # a block of the rows at a time: no copy of the matrix
+            got[a : a + per] = _runner_up(z[rows[a : a + per]])
+        return got
     out = np.empty(z.shape[0], dtype=np.int64)
     for rows in block_slices(*z.shape):
         b = np.array(z[rows], dtype=np.float64)

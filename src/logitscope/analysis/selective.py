@@ -30,8 +30,11 @@ __all__ = [
     "CAUTION",
     "RiskCoverage",
     "ThresholdChoice",
+    "accuracy_rule_on_curve",
     "aurc",
+    "aurc_of_curve",
     "binomial_interval",
+    "cost_rule_on_curve",
     "evaluate_threshold",
     "per_class_thresholds",
     "risk_coverage_curve",
@@ -131,7 +134,17 @@ def aurc(confidence: ArrayLike, correct: ArrayLike) -> float:
     >>> aurc([0.8, 0.8, 0.8, 0.8], [1, 1, 1, 0])  # no ranking at all: the error rate
     0.25
     """
-    rc = risk_coverage_curve(confidence, correct)
+    return aurc_of_curve(risk_coverage_curve(confidence, correct))
+
+
+def aurc_of_curve(rc: RiskCoverage) -> float:
+    """:func:`aurc` of a curve already computed (no second sort of the confidences).
+
+    Examples
+    --------
+    >>> round(aurc_of_curve(risk_coverage_curve([0.9, 0.8, 0.7, 0.6], [1, 1, 0, 0])), 6)
+    0.208333
+    """
     share = np.diff(rc.n_accepted, prepend=0) / rc.n_total
     return float(np.sum(share * rc.n_errors / rc.n_accepted))
 
@@ -354,10 +367,24 @@ def threshold_for_accuracy(
     target = float(check_parameter(target, "target_accuracy"))
     level = float(check_parameter(level, "level"))
     conf, ok = _check_pair(confidence, correct)
-    rc = _curve(conf, ok)
-    right = rc.n_accepted - rc.n_errors
     if method not in ("wilson", "clopper-pearson"):
         raise ParameterError(f"method must be 'wilson' or 'clopper-pearson', got {method!r}")
+    return accuracy_rule_on_curve(_curve(conf, ok), target, level, method, use_lower_bound)
+
+
+def accuracy_rule_on_curve(
+    rc: RiskCoverage, target: float, level: float, method: IntervalMethod, use_lower_bound: bool = False
+) -> ThresholdChoice:
+    """:func:`threshold_for_accuracy` on a curve already computed (checked arguments).
+
+    Examples
+    --------
+    >>> rc = risk_coverage_curve([0.95, 0.9, 0.8, 0.7, 0.6], [1, 1, 1, 0, 1])
+    >>> accuracy_rule_on_curve(rc, 0.75, 0.95, "wilson").threshold
+    0.6
+    """
+    n = rc.n_total
+    right = rc.n_accepted - rc.n_errors
     # thresholds run from high to low: the last one that reaches the target is the lowest
     if use_lower_bound:
         i = _last_lower_bound_reaching(right, rc.n_accepted, target - 1e-12, level, method)
@@ -367,8 +394,8 @@ def threshold_for_accuracy(
         i = int(hits[-1]) if hits.size else -1
         rule = f"lowest threshold whose accuracy >= {target:g}"
     if i < 0:
-        return _choice(np.inf, 0, 0, conf.size, level, method, rule, feasible=False)
-    return _choice(rc.threshold[i], int(rc.n_accepted[i]), int(rc.n_errors[i]), conf.size, level, method, rule)
+        return _choice(np.inf, 0, 0, n, level, method, rule, feasible=False)
+    return _choice(rc.threshold[i], int(rc.n_accepted[i]), int(rc.n_errors[i]), n, level, method, rule)
 
 
 def threshold_for_cost(
@@ -397,8 +424,21 @@ def threshold_for_cost(
     review_cost = float(check_parameter(review_cost, "review_cost"))
     level = float(check_parameter(level, "level"))
     conf, ok = _check_pair(confidence, correct)
-    rc = _curve(conf, ok)
-    n = conf.size
+    return cost_rule_on_curve(_curve(conf, ok), error_cost, review_cost, level, method)
+
+
+def cost_rule_on_curve(
+    rc: RiskCoverage, error_cost: float, review_cost: float, level: float, method: IntervalMethod
+) -> ThresholdChoice:
+    """:func:`threshold_for_cost` on a curve already computed (checked arguments).
+
+    Examples
+    --------
+    >>> rc = risk_coverage_curve([0.95, 0.9, 0.8, 0.7, 0.6], [1, 1, 1, 0, 1])
+    >>> cost_rule_on_curve(rc, 5.0, 1.0, 0.95, "wilson").n_review
+    2
+    """
+    n = rc.n_total
     acc = np.r_[0, rc.n_accepted]
     err = np.r_[0, rc.n_errors]
     thr = np.r_[np.inf, rc.threshold]

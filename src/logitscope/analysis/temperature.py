@@ -27,8 +27,9 @@ from numpy.typing import ArrayLike
 from ..errors import InputTypeError, ParameterError, ShapeError
 from ..parameters import check as check_parameter
 from ..parameters import get_range
+from ._sweep import SweepSums, sweep_sums
 from ._validation import assume_valid, check_labels, check_logits
-from .calibration import Strategy, reliability_bins
+from .calibration import ReliabilityBins, Strategy, reliability_bins
 from .scores import sample_scores, temperature_moments
 
 __all__ = [
@@ -37,6 +38,7 @@ __all__ = [
     "default_temperature_grid",
     "fit_temperature",
     "newton_fit",
+    "sweep_from_sums",
     "temperature_sweep",
 ]
 
@@ -372,7 +374,9 @@ def temperature_sweep(
 ) -> TemperatureSweep:
     """Evaluate NLL, Brier score and ECE over a grid of temperatures.
 
-    One fused pass over the logits per temperature. With ``rows`` (positions
+    With equal-width bins (``strategy="uniform"``) one pass over the logits
+    evaluates every temperature (:mod:`logitscope.analysis._sweep`); with
+    equal-mass bins, one fused pass per temperature. With ``rows`` (positions
     or a boolean mask) only those rows are evaluated, gathered one block at a
     time, so a held-out part is judged without copying the matrix.
 
@@ -399,6 +403,9 @@ def temperature_sweep(
             f"temperatures must be a non-empty 1-D array of positive finite numbers in {t_range.interval()}"
         )
     out = {name: np.empty(grid.size) for name in ("nll", "brier", "ece", "mean_confidence")}
+    if strategy == "uniform":
+        # every temperature in one pass over the rows (equal-width bins need no order of the confidences)
+        return sweep_from_sums(grid, sweep_sums(z, y, 1.0 / grid, int(check_parameter(n_bins, "n_bins")), sel))
     with assume_valid():
         for i, t in enumerate(grid):
             conf, correct, logp, brier = _scores_on(z, y, float(t), sel)
@@ -407,3 +414,32 @@ def temperature_sweep(
             out["mean_confidence"][i] = np.mean(conf)
             out["ece"][i] = reliability_bins(conf, correct, n_bins, strategy).ece
     return TemperatureSweep(temperature=grid, **out)
+
+
+def sweep_from_sums(temperatures: np.ndarray, sums: SweepSums) -> TemperatureSweep:
+    """The :class:`TemperatureSweep` of sums over rows (equal-width bins), as the per-temperature passes give it.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from logitscope.analysis._sweep import sweep_sums
+    >>> z, y = np.array([[2.0, 0.0], [0.0, 1.0]]), np.array([0, 0])
+    >>> sw = sweep_from_sums(np.array([1.0]), sweep_sums(z, y, np.array([1.0]), 10))
+    >>> round(float(sw.mean_confidence[0]), 6)
+    0.805928
+    """
+    n = sums.n
+    m = sums.betas.size
+    ece = np.empty(m)
+    n_bins = sums.bin_count.shape[1]
+    edges = np.linspace(0.0, 1.0, n_bins + 1)
+    for i in range(m):
+        count = sums.bin_count[i].astype(np.int64)
+        with np.errstate(invalid="ignore", divide="ignore"):
+            acc, conf = sums.bin_right[i] / count, sums.bin_confidence[i] / count
+        bins = ReliabilityBins(edges[:-1], edges[1:], count, acc, conf, np.zeros(0, dtype=np.int64), "uniform")
+        ece[i] = bins.ece
+    return TemperatureSweep(
+        temperature=np.asarray(temperatures, dtype=np.float64), nll=sums.nll / n, brier=sums.brier / n, ece=ece,
+        mean_confidence=sums.confidence / n,
+    )  # fmt: skip

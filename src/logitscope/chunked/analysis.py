@@ -772,7 +772,7 @@ class _DoubtfulCandidates(_Collector):
         if np.any(s.correct):
             rows = np.flatnonzero(s.correct)
             with assume_valid():
-                suggested[rows] = _runner_up(z[rows])
+                suggested[rows] = _runner_up(z, rows)
         if self.method == "given_probability":
             score, keep = s.true_probability, np.arange(len(s))
         elif self.method == "label_margin":

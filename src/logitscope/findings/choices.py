@@ -138,15 +138,26 @@ class ThresholdRule:
             return f"error cost {self.error_cost:g}, review cost {self.review_cost:g}"
         return f"fixed at {self.threshold:g}"
 
-    def choose(self, confidence: np.ndarray, correct: np.ndarray) -> an.ThresholdChoice:
-        """Apply the rule to the given confidences and correctness."""
+    def choose(
+        self, confidence: np.ndarray, correct: np.ndarray, curve: an.RiskCoverage | None = None
+    ) -> an.ThresholdChoice:
+        """Apply the rule to the given confidences and correctness (``curve``: their risk-coverage curve,
+        when already computed, saves sorting them again)."""
+        from ..analysis import selective
+
         if self.kind == "accuracy":
             assert self.target_accuracy is not None
+            if curve is not None:
+                return selective.accuracy_rule_on_curve(
+                    curve, self.target_accuracy, self.level, self.interval, self.use_lower_bound
+                )
             return an.threshold_for_accuracy(
                 confidence, correct, self.target_accuracy, self.level, self.interval, self.use_lower_bound
             )
         if self.kind == "cost":
             assert self.error_cost is not None and self.review_cost is not None
+            if curve is not None:
+                return selective.cost_rule_on_curve(curve, self.error_cost, self.review_cost, self.level, self.interval)
             return an.threshold_for_cost(
                 confidence, correct, self.error_cost, self.review_cost, self.level, self.interval
             )

@@ -235,9 +235,16 @@ def collect(
     if not frame.has_labels:
         return Findings(choices, temperatures, preds, histogram=histogram)
     b = choices.binning
-    before = calibration_summary(frame, temperatures.base, None, b)
-    after = None if temperatures.compare is None else calibration_summary(frame, temperatures.compare, None, b)
-    decision = calibration_summary(frame, t, None, b)
+    made: dict[float, CalibrationSummary] = {}
+
+    def summary(temperature: float) -> CalibrationSummary:  # each temperature's summary once
+        if temperature not in made:
+            made[temperature] = calibration_summary(frame, temperature, None, b)
+        return made[temperature]
+
+    before = summary(temperatures.base)
+    after = None if temperatures.compare is None else summary(temperatures.compare)
+    decision = summary(t)
     marks = [temperatures.base, t]
     sweep = sweep_finding(frame, None, b, marks=marks, fitted=temperatures.fitted)
     # with a split of the user's, the threshold is chosen on its fit part (as the panel's picker does); the

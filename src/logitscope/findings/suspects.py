@@ -70,7 +70,9 @@ def suspect_labels(
     z = frame.logits if keep is None else frame.logits[keep]
     y = frame.labels if keep is None else frame.labels[keep]
     with an.assume_valid():
-        ranking = an.rank_doubtful_labels(z, y, method, temperature=t)  # type: ignore[arg-type]
+        # the frame's cached scores serve when every row takes part
+        known = frame.sample_scores(t) if keep is None else None
+        ranking = an.rank_doubtful_labels(z, y, method, temperature=t, scores=known)  # type: ignore[arg-type]
     n_flagged = len(ranking)
     if top is not None:
         ranking = ranking.top(int(top))

@@ -22,21 +22,49 @@ __all__ = ["SweepFinding", "fitted_temperature", "sweep_finding", "sweep_grid"]
 GRID_POINTS = 41
 
 
+#: Significant bits of each grid point's inverse temperature (see :func:`sweep_grid`).
+GRID_BITS = 7
+
+
+def _round_bits(x: np.ndarray, bits: int) -> np.ndarray:
+    """``x`` (positive) rounded to ``bits`` significant bits."""
+    mant, exp = np.frexp(x)
+    return np.ldexp(np.round(mant * 2.0**bits), exp - bits)
+
+
 def sweep_grid(marks: Sequence[float] = ()) -> np.ndarray:
     """The temperatures swept: 41 log-spaced points over 0.25..4, widened to hold every mark (within the
     accepted range of a temperature), plus the marks.
 
+    Each grid point's ``1 / T`` is rounded to 7 significant bits (it moves by at most 0.4 %, the ends
+    and ``T = 1`` not at all): the inverse temperatures are then whole multiples of a few powers of two,
+    and the sweep evaluates them all with one exponential per logit (:mod:`logitscope.analysis._sweep`).
+    The marks are kept exactly.
+
     Examples
     --------
     >>> g = sweep_grid([1.37])
-    >>> float(g.min()), float(g.max()), bool(np.any(g == 1.37))
-    (0.25, 4.0, True)
+    >>> float(g.min()), float(g.max()), bool(np.any(g == 1.37)), bool(np.any(g == 1.0)), g.size
+    (0.25, 4.0, True, True, 42)
     """
     m = [float(t) for t in marks]
     t_lo, t_hi = an.temperature.T_MIN, an.temperature.T_MAX  # the accepted range of a temperature
     lo = max(t_lo, min([0.25, *(t / 2 for t in m)]))
     hi = min(t_hi, max([4.0, *(t * 2 for t in m)]))
-    return np.unique(np.r_[np.geomspace(lo, hi, GRID_POINTS), m])
+    betas = _round_bits(1.0 / np.geomspace(lo, hi, GRID_POINTS), GRID_BITS)
+    grid = np.clip([_round_trip(b) for b in betas.tolist()], t_lo, t_hi)
+    return np.unique(np.r_[grid, m])
+
+
+def _round_trip(beta: float) -> float:
+    """``T = 1 / beta`` for ``beta`` or a 7-bit neighbour of it whose ``1 / T`` gives it back exactly."""
+    _, exp = np.frexp(beta)
+    step = float(np.ldexp(1.0, int(exp) - GRID_BITS))
+    for k in (0, 1, -1, 2, -2):
+        b = beta + k * step
+        if 1.0 / (1.0 / b) == b:
+            return 1.0 / b
+    return 1.0 / beta
 
 
 def fitted_temperature(frame: LogitFrame, rows: Any = None) -> an.TemperatureFit:

@@ -163,7 +163,8 @@ def threshold_decision(
     s = frame.sample_scores(t)
     assert s.correct is not None
     conf, ok, pred = _take(s.confidence, r), _take(s.correct, r), _take(s.predicted, r)
-    choice = rule.choose(conf, ok)
+    curve = an.risk_coverage_curve(conf, ok)  # sorted once: the rule, the curve and the AURC read it
+    choice = rule.choose(conf, ok, curve)
     by_class: list[an.ThresholdChoice | None] = []
     order = np.argsort(pred, kind="stable")
     bounds = np.searchsorted(pred[order], np.arange(frame.n_classes + 1))
@@ -201,8 +202,8 @@ def threshold_decision(
         rule=rule,
         temperature=t,
         choice=choice,
-        curve=an.risk_coverage_curve(conf, ok),
-        aurc=an.aurc(conf, ok),
+        curve=curve,
+        aurc=an.selective.aurc_of_curve(curve),
         accuracy_all=float(np.mean(ok)),
         by_class=tuple(by_class),
         own=own,

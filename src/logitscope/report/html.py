@@ -30,7 +30,7 @@ from importlib import resources
 from typing import TYPE_CHECKING, Any
 
 import numpy as np
-from jinja2 import Environment, PackageLoader, StrictUndefined
+from jinja2 import Environment, FileSystemBytecodeCache, PackageLoader, StrictUndefined
 from markupsafe import Markup
 
 from .. import __version__
@@ -66,8 +66,18 @@ def _is_finite(v: Any) -> bool:
         return False
 
 
+def _bytecode_cache() -> FileSystemBytecodeCache | None:
+    """Jinja2's cache of compiled templates in the user's own temporary folder (compiling them takes longer
+    than rendering a report); None where that folder cannot be made safely."""
+    try:
+        return FileSystemBytecodeCache()
+    except (OSError, RuntimeError):
+        return None
+
+
 _ENV = Environment(
     loader=PackageLoader("logitscope.report", "templates"),
+    bytecode_cache=_bytecode_cache(),
     autoescape=True,
     undefined=StrictUndefined,
     trim_blocks=True,
