@@ -61,7 +61,9 @@ def _check_frame(f: LogitFrame) -> None:
     assert n >= 1 and k >= 2 and len(f.classes) == k and len(set(f.classes)) == k
     assert f.ids.shape == (n,) and len(set(f.ids.tolist())) == n
     if f.labels is not None:
-        assert f.labels.shape == (n,) and f.labels.min() >= 0 and f.labels.max() < k
+        # -1 marks a row without a label (a partly labelled batch); every other label names a class
+        assert f.labels.shape == (n,) and f.labels.min() >= -1 and f.labels.max() < k
+        assert f.n_labelled == int(np.count_nonzero(f.labels >= 0))
     assert len(f.meta) == n and (f.payload is None or len(f.payload) == n)
     p = f.probabilities()
     assert np.all(np.isfinite(p)) and np.all(p >= 0)
@@ -257,7 +259,11 @@ def _mutate_table(table: pa.Table, data: st.DataObject, op: str | None = None) -
 def _check_label_classes(f: LogitFrame, table: pa.Table) -> None:
     """Each sample's label names the class the file says: by name, or by index in the stored class order."""
     column = table.column("label")
-    read = [f.classes[i] for i in f.labels.tolist()]
+    if f.labels is None:  # a label column of nulls only: a batch without labels
+        assert column.null_count == len(column)
+        return
+    # a null label is read as no label (-1), never as a class
+    read = [f.classes[i] if i >= 0 else None for i in f.labels.tolist()]
     if pa.types.is_string(column.type) or pa.types.is_large_string(column.type):
         assert read == column.to_pylist()
         return
@@ -266,7 +272,7 @@ def _check_label_classes(f: LogitFrame, table: pa.Table) -> None:
     except (KeyError, ValueError, TypeError, RecursionError):
         stored = None
     assert isinstance(stored, list), "index labels were read although the file stores no class order"
-    assert read == [stored[i] for i in column.to_pylist()]
+    assert read == [None if i is None else stored[i] for i in column.to_pylist()]
 
 
 @pytest.mark.parametrize("first", TABLE_OPS)

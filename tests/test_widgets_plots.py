@@ -25,6 +25,7 @@ from logitscope.widgets import (
 )
 from logitscope.widgets.confusion import short_label
 from logitscope.widgets.scatter import CLASS_COLORS, FADED, PointRaster
+from logitscope.widgets.style import RIGHT, WRONG
 
 XSS = "<img src=x onerror=alert(1)>"
 
@@ -152,10 +153,10 @@ def test_scatter_axes_and_colours(parcels):
     np.testing.assert_allclose(view.column(view.x_score), top2[:, 1] - top2[:, 0], atol=1e-9)
     y = np.asarray(parcels.labels)
     np.testing.assert_allclose(view.column(view.y_score), p[np.arange(len(y)), y], atol=1e-9)
-    np.testing.assert_array_equal(view._groups, y % len(CLASS_COLORS))
+    np.testing.assert_array_equal(view.point_colors, np.asarray(CLASS_COLORS)[y % len(CLASS_COLORS)])
     view.color_by = "correct / wrong"
     correct = p.argmax(axis=1) == y
-    np.testing.assert_array_equal(view._groups, (~correct).astype(int))  # wrong drawn over right
+    np.testing.assert_array_equal(view.point_colors, np.where(correct, RIGHT, WRONG))
     view.x_score = "energy"
     # energy = -logsumexp(z) at T = 1 (scipy.special.logsumexp)
     energy = -special.logsumexp(np.asarray(parcels.logits, dtype=np.float64), axis=1)
@@ -188,7 +189,7 @@ def test_scatter_without_labels_offers_only_label_free_scores():
     view = ScoreScatter(LogitFrame(z))
     assert "true_probability" not in view.scores_offered and "confidence" in view.scores_offered
     assert view.colors_offered == ("predicted class",)
-    np.testing.assert_array_equal(view._groups, z.argmax(axis=1))
+    np.testing.assert_array_equal(view.point_colors, np.asarray(CLASS_COLORS)[z.argmax(axis=1)])
 
 
 def test_views_check_their_arguments(parcels):

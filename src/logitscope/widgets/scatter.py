@@ -527,6 +527,21 @@ class ScoreScatter(LinkedView, widgets.VBox):
         bottom_alpha = 1.0 if self.state.rows.size == 0 else FADED
         return PointRaster.to_rgba8(PointRaster.over(self._top, self._base, bottom_alpha))
 
+    @property
+    def point_colors(self) -> np.ndarray:
+        """The colour each sample is painted in (``#rrggbb`` strings, one per row), for the colour mode.
+
+        Examples
+        --------
+        >>> import numpy as np
+        >>> from logitscope import LogitFrame
+        >>> from logitscope.widgets.style import RIGHT, WRONG
+        >>> view = ScoreScatter(LogitFrame(np.array([[2.0, 0.0], [0.0, 2.0]]), labels=[0, 0]))
+        >>> view.point_colors.tolist() == [RIGHT, WRONG]
+        True
+        """
+        return np.asarray(self._palette, dtype=object)[self._groups]
+
     def pixel_of(self, row: int) -> tuple[int, int]:
         """(column, row) of the image pixel where sample ``row`` is painted."""
         p = int(self._pixels[int(row)])
