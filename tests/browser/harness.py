@@ -32,7 +32,7 @@ import time
 import urllib.error
 import urllib.parse
 import urllib.request
-from collections.abc import Iterable, Sequence
+from collections.abc import Callable, Iterable, Sequence
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
@@ -679,6 +679,30 @@ def wait_for_output(page: Page, cell_index: int, selector: str, *, timeout_ms: i
     loc = cell(page, cell_index).locator(".jp-Cell-outputArea").locator(selector).first
     loc.wait_for(state="visible", timeout=timeout_ms)
     return loc
+
+
+def cell_json(page: Page, cell_index: int) -> Any:
+    """The JSON document printed on the last output line of cell ``cell_index``."""
+    text = read_cell_text(page, cell_index)
+    return json.loads(text.strip().splitlines()[-1])
+
+
+def wait_for_cell_json(
+    page: Page, cell_index: int, ready: Callable[[Any], bool], *, timeout_ms: int = CELL_TIMEOUT_MS
+) -> Any:
+    """Run cell ``cell_index`` (it prints one JSON line of kernel state) until ``ready`` holds for it.
+
+    A browser action reaches the kernel as a message some time later: the test waits for the state it
+    expects, not for a fixed delay. Returns the last JSON read; raises ``TimeoutError`` with it.
+    """
+    deadline = time.monotonic() + timeout_ms / 1000
+    while True:
+        run_cell(page, cell_index)
+        got = cell_json(page, cell_index)
+        if ready(got):
+            return got
+        if time.monotonic() > deadline:
+            raise TimeoutError(f"cell {cell_index} never showed the expected state; last: {got}")
 
 
 def read_cell_text(page: Page, cell_index: int) -> str:

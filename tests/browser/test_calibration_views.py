@@ -8,7 +8,6 @@ views and of the report written by the panel's button go to test-artifacts/.
 
 from __future__ import annotations
 
-import json
 import time
 from pathlib import Path
 
@@ -18,9 +17,9 @@ from .harness import (
     ARTIFACTS_DIR,
     cell,
     open_notebook,
-    read_cell_text,
     record_timing,
     run_cell,
+    wait_for_cell_json,
     wait_for_output,
     write_notebook,
 )
@@ -41,7 +40,7 @@ d = panel.diagram
 b = d.selected_bin
 ok = b is not None and np.array_equal(panel.state.rows, d.rows[d.bins.bin_of == b])
 print(json.dumps({"bin": b, "rows": int(panel.state.rows.size), "count": int(d.bins.count[b]) if b is not None else -1,
-                  "origin": panel.state.origin, "ok": bool(ok)}))"""
+                  "origin": panel.state.origin_name, "ok": bool(ok)}))"""
 
 TEMPERATURE_CELL = """\
 t = panel.state.temperature
@@ -54,7 +53,7 @@ print(json.dumps({"t": t, "marker": float(panel.sweep.marker.x[0]), "diagram_t":
 BRUSH_CELL = """\
 p = panel.picker
 sel = p.brush.selected
-out = {"origin": panel.state.origin, "selected": None if sel is None else [float(v) for v in sel]}
+out = {"origin": panel.state.origin_name, "selected": None if sel is None else [float(v) for v in sel]}
 if sel is not None and len(sel) == 2:
     lo, hi = p.confidence_range_of_coverage(*sel)
     conf = frame.sample_scores(panel.state.temperature).confidence
@@ -67,11 +66,6 @@ REPORT_CELL = """\
 import os
 print(json.dumps({"exists": os.path.exists("panel-report.html"), "path": os.path.abspath("panel-report.html"),
                   "status": panel.report_status.value}))"""
-
-
-def _json(page, index: int) -> dict:
-    text = read_cell_text(page, index)
-    return json.loads(text.strip().splitlines()[-1])
 
 
 def _plot_box(figure) -> dict:
@@ -91,21 +85,19 @@ def test_calibration_views_in_jupyterlab(jupyter_server, notebook_dir, browser_p
     run_cell(page, 0)
     wait_for_output(page, 0, ".logitscope-calibration .logitscope-threshold .bqplot")
     out = cell(page, 0).locator(".jp-Cell-outputArea")
-    # wait until the bars of the diagram are drawn (filled paths in the first figure)
+    # wait until the dots of the diagram are drawn (one per non-empty bin, in the first figure)
     diagram_fig = out.locator(".logitscope-reliability").first.locator(".bqplot").first
-    diagram_fig.locator("path.area").first.wait_for(state="attached")
+    diagram_fig.locator("path.dot").first.wait_for(state="attached")
     record_timing("calibration panel rendered", time.monotonic() - t0)
 
-    # 1. click the highest-confidence bin of the reliability diagram: 0.93 .. 1.0 at accuracy ~0.98
-    box = _plot_box(diagram_fig)
-    # fig_margin left 52, right 12, top 10, bottom 22 (reliability.py); x = 0.965, y = 0.5 is inside the last bar
-    px = box["x"] + 52 + 0.965 * (box["width"] - 64)
-    py = box["y"] + 10 + 0.5 * (box["height"] - 32)
-    page.mouse.click(px, py)
-    page.wait_for_timeout(300)
-    run_cell(page, 1)
-    got = _json(page, 1)
-    assert got["ok"] and got["origin"] == "reliability" and got["bin"] == 14, got
+    # 1. click the dot of the highest-confidence bin of the reliability diagram (0.93 .. 1.0)
+    _plot_box(diagram_fig)
+    last = diagram_fig.locator("path.dot").last
+    dbox = last.bounding_box()
+    assert dbox is not None
+    page.mouse.click(dbox["x"] + dbox["width"] / 2, dbox["y"] + dbox["height"] / 2)
+    got = wait_for_cell_json(page, 1, lambda g: g["bin"] is not None)
+    assert got["ok"] and got["origin"] == "reliability diagram" and got["bin"] == 14, got
     assert got["rows"] == got["count"] > 0
 
     # 2. drag the temperature marker on the NLL curve to the right
@@ -119,18 +111,14 @@ def test_calibration_views_in_jupyterlab(jupyter_server, notebook_dir, browser_p
     page.mouse.down()
     page.mouse.move(cx + 70, cy, steps=8)
     page.mouse.up()
-    page.wait_for_timeout(500)
-    run_cell(page, 2)
-    got = _json(page, 2)
+    got = wait_for_cell_json(page, 2, lambda g: g["t"] > 1.05 and g["diagram_t"] == pytest.approx(g["t"]))
     assert got["t"] > 1.05, got  # moved right on a log axis from T = 1
     assert got["marker"] == pytest.approx(got["t"]) and got["diagram_t"] == pytest.approx(got["t"])
     assert got["nll"] == pytest.approx(got["nll_ref"], rel=1e-12)
 
     # 3. the "use fitted T" button sets the fitted temperature everywhere
     out.locator(".logitscope-sweep button", has_text="use fitted T").first.click()
-    page.wait_for_timeout(500)
-    run_cell(page, 2)
-    got = _json(page, 2)
+    got = wait_for_cell_json(page, 2, lambda g: g["t"] == pytest.approx(g["fitted"]))
     assert got["t"] == pytest.approx(got["fitted"]) and got["diagram_t"] == pytest.approx(got["fitted"]), got
 
     # 4. brush an interval of coverage on the threshold curve
@@ -144,10 +132,8 @@ def test_calibration_views_in_jupyterlab(jupyter_server, notebook_dir, browser_p
     page.mouse.down()
     page.mouse.move(x1, y, steps=8)
     page.mouse.up()
-    page.wait_for_timeout(500)
-    run_cell(page, 3)
-    got = _json(page, 3)
-    assert got["origin"] == "threshold" and got["selected"] is not None, got
+    got = wait_for_cell_json(page, 3, lambda g: g["selected"] is not None and g.get("rows", 0) > 0)
+    assert got["origin"] == "threshold picker" and got["selected"] is not None, got
     assert got["selected"][0] == pytest.approx(0.55, abs=0.03) and got["selected"][1] == pytest.approx(0.80, abs=0.03)
     assert got["ok"] and got["rows"] > 0
 
@@ -161,7 +147,7 @@ def test_calibration_views_in_jupyterlab(jupyter_server, notebook_dir, browser_p
     # 5. a random split: two diagrams, the held-out numbers
     out.locator(".logitscope-calibration .widget-toggle-button", has_text="random split").first.click()
     held = out.locator(".logitscope-reliability").nth(1)
-    held.locator("path.area").first.wait_for(state="attached")
+    held.locator("path.dot").first.wait_for(state="attached")
     page.wait_for_function("el => getComputedStyle(el).display !== 'none'", arg=held.element_handle(), timeout=30_000)
     diagrams = out.locator(".logitscope-diagrams").first
     diagrams.scroll_into_view_if_needed()
@@ -169,14 +155,7 @@ def test_calibration_views_in_jupyterlab(jupyter_server, notebook_dir, browser_p
 
     # 6. the report button writes the report for these choices
     out.locator(".logitscope-calibration button", has_text="write report").first.click()
-    page.wait_for_timeout(200)
-    deadline = time.monotonic() + 30
-    got = {}
-    while time.monotonic() < deadline:
-        run_cell(page, 4)
-        got = _json(page, 4)
-        if got["exists"]:
-            break
+    got = wait_for_cell_json(page, 4, lambda g: g["exists"], timeout_ms=60_000)
     assert got["exists"] and "Wrote" in got["status"], got
     report = page.context.new_page()
     report.goto(Path(got["path"]).as_uri(), wait_until="load")

@@ -25,6 +25,7 @@ from .harness import (
     restart_kernel,
     run_cell,
     screenshot,
+    wait_for_cell_json,
     wait_for_output,
     write_notebook,
 )
@@ -57,7 +58,7 @@ if b.selected_x is not None and len(b.selected_x) == 2:
     inside = np.flatnonzero((conf >= x0) & (conf <= x1) & (ent >= y0) & (ent <= y1)).tolist()
 rows = dash.selected
 print(json.dumps({
-    "selected": rows.tolist(), "origin": dash.state.origin, "inside": inside,
+    "selected": rows.tolist(), "origin": dash.state.origin_name, "inside": inside,
     "gallery": int(dash.gallery.n_shown), "sk_confusion": confusion_matrix(y, pred).tolist(),
     "labels": y[rows].tolist(), "pred": pred[rows].tolist(),
     "pairs": [[q.true, q.other, q.count] for q in dash.confusion.pairs],
@@ -135,7 +136,7 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
     )
     screenshot(page, "dashboard-lab-brushed")
     st = _state(page, 1)
-    assert st["origin"] == "scatter"
+    assert st["origin"] == "score scatter"
     assert len(st["selected"]) > 20
     # the rows Python selected are exactly those inside the brush extents (scipy scores)
     assert st["selected"] == st["inside"]
@@ -152,18 +153,16 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
         arg=0,
     )
     st = _state(page, 1)
-    assert st["origin"] == "confusion"
+    assert st["origin"] == "confusion matrix"
     assert len(st["selected"]) == st["sk_confusion"][4][9] > 0  # scikit-learn's count of that cell
     assert set(st["labels"]) == {4} and set(st["pred"]) == {9}
 
     # 3. the whole row of that cell, then a most-confused pair
     cell(page, 0).locator(".logitscope-confusion button", has_text="whole row").first.click()
-    page.wait_for_timeout(300)
-    st = _state(page, 1)
-    assert len(st["selected"]) == sum(st["sk_confusion"][4]) and set(st["labels"]) == {4}
+    st = wait_for_cell_json(page, 1, lambda g: len(g["selected"]) == sum(g["sk_confusion"][4]))
+    assert set(st["labels"]) == {4}
     cell(page, 0).locator(".logitscope-pair").first.click()
-    page.wait_for_timeout(300)
-    st = _state(page, 1)
+    st = wait_for_cell_json(page, 1, lambda g: len(g["selected"]) == g["pairs"][0][2])
     true, other, count = st["pairs"][0]
     assert len(st["selected"]) == count == st["sk_confusion"][true][other]
     screenshot(page, "dashboard-lab-pair")
@@ -173,7 +172,7 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
 
 
 LASSO_CELL = """\
-print(json.dumps({"selected": dash.selected.tolist(), "origin": dash.state.origin,
+print(json.dumps({"selected": dash.selected.tolist(), "origin": dash.state.origin_name,
                   "x": dash.scatter.column("confidence").tolist(), "y": dash.scatter.column("entropy").tolist()}))"""
 
 
@@ -257,7 +256,7 @@ def test_lasso_selects_the_rows_inside_the_shape(jupyter_server, notebook_dir, b
     # through the axes' tick marks
     (ax_, bx_), (ay_, by_) = _axis_maps(cell(page, 0).locator(".logitscope-scatter").first)
     st = _state(page, 1)
-    assert st["origin"] == "scatter" and len(st["selected"]) > 10
+    assert st["origin"] == "score scatter" and len(st["selected"]) > 10
     sx, sy = ax_ * np.array(st["x"]) + bx_, ay_ * np.array(st["y"]) + by_
     inside = np.flatnonzero(_inside(sx, sy, np.array(pts)))
     sel = np.array(st["selected"])
@@ -351,7 +350,11 @@ def test_hostile_names_show_as_text_and_never_run(jupyter_server, notebook_dir, 
     run_cell(page, 1)
     heat = cell(page, 0).locator(".logitscope-confusion .heatmapcell")
     heat.nth(0).click()  # true = the hostile class, predicted = the hostile class
-    page.wait_for_timeout(500)
+    page.wait_for_function(
+        "(i) => { const e = document.querySelectorAll('.jp-Cell')[i].querySelector('.logitscope-selection');"
+        " return e && /by confusion/.test(e.textContent); }",
+        arg=0,
+    )
     out = cell(page, 0).locator(".jp-Cell-outputArea").first
     found = out.evaluate(
         """(root, xss) => ({
@@ -369,7 +372,6 @@ def test_hostile_names_show_as_text_and_never_run(jupyter_server, notebook_dir, 
     assert XSS in found["gallery"]  # ids and texts in the tiles
     assert found["injected"] == 0  # no element was made from the data
     screenshot(page, "dashboard-lab-hostile-names")
-    page.wait_for_timeout(300)
     assert dialogs == []
     assert browser_log.errors() == []
 
@@ -383,7 +385,11 @@ def test_dashboard_layout_at_1400px_and_tab_switch(jupyter_server, notebook_dir,
     run_cell(page, 0)
     _wait_dashboard(page, 0, 100)
     run_cell(page, 1)
-    page.wait_for_timeout(800)
+    page.wait_for_function(
+        "(i) => { const e = document.querySelectorAll('.jp-Cell')[i].querySelector('.lsg-head .lsg-scope');"
+        " return e && e.textContent.trim().startsWith('200 selected'); }",
+        arg=0,
+    )
     out = cell(page, 0).locator(".logitscope-dashboard").first
     box = out.bounding_box()
     assert box is not None and box["width"] > 1200  # the output spans the page with the sidebar closed
@@ -396,11 +402,11 @@ def test_dashboard_layout_at_1400px_and_tab_switch(jupyter_server, notebook_dir,
     assert max(tops) - min(tops) < 60, tops
     # switch to the calibration tab and back: no console errors from hidden figures
     cell(page, 0).locator(".lm-TabBar-tab", has_text="Calibrate and decide").first.click()
-    page.wait_for_timeout(1500)
+    wait_for_output(page, 0, ".logitscope-calibration .logitscope-threshold .bqplot")
+    cell(page, 0).locator(".logitscope-calibration .logitscope-reliability path.dot").first.wait_for(state="attached")
     screenshot(page, "dashboard-lab-calibrate-tab")
     cell(page, 0).locator(".lm-TabBar-tab", has_text="Explore").first.click()
-    page.wait_for_timeout(800)
-    assert cell(page, 0).locator(".logitscope-scatter .plotarea_background").first.is_visible()
+    wait_for_output(page, 0, ".logitscope-scatter .plotarea_background")
     assert browser_log.errors() == []
 
 
