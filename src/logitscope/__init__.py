@@ -72,7 +72,7 @@ def explore(
 
     The "Explore" tab holds the score scatter, the confidence histogram, the
     sample card and gallery, the confusion matrix, the relabel queue and the
-    label-issue candidates; "Calibrate and decide" holds the reliability
+    doubtful-label candidates; "Calibrate and decide" holds the reliability
     diagram, the temperature sweep and the threshold choice; "History" plots
     the set-level numbers of every frame shown. Brush, click or assign
     ``dashboard.selected`` and every view follows; ``dashboard.update(frame)``

@@ -748,7 +748,7 @@ def _rc_result(part: dict[str, Any], n: int) -> BinnedRiskCoverage:
     return BinnedRiskCoverage(threshold=edges[used], n_accepted=acc, n_errors=err, n_total=n)
 
 
-# --------------------------------------------------------------------------- label issues
+# --------------------------------------------------------------------------- doubtful labels
 
 
 class _CLThresholds(_Collector):

@@ -143,7 +143,9 @@ class ChunkedFrame:
             sorted(p for p in folder.iterdir() if p.suffix.lower() in (".parquet", ".pq")) if folder.is_dir() else []
         )
         if not files:
-            raise FileFormatError(f"{folder}: no .parquet files in this folder")
+            raise FileFormatError(
+                f"{folder}: is a directory with no .parquet files (a folder is read as a batch of Parquet files)"
+            )
         pieces: list[tuple[Path, int, int]] = []
         columns: list[str] | None = None
         dtypes: set[np.dtype[Any]] = set()

@@ -131,12 +131,12 @@ class ClassMixView(LinkedView, widgets.VBox):
             default_size=56, stroke="white", visible=False,
             tooltip=bq.Tooltip(fields=["x", "y"], labels=["class", "share of the selection"], formats=["", ".1%"]),
         )  # fmt: skip
-        longest = max(len(shorten(n, _TICK_CHARS)) for n in names)
+        longest = max(len(shorten(n, _TICK_CHARS, where="middle")) for n in names)
         rotate = k > 6 or longest * 7 > 480 / k
         bottom = int(min(40 + 5.2 * longest, 140)) if rotate else 44
         self._ax_x = bq.Axis(
             scale=self._sx, label="class", tick_rotate=-40 if rotate else 0,
-            tick_labels={key: shorten(n, _TICK_CHARS) for key, n in zip(self._keys, names, strict=True)},
+            tick_labels={k: shorten(n, _TICK_CHARS, where="middle") for k, n in zip(self._keys, names, strict=True)},
             tick_style={"text-anchor": "end"} if rotate else {}, label_offset=f"{bottom - 10}px",
         )  # fmt: skip
         ax_y = bq.Axis(scale=self._sy, side="left", label="share of samples", tick_format=".0%", grid_lines="dashed")
@@ -215,7 +215,7 @@ class ClassMixView(LinkedView, widgets.VBox):
 
         def name(i: int) -> str:
             full = names[i]
-            return f"<span title='{html.escape(full)}'>{html.escape(shorten(full, 40))}</span>"
+            return f"<span title='{html.escape(full)}'>{html.escape(shorten(full, 40, where='middle'))}</span>"
 
         listed = ", ".join(f"{name(i)} ({c.residuals[i]:+.1f})" for i in moved)
         verdict = (
@@ -289,7 +289,7 @@ class ClassMixView(LinkedView, widgets.VBox):
         what = "predicted as" if self.counts == "predicted" else "labelled"
         return (
             css("views") + f"<span class='ls-note'>{rows.size:,} batch rows {what} "
-            f"<span title='{html.escape(full)}'>{html.escape(shorten(full, 40))}</span> selected "
+            f"<span title='{html.escape(full)}'>{html.escape(shorten(full, 40, where='middle'))}</span> selected "
             "(Ctrl-click the bars or press clear to clear)</span>"
         )
 

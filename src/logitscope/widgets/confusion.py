@@ -58,7 +58,7 @@ def short_label(name: str, limit: int = _LABEL_CHARS) -> str:
     >>> short_label("a" * 40, limit=10)
     'aaaaa…aaaa'
     """
-    return shorten(name, limit)
+    return shorten(name, limit, where="middle")
 
 
 def _unique_keys(names: list[str]) -> list[str]:
@@ -379,7 +379,8 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self.cell_text = text
         rows_sel = self.state.rows
         if rows_sel.size:
-            per_cell = np.bincount(self._cell[rows_sel], minlength=n * n).reshape(n, n)
+            codes = self._cell[rows_sel]
+            per_cell = np.bincount(codes[codes >= 0], minlength=n * n).reshape(n, n)  # unlabelled rows: no cell
         else:
             per_cell = np.zeros((n, n), dtype=np.int64)
         cells = np.argwhere(per_cell > 0)

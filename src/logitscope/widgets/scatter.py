@@ -469,7 +469,9 @@ class ScoreScatter(LinkedView, widgets.VBox):
         self._base = None
         swatch = "<span class='ls-swatch' style='background:{}'></span><span title='{}'>{}</span>"
         # class names are user data: escaped before they reach HTML, long ones cut (in full on hover)
-        parts = "".join(swatch.format(c, html.escape(str(s)), html.escape(shorten(s, 24))) for c, s in key)
+        parts = "".join(
+            swatch.format(c, html.escape(str(s)), html.escape(shorten(s, 24, where="middle"))) for c, s in key
+        )
         if not key:
             parts = "colour: class index modulo 10"
         self._key.value = f"{css('views')}<span class='ls-key'>{parts}</span>"

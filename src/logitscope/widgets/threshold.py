@@ -407,7 +407,8 @@ class ThresholdPicker(LinkedView, widgets.VBox):
                 continue
             name = self.frame.classes[k]
             cells = [
-                f"<td class='ls-name' title='{html.escape(name)}'>{html.escape(shorten(name, 40))}</td>",
+                f"<td class='ls-name' title='{html.escape(name)}'>"
+                f"{html.escape(shorten(name, 40, where='middle'))}</td>",
                 *(
                     f"<td>{v}</td>"
                     for v in (
