@@ -115,7 +115,7 @@ def explore(
     -------
     Dashboard
         The widget; its views are attributes (``scatter``, ``histogram``,
-        ``gallery``, ``card``, ``confusion``, ``queue``, ``issues``,
+        ``gallery``, ``card``, ``confusion``, ``queue``, ``doubtful``,
         ``calibration``) and ``selected`` reads or sets the selection.
 
     Raises

@@ -1,4 +1,4 @@
-"""The linked dashboard: every view on one frame and one shared state, in two tabs.
+"""The linked dashboard: every view on one frame and one shared state, in tabs.
 
 "Explore" holds the score scatter, the confidence histogram, the confusion
 heat map, the sample gallery and card, the temperature dial, the relabel
