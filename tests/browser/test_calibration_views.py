@@ -38,16 +38,19 @@ panel"""
 BIN_CELL = """\
 d = panel.diagram
 b = d.selected_bin
-ok = b is not None and np.array_equal(panel.state.rows, d.rows[d.bins.bin_of == b])
-print(json.dumps({"bin": b, "rows": int(panel.state.rows.size), "count": int(d.bins.count[b]) if b is not None else -1,
+# the last of 15 equal-width bins holds the confidences above 14/15 (numpy, independent of the view)
+conf = frame.sample_scores(panel.state.temperature).confidence
+ok = b is not None and np.array_equal(panel.state.rows, np.flatnonzero(conf > 14 / 15))
+print(json.dumps({"bin": b, "rows": int(panel.state.rows.size),
+                  "count": int(d.finding.bins.count[b]) if b is not None else -1,
                   "origin": panel.state.origin_name, "ok": bool(ok)}))"""
 
 TEMPERATURE_CELL = """\
 t = panel.state.temperature
-print(json.dumps({"t": t, "marker": float(panel.sweep.marker.x[0]), "diagram_t": panel.diagram.numbers["temperature"],
+print(json.dumps({"t": t, "marker": float(panel.sweep.marker.x[0]), "diagram_t": panel.diagram.finding.temperature,
                   "fitted": panel.sweep.fitted.temperature,
                   "picker_t": float(panel.picker.frame.sample_scores(t).temperature),
-                  "nll": panel.diagram.numbers["nll"],
+                  "nll": panel.diagram.finding.nll,
                   "nll_ref": float(-np.mean(frame.sample_scores(t).true_log_probability))}))"""
 
 BRUSH_CELL = """\

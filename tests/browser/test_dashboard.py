@@ -149,7 +149,7 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
     heat.nth(4 * 10 + 9).click()
     page.wait_for_function(
         "(i) => { const e = document.querySelectorAll('.jp-Cell')[i].querySelector('.logitscope-selection');"
-        " return e && /by confusion/.test(e.textContent); }",
+        " return e && /by the confusion matrix/.test(e.textContent); }",
         arg=0,
     )
     st = _state(page, 1)
@@ -352,7 +352,7 @@ def test_hostile_names_show_as_text_and_never_run(jupyter_server, notebook_dir, 
     heat.nth(0).click()  # true = the hostile class, predicted = the hostile class
     page.wait_for_function(
         "(i) => { const e = document.querySelectorAll('.jp-Cell')[i].querySelector('.logitscope-selection');"
-        " return e && /by confusion/.test(e.textContent); }",
+        " return e && /by the confusion matrix/.test(e.textContent); }",
         arg=0,
     )
     out = cell(page, 0).locator(".jp-Cell-outputArea").first
@@ -368,7 +368,8 @@ def test_hostile_names_show_as_text_and_never_run(jupyter_server, notebook_dir, 
     )
     # SVG tick labels show the names literally (long ones cut to short_label's length)
     assert short_label(XSS) in found["ticks"] and short_label(f"parcel {XSS}") in found["ticks"]
-    assert any(XSS in b for b in found["buttons"])  # whole-row button and pair buttons
+    # whole-row button and pair buttons: the name as literal text (cut in the middle when long)
+    assert any(short_label(XSS) in b for b in found["buttons"]), found["buttons"]
     assert XSS in found["gallery"]  # ids and texts in the tiles
     assert found["injected"] == 0  # no element was made from the data
     screenshot(page, "dashboard-lab-hostile-names")
@@ -394,12 +395,14 @@ def test_dashboard_layout_at_1400px_and_tab_switch(jupyter_server, notebook_dir,
     box = out.bounding_box()
     assert box is not None and box["width"] > 1200  # the output spans the page with the sidebar closed
     out.screenshot(path=str(screenshot(page, "dashboard-lab-1400").with_name("dashboard-lab-1400-output.png")))
-    # the three views of the first row sit side by side at this width
-    tops = [
-        cell(page, 0).locator(sel).first.bounding_box()["y"]  # type: ignore[index]
-        for sel in (".logitscope-scatter", ".logitscope-histogram", ".lsc-root")
-    ]
-    assert max(tops) - min(tops) < 60, tops
+
+    # at this width the scatter and the histogram share the first row, the gallery and the card the second
+    def top(sel: str) -> float:
+        return cell(page, 0).locator(sel).first.bounding_box()["y"]  # type: ignore[index]
+
+    first, second = [top(".logitscope-scatter"), top(".logitscope-histogram")], [top(".lsg-root"), top(".lsc-root")]
+    assert max(first) - min(first) < 60 and max(second) - min(second) < 60, (first, second)
+    assert min(second) > max(first)
     # switch to the calibration tab and back: no console errors from hidden figures
     cell(page, 0).locator(".lm-TabBar-tab", has_text="Calibrate and decide").first.click()
     wait_for_output(page, 0, ".logitscope-calibration .logitscope-threshold .bqplot")
