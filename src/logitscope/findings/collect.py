@@ -17,7 +17,7 @@ from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 from .. import analysis as an
-from ..analysis.split import Split, random_split
+from ..analysis.split import Split, hash_split
 from ..errors import LabelError, ParameterError
 from .calibration import CalibrationSummary, PredictionSummary, calibration_summary, prediction_summary
 from .choices import Binning, Choices, ThresholdRule
@@ -109,8 +109,13 @@ def resolve_choices(
     strategy: str = "uniform",
     split: Split | None = None,
     temperature_how: str | None = None,
+    *,
+    fitted: an.TemperatureFit | None = None,
 ) -> tuple[Choices, TemperatureContext]:
     """Check the options and settle the temperatures and the threshold rule.
+
+    ``fitted`` is the temperature fit on all labelled rows when the caller has it already (a chunked
+    batch fits over its chunks); else it is computed here for a labelled frame.
 
     Raises
     ------
@@ -137,7 +142,8 @@ def resolve_choices(
         if asked:
             raise LabelError(f"{' and '.join(asked)} needs labels; this frame has none (use with_labels)")
     base = frame.temperature
-    fitted = fitted_temperature(frame) if frame.has_labels else None
+    if fitted is None and frame.has_labels:
+        fitted = fitted_temperature(frame)
     if temperature is not None:
         t = an.check_temperature(temperature)
         how = "set by hand"
@@ -217,8 +223,9 @@ def collect(
     """Compute the findings of ``frame`` for ``choices``.
 
     With ``own_split`` and no split in the choices, the held-out check uses a
-    seeded (seed 0), stratified half-and-half random split when the frame has
-    at least ``MIN_ROWS_FOR_SPLIT`` rows.
+    seeded (seed 0) half-and-half split by row hash (:func:`logitscope.analysis.hash_split`:
+    the one a chunked batch gets, so both give the same report) when the frame
+    has at least ``MIN_ROWS_FOR_SPLIT`` rows.
 
     Examples
     --------
@@ -253,8 +260,7 @@ def collect(
     threshold = None if choices.rule is None else threshold_decision(frame, choices.rule, t, chosen_on)
     split = choices.split
     if split is None and own_split and frame.n_samples >= MIN_ROWS_FOR_SPLIT:
-        assert frame.labels is not None
-        split = random_split(frame.n_samples, 0.5, seed=0, stratify=frame.labels)
+        split = hash_split(frame.n_samples, 0.5, seed=0)  # as a chunked batch is split, chunk by chunk
     held = None if split is None else held_out_check(frame, split, t, choices.rule, b)
     return Findings(
         choices=choices,

@@ -124,7 +124,8 @@ def write_report(
     strategy : {"uniform", "quantile"}
         Equal-width or equal-mass bins.
     split : Split, optional
-        Fit/held-out rows for the held-out check (default: a stratified random half split, seed 0).
+        Fit/held-out rows for the held-out check (default: a half split by row hash, seed 0:
+        :func:`logitscope.analysis.hash_split`).
     temperature_how : str, optional
         How the temperature was chosen, in words for the page (escaped); default from the options.
     findings : Findings, optional
