@@ -225,7 +225,7 @@ def collect(
     With ``own_split`` and no split in the choices, the held-out check uses a
     seeded (seed 0) half-and-half split by row hash (:func:`logitscope.analysis.hash_split`:
     the one a chunked batch gets, so both give the same report) when the frame
-    has at least ``MIN_ROWS_FOR_SPLIT`` rows.
+    has at least ``MIN_ROWS_FOR_SPLIT`` labelled rows and both parts hold some.
 
     Examples
     --------
@@ -259,8 +259,10 @@ def collect(
     chosen_on = None if choices.split is None else choices.split.fit
     threshold = None if choices.rule is None else threshold_decision(frame, choices.rule, t, chosen_on)
     split = choices.split
-    if split is None and own_split and frame.n_samples >= MIN_ROWS_FOR_SPLIT:
-        split = hash_split(frame.n_samples, 0.5, seed=0)  # as a chunked batch is split, chunk by chunk
+    if split is None and own_split and frame.n_labelled >= MIN_ROWS_FOR_SPLIT:
+        own = hash_split(frame.n_samples, 0.5, seed=0)  # as a chunked batch is split, chunk by chunk
+        if frame.labelled[own.fit].any() and frame.labelled[own.held_out].any():  # each part judged on labels
+            split = own
     held = None if split is None else held_out_check(frame, split, t, choices.rule, b)
     return Findings(
         choices=choices,
