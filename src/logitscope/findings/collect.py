@@ -12,6 +12,7 @@ for the same choices, so both show the same numbers.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
@@ -29,6 +30,7 @@ from .sweep import SweepFinding, fitted_temperature, sweep_finding
 from .threshold import ThresholdDecision, threshold_decision
 
 if TYPE_CHECKING:
+    from ..chunked.frame import ChunkedFrame
     from ..frame import LogitFrame
 
 __all__ = ["Findings", "TemperatureContext", "collect", "resolve_choices", "rule_from_options", "temperature_context"]
@@ -94,8 +96,21 @@ def rule_from_options(
     return None
 
 
+def _fit_all(frame: LogitFrame | ChunkedFrame) -> an.TemperatureFit:
+    """The temperature fit on all labelled rows (a chunked batch fits over its chunks)."""
+    from ..frame import LogitFrame
+
+    if isinstance(frame, LogitFrame):
+        return fitted_temperature(frame)
+    from ..chunked.analysis import fit_temperature as chunked_fit
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # a bound hit is carried in at_bound, as in memory
+        return chunked_fit(frame)
+
+
 def resolve_choices(
-    frame: LogitFrame,
+    frame: LogitFrame | ChunkedFrame,
     temperature: float | None = None,
     fit_temperature: bool = False,
     target_accuracy: float | None = None,
@@ -114,8 +129,9 @@ def resolve_choices(
 ) -> tuple[Choices, TemperatureContext]:
     """Check the options and settle the temperatures and the threshold rule.
 
-    ``fitted`` is the temperature fit on all labelled rows when the caller has it already (a chunked
-    batch fits over its chunks); else it is computed here for a labelled frame.
+    ``frame`` is a :class:`~logitscope.LogitFrame` or a :class:`~logitscope.chunked.ChunkedFrame`.
+    ``fitted`` is the temperature fit on all labelled rows when the caller has it already; else it is
+    computed here for a labelled frame (over the chunks for a chunked batch).
 
     Raises
     ------
@@ -143,7 +159,7 @@ def resolve_choices(
             raise LabelError(f"{' and '.join(asked)} needs labels; this frame has none (use with_labels)")
     base = frame.temperature
     if fitted is None and frame.has_labels:
-        fitted = fitted_temperature(frame)
+        fitted = _fit_all(frame)
     if temperature is not None:
         t = an.check_temperature(temperature)
         how = "set by hand"
@@ -161,7 +177,7 @@ def resolve_choices(
 
 
 def temperature_context(
-    frame: LogitFrame, temperature: float, how: str, fitted: an.TemperatureFit | None = None
+    frame: LogitFrame | ChunkedFrame, temperature: float, how: str, fitted: an.TemperatureFit | None = None
 ) -> TemperatureContext:
     """The temperatures shown beside a decision temperature: the frame's own, the fitted one, the compared one.
 
@@ -178,7 +194,7 @@ def temperature_context(
     t = an.check_temperature(temperature)
     base = frame.temperature
     if fitted is None and frame.has_labels:
-        fitted = fitted_temperature(frame)
+        fitted = _fit_all(frame)
     if fitted is None:
         compare, compare_how = None, ""
     elif not math.isclose(t, base, rel_tol=1e-12):
