@@ -158,7 +158,7 @@ def test_the_fitted_temperatures_agree_to_the_fit_tolerance(digits_frame, digits
 
 def test_the_drawn_curve_counts_exactly_at_its_thresholds(digits_frame, digits_store) -> None:
     cf = ck.open_chunked(digits_store)
-    ref, got = both(digits_frame, cf, target_accuracy=0.97)
+    _, got = both(digits_frame, cf, target_accuracy=0.97)
     curve = got.threshold.curve
     assert curve.resolution == 2.0**-12
     s = digits_frame.sample_scores(got.choices.temperature)
@@ -211,7 +211,8 @@ def test_a_parquet_folder_and_an_npy_file_give_the_same_report(digits_frame, tmp
     half = digits_frame.n_samples // 2
     z, y, ids = np.asarray(digits_frame.logits), digits_frame.labels, digits_frame.ids
     for name, part in (("a", slice(0, half)), ("b", slice(half, None))):
-        LogitFrame(z[part], labels=y[part], ids=ids[part], classes=digits_frame.classes).write(folder / f"{name}.parquet")
+        piece = LogitFrame(z[part], labels=y[part], ids=ids[part], classes=digits_frame.classes)
+        piece.write(folder / f"{name}.parquet")
     np.save(tmp_path / "logits.npy", np.asarray(digits_frame.logits))
     ref = tmp_path / "m.html"
     write_report(digits_frame, ref, temperature=0.9, costs=(5.0, 1.0))

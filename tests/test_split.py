@@ -5,10 +5,9 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from scipy.stats import binomtest
 from sklearn.datasets import load_digits
 from sklearn.model_selection import train_test_split
-
-from scipy.stats import binomtest
 
 from logitscope.analysis.split import Split, hash_split, held_out_by_hash, random_split, split_by_values
 from logitscope.errors import LogitscopeError, ParameterError, ShapeError

@@ -230,9 +230,9 @@ def _runner_up(z: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:
             got[a : a + per] = _runner_up(z[rows[a : a + per]])
         return got
     out = np.empty(z.shape[0], dtype=np.int64)
-    for rows in block_slices(*z.shape):
-        b = np.array(z[rows], dtype=np.float64)
+    for block in block_slices(*z.shape):
+        b = np.array(z[block], dtype=np.float64)
         r = np.arange(b.shape[0])
         b[r, b.argmax(axis=1)] = -np.inf
-        out[rows] = b.argmax(axis=1)
+        out[block] = b.argmax(axis=1)
     return out

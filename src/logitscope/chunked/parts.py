@@ -117,12 +117,9 @@ def _take(s: an.SampleScores, m: np.ndarray | None) -> an.SampleScores:
     """The scores of the rows in mask ``m`` (all for None)."""
     if m is None:
         return s
-    changes = {
-        name: getattr(s, name)[m]
-        for name in ("predicted", "confidence", "entropy", "margin", "logit_margin", "energy", "true_probability",
-                     "true_log_probability", "brier", "true_rank", "correct")  # fmt: skip
-        if getattr(s, name) is not None
-    }
+    names = ("predicted", "confidence", "entropy", "margin", "logit_margin", "energy", "true_probability",
+             "true_log_probability", "brier", "true_rank", "correct")  # fmt: skip
+    changes = {name: getattr(s, name)[m] for name in names if getattr(s, name) is not None}
     return replace(s, **changes)
 
 

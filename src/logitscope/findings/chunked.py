@@ -58,7 +58,7 @@ def resolve_chunked(cf: ChunkedFrame, **options: Any) -> tuple[Choices, Temperat
     >>> cf = ChunkedFrame.from_dask(np.array([[2.0, 0.0], [0.0, 1.0], [1.0, 0.0]]), labels=np.array([0, 1, 1]))
     >>> choices, temps = resolve_chunked(cf, target_accuracy=0.9)
     >>> choices.rule.kind, round(temps.fitted.temperature, 4)
-    ('accuracy', 1.0)
+    ('accuracy', 1.3222)
     """
     if options.get("strategy", "uniform") != "uniform":
         raise ParameterError("equal-mass bins need the global order of the confidences; a chunked batch uses "
@@ -153,7 +153,7 @@ def collect_chunked(
     (True, True)
     """
     from ..chunked import parts as P
-    from ..chunked.analysis import _Confusion, _require_labels, _run, _sorted, _Totals
+    from ..chunked.analysis import _Confusion, _require_labels, _run, _Totals
 
     if choices.binning.strategy != "uniform":
         raise ParameterError("equal-mass bins need the global order of the confidences; use equal-width bins")
@@ -338,7 +338,11 @@ def _thresholds(
     main: dict[str, float] = {}
     own_limits: dict[str, np.ndarray] = {}
     for part in where:
-        main[part] = float(rule.threshold) if rule.kind == "fixed" else values[slots[(part, -1)]]
+        if rule.kind == "fixed":
+            assert rule.threshold is not None
+            main[part] = float(rule.threshold)
+        else:
+            main[part] = values[slots[(part, -1)]]
         if rule.per_class:
             lim = np.full(k, np.inf)
             for c in range(k):
@@ -375,9 +379,7 @@ def _thresholds(
             choice = fixed(th, int(acc.sum()), int(err.sum()), n)
         else:
             choice = pending[slots[(part, -1)]].choice(lv, method, th)
-        by_class = tuple(
-            fixed(th, int(acc[c]), int(err[c]), int(tot[c])) if tot[c] else None for c in range(k)
-        )
+        by_class = tuple(fixed(th, int(acc[c]), int(err[c]), int(tot[c])) if tot[c] else None for c in range(k))
         own = combined = None
         if rule.per_class:
             own_list = []

@@ -248,7 +248,9 @@ def write_chunked_report(
     n_bins: int = 15,
     temperature_how: str | None = None,
 ) -> Findings:
-    """:func:`write_report` for a batch read in chunks (:class:`~logitscope.chunked.ChunkedFrame`); returns the findings.
+    """:func:`write_report` for a batch read in chunks (a :class:`~logitscope.chunked.ChunkedFrame`).
+
+    Returns the findings rendered.
 
     The findings come from passes over the chunks (:func:`logitscope.findings.collect_chunked`), on dask's
     threaded scheduler or on the dask.distributed cluster of the active client; the page is the one
@@ -261,7 +263,7 @@ def write_chunked_report(
     >>> from logitscope import load_demo
     >>> from logitscope.chunked import open_chunked, write_zarr
     >>> folder = pathlib.Path(tempfile.mkdtemp())
-    >>> write_zarr(load_demo("helpdesk"), folder / "tickets.zarr", chunk_rows=400)
+    >>> write_zarr(load_demo("helpdesk"), folder / "tickets.zarr", chunk_rows=400, drop_extras=True)
     >>> f = write_chunked_report(open_chunked(folder / "tickets.zarr"), folder / "r.html", target_accuracy=0.95)
     >>> f.threshold.choice.n_total, "histogram of the confidence" in (folder / "r.html").read_text()
     (1200, True)
@@ -277,7 +279,7 @@ def write_chunked_report(
         "interval": interval, "level": level, "n_bins": n_bins, "temperature_how": temperature_how,
     }  # fmt: skip
     found = collect_chunked(cf, *resolve_chunked(cf, **options))
-    rows = [] if found.suspects is None else found.suspects.rows
+    rows: Any = [] if found.suspects is None else found.suspects.rows
     page = build_report(_ChunkedPage(cf, rows), found, title=title)
     with atomic_write(path, "w") as fh:
         fh.write(page)

@@ -63,6 +63,7 @@ class ReportFrame(Protocol):
     @property
     def n_classes(self) -> int: ...
 
+
 #: Long side of a sample thumbnail in the report, in pixels.
 THUMBNAIL_SIZE = 48
 #: Characters of a text sample shown in a table cell.
