@@ -133,27 +133,42 @@ class PartStats(_Collector):
         assert s.correct is not None and s.true_rank is not None
         assert s.true_log_probability is not None and s.brier is not None
         edges = np.linspace(0.0, 1.0, self.n_bins + 1)[1:-1]  # as reliability_bins places a confidence
+        k, m = z.shape[1], self.n_bins
+        split = any(p != "all" for p in self.parts)
+        # each sum once per part (0: fit, 1: held out) by bincount; "all" is their sum
+        g = part_mask("held", offset, len(s)).astype(np.int64) if split else np.zeros(len(s), dtype=np.int64)  # type: ignore[union-attr]
+        b = np.searchsorted(edges, s.confidence, side="left")
+
+        def per(w: np.ndarray | None = None) -> np.ndarray:
+            return np.bincount(g, weights=w, minlength=2)
+
+        rank = np.minimum(s.true_rank, k)
+        sums = {
+            "n": per(),
+            "correct": per(s.correct.astype(np.float64)),
+            "log_probability": per(s.true_log_probability),
+            "brier": per(s.brier),
+            "confidence": per(s.confidence),
+            "entropy": per(s.entropy),
+        }
+        ranks = np.cumsum(np.bincount(g * (k + 1) + rank, minlength=2 * (k + 1)).reshape(2, k + 1), axis=1)
+        pred = np.bincount(g * k + s.predicted, minlength=2 * k).reshape(2, k)
+        bins = g * m + b
+        bc = np.bincount(bins, minlength=2 * m).reshape(2, m)
+        bh = np.bincount(bins, weights=s.correct, minlength=2 * m).reshape(2, m)
+        bf = np.bincount(bins, weights=s.confidence, minlength=2 * m).reshape(2, m)
         out: dict[str, Any] = {}
         for p in self.parts:
-            q = _take(s, part_mask(p, offset, len(s)))
-            assert q.correct is not None and q.true_rank is not None
-            assert q.true_log_probability is not None and q.brier is not None
-            b = np.searchsorted(edges, q.confidence, side="left")
-            out.update(
-                {
-                    f"{p}/n": len(q),
-                    f"{p}/correct": int(q.correct.sum()),
-                    f"{p}/log_probability": float(q.true_log_probability.sum()),
-                    f"{p}/brier": float(q.brier.sum()),
-                    f"{p}/confidence": float(q.confidence.sum()),
-                    f"{p}/entropy": float(q.entropy.sum()),
-                    f"{p}/top_k": np.array([np.count_nonzero(q.true_rank <= k) for k in self.ks], dtype=np.int64),
-                    f"{p}/predicted": np.bincount(q.predicted, minlength=z.shape[1]),
-                    f"{p}/bin_count": np.bincount(b, minlength=self.n_bins),
-                    f"{p}/bin_hits": np.bincount(b, weights=q.correct, minlength=self.n_bins),
-                    f"{p}/bin_confidence": np.bincount(b, weights=q.confidence, minlength=self.n_bins),
-                }
-            )
+            rows = [0, 1] if p == "all" else [1] if p == "held" else [0]
+            for key, v in sums.items():
+                out[f"{p}/{key}"] = float(v[rows].sum())
+            out[f"{p}/n"] = int(round(out[f"{p}/n"]))
+            out[f"{p}/correct"] = int(round(out[f"{p}/correct"]))
+            out[f"{p}/top_k"] = ranks[rows].sum(axis=0)[list(self.ks)].astype(np.int64)
+            out[f"{p}/predicted"] = pred[rows].sum(axis=0)
+            out[f"{p}/bin_count"] = bc[rows].sum(axis=0)
+            out[f"{p}/bin_hits"] = bh[rows].sum(axis=0)
+            out[f"{p}/bin_confidence"] = bf[rows].sum(axis=0)
         return out
 
 
@@ -222,13 +237,16 @@ class _GroupedRights:
             pred.append(s.predicted[s.correct])
             held.append(h[s.correct])
         c_all, p_all, h_all = np.concatenate(conf), np.concatenate(pred), np.concatenate(held)
+        by_conf = np.argsort(c_all)  # sorted once; each grouping then orders by group, stably
+        c_all, p_all, h_all = c_all[by_conf], p_all[by_conf], h_all[by_conf]
         out = []
         for grouping, errors, starts in zip(spec.groupings, spec.errors, spec.starts, strict=True):
             gid = _groups(grouping, p_all, h_all)
             keep = gid >= 0
             g, c = gid[keep], c_all[keep]
-            order = np.lexsort((c, g))
-            g, c = g[order], c[order]
+            if starts.size > 2:
+                order = np.argsort(g, kind="stable")
+                g, c = g[order], c[order]
             bounds = np.searchsorted(g, np.arange(starts.size))
             keys = []
             for j in range(starts.size - 1):
@@ -241,9 +259,9 @@ class _GroupedRights:
                 inside = slot < e.size
                 equal[inside] = e[slot[inside]] == cj[inside]
                 keys.append((starts[j] + j + slot) * 2 + equal)
-            key = np.concatenate(keys) if keys else np.zeros(0, dtype=np.int64)
-            uniq, counts = np.unique(key, return_counts=True)
-            out.append((uniq, counts))
+            key = np.concatenate(keys) if keys else np.zeros(0, dtype=np.int64)  # ascending already
+            cut = np.flatnonzero(np.r_[True, key[1:] != key[:-1]]) if key.size else np.zeros(0, dtype=np.int64)
+            out.append((key[cut], np.diff(np.r_[cut, key.size])))
         return out
 
 
