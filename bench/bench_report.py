@@ -192,7 +192,7 @@ def main() -> None:
         print(f"done: {name} {r}", file=sys.stderr, flush=True)
     print(f"{'case':<28}{'time s':>9}{'target s':>10}{'floor s':>9}{'x floor':>9}{'peak MB':>9}{'x matrix':>10}"
           f"{'mem target':>12}")  # fmt: skip
-    for name, r, target, mem_target in rows:
+    for _name, r, target, mem_target in rows:
         label = {"report": "report", "summary": "summary", "chunked": "chunked report (Zarr)"}[str(r["case"])]
         label = f"{label} {int(r['n']):,} x {r['k']}"  # type: ignore[call-overload]
         t, fl = float(r["seconds"]), float(r["floor"])  # type: ignore[arg-type]

@@ -162,8 +162,8 @@ class PartStats(_Collector):
             rows = [0, 1] if p == "all" else [1] if p == "held" else [0]
             for key, v in sums.items():
                 out[f"{p}/{key}"] = float(v[rows].sum())
-            out[f"{p}/n"] = int(round(out[f"{p}/n"]))
-            out[f"{p}/correct"] = int(round(out[f"{p}/correct"]))
+            out[f"{p}/n"] = round(out[f"{p}/n"])
+            out[f"{p}/correct"] = round(out[f"{p}/correct"])
             out[f"{p}/top_k"] = ranks[rows].sum(axis=0)[list(self.ks)].astype(np.int64)
             out[f"{p}/predicted"] = pred[rows].sum(axis=0)
             out[f"{p}/bin_count"] = bc[rows].sum(axis=0)
