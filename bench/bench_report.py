@@ -190,7 +190,7 @@ def main() -> None:
             r = measure(case, n, k, Path(d))
         rows.append((name, r, target, mem_target))
         print(f"done: {name} {r}", file=sys.stderr, flush=True)
-    print(f"{'case':<28}{'time s':>9}{'target s':>10}{'floor s':>9}{'x floor':>9}{'peak MB':>9}{'x matrix':>10}"
+    print(f"{'case':<40}{'time s':>9}{'target s':>10}{'floor s':>9}{'x floor':>9}{'peak MB':>9}{'x matrix':>10}"
           f"{'mem target':>12}")  # fmt: skip
     for _name, r, target, mem_target in rows:
         label = {"report": "report", "summary": "summary", "chunked": "chunked report (Zarr)"}[str(r["case"])]
@@ -199,9 +199,9 @@ def main() -> None:
         peak, mat = float(r["peak_bytes"]), float(r["matrix_bytes"])  # type: ignore[arg-type]
         tt = "-" if target is None else f"< {target:g}"
         mt = "-" if mem_target is None else f"<= {mem_target:g}x"
-        print(f"{label:<28}{t:9.2f}{tt:>10}{fl:9.3f}{t / fl:9.1f}{peak / 2**20:9.0f}{peak / mat:10.2f}{mt:>12}")
+        print(f"{label:<40}{t:9.2f}{tt:>10}{fl:9.3f}{t / fl:9.1f}{peak / 2**20:9.0f}{peak / mat:10.2f}{mt:>12}")
         if "read" in r:
-            print(f"{'  (file read, not counted)':<28}{float(r['read']):9.2f}")  # type: ignore[arg-type]
+            print(f"{'  (file read, not counted)':<40}{float(r['read']):9.2f}")  # type: ignore[arg-type]
     print(f"\n{os.cpu_count()} cores; other processes on them change the figures (run on a quiet machine).")
     shutil.rmtree(Path(tempfile.gettempdir()) / "logitscope-bench-none", ignore_errors=True)
 

@@ -795,19 +795,28 @@ class _DoubtfulCandidates(_Collector):
         return score[order], index[order], suggested[order], sum(p[3] for p in parts)
 
 
+def cl_thresholds(totals: dict[str, Any], confusion: dict[str, Any]) -> np.ndarray:
+    """Confident learning's per-class thresholds (mean given-label probability per class) from the sums of
+    a ``_CLThresholds`` and a ``_Confusion`` collector of one pass."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.asarray(totals["total"] / confusion["labels"])
+
+
 def rank_doubtful_labels(
     cf: ChunkedFrame,
     method: Literal["confident_learning", "given_probability", "label_margin"] = "confident_learning",
     temperature: float | None = None,
     top: int = 1000,
     count: bool = False,
+    class_thresholds: np.ndarray | None = None,
 ) -> Any:
     """The first ``top`` rows of :func:`logitscope.analysis.rank_doubtful_labels`: each chunk's best, merged.
 
     Confident learning (Northcutt et al. 2021) first needs its per-class
     thresholds over all rows: one pass more. With ``count``, returns
     ``(ranking, n)``, ``n`` the number of rows the whole ranking holds (the rows
-    confident learning flags; every row for the other methods).
+    confident learning flags; every row for the other methods). ``class_thresholds``: confident
+    learning's per-class thresholds when a pass of the caller's has summed them (:func:`cl_thresholds`).
     """
     _require_labels(cf, "rank_doubtful_labels")
     if method not in ("confident_learning", "given_probability", "label_margin"):
@@ -816,11 +825,10 @@ def rank_doubtful_labels(
         )
     t = _t(cf, temperature)
     beta = 1.0 / t
-    thresholds = None
-    if method == "confident_learning":
+    thresholds = class_thresholds
+    if method == "confident_learning" and thresholds is None:
         part, conf = _run(cf, t, [_CLThresholds(cf.n_classes, beta), _Confusion(cf.n_classes)])
-        with np.errstate(invalid="ignore", divide="ignore"):
-            thresholds = part["total"] / conf["labels"]
+        thresholds = cl_thresholds(part, conf)
     (found,) = _run(cf, t, [_DoubtfulCandidates(method, int(top), beta, thresholds)])
     score, index, suggested, n_ranked = found
     ranking = an.DoubtfulLabelRanking(method=method, index=index, score=score, suggested=suggested)

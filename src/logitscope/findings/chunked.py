@@ -153,7 +153,7 @@ def collect_chunked(
     (True, True)
     """
     from ..chunked import parts as P
-    from ..chunked.analysis import _Confusion, _require_labels, _run, _Totals
+    from ..chunked.analysis import _CLThresholds, _Confusion, _require_labels, _run, _Totals, cl_thresholds
 
     if choices.binning.strategy != "uniform":
         raise ParameterError("equal-mass bins need the global order of the confidences; use equal-width bins")
@@ -211,7 +211,8 @@ def collect_chunked(
         collectors: list[Any] = [P.PartStats(plan.parts[temp], ks, b.n_bins), P.ErrorRecords()]
         at_t = temp == t
         if at_t:
-            collectors += [_Confusion(k), P.ConfidenceCounts(edges), P.SweepCollector(1.0 / grid, b.n_bins)]
+            collectors += [_Confusion(k), P.ConfidenceCounts(edges), P.SweepCollector(1.0 / grid, b.n_bins),
+                           _CLThresholds(k, 1.0 / t)]  # fmt: skip
             if rule is not None:
                 collectors.append(P.PartRCHistogram("all"))
                 if use_split:
@@ -220,7 +221,8 @@ def collect_chunked(
         stats[temp] = out[0]
         records = out[1]
         if at_t:
-            extra = {"confusion": out[2], "hist": out[3], "sweep": out[4], "curves": out[5:]}
+            extra = {"confusion": out[2], "hist": out[3], "sweep": out[4], "cl": cl_thresholds(out[5], out[2]),
+                     "curves": out[6:]}  # fmt: skip
         sizes: dict[str, np.ndarray] = {}
         for g in plan.groupings[temp]:
             if g in ("class", "fitclass"):
@@ -268,7 +270,7 @@ def collect_chunked(
             held = _held_out(fit_fit, columns, fit_sum, held_sum, n_parts, t, on_fit, judged)
     if use_split and held is None:
         held = _held_out(fit_fit, columns, fit_sum, held_sum, n_parts, t, None, None)
-    suspects = _suspects(cf, t, n_suspects)
+    suspects = _suspects(cf, t, n_suspects, extra["cl"])
     return Findings(
         choices=choices,
         temperatures=temperatures,
@@ -417,11 +419,13 @@ def _thresholds(
     return decision, judged, on_fit
 
 
-def _suspects(cf: ChunkedFrame, t: float, top: int) -> SuspectLabels:
+def _suspects(cf: ChunkedFrame, t: float, top: int, class_thresholds: np.ndarray) -> SuspectLabels:
     """Confident learning's flagged rows over the chunks (two passes), the first ``top`` with their probabilities."""
     from ..chunked.analysis import compute, rank_doubtful_labels
 
-    ranking, n_flagged = rank_doubtful_labels(cf, "confident_learning", t, top=top, count=True)
+    ranking, n_flagged = rank_doubtful_labels(
+        cf, "confident_learning", t, top=top, count=True, class_thresholds=class_thresholds
+    )
     rows = np.asarray(ranking.index, dtype=np.int64)
     assert cf.labels is not None
     if rows.size:
