@@ -101,6 +101,10 @@ def page_differences(memory: Path, chunked: Path, skip: tuple[str, ...] = ()) ->
     rows_b = [e["attrs"].get("data-row") for e in b.elements if e["attrs"].get("id", "").startswith("doubt-")]
     if rows_a != rows_b:
         out.append(f"doubtful rows {rows_a} != {rows_b}")
+    names_a = [e["text"] for e in a.elements if "sample-id" in e["attrs"].get("class", "")]
+    names_b = [e["text"] for e in b.elements if "sample-id" in e["attrs"].get("class", "")]
+    if names_a != names_b:
+        out.append(f"doubtful ids {names_a[:5]} != {names_b[:5]}")
     return out
 
 
@@ -245,3 +249,11 @@ def test_bad_input_gets_one_line_and_exit_2(digits_frame, tmp_path: Path, capsys
     err = capsys.readouterr().err.strip()
     assert err.startswith("logitscope: error:") and words in err and "\n" not in err
     assert not (tmp_path / "r.html").exists()
+
+
+def test_the_doubtful_rows_carry_their_stored_ids(digits_frame, digits_store, tmp_path: Path) -> None:
+    found = write_chunked_report(ck.open_chunked(digits_store), tmp_path / "c.html", temperature=1.0)
+    page = read_report(tmp_path / "c.html")
+    shown = [e["text"] for e in page.elements if "sample-id" in e["attrs"].get("class", "")]
+    assert found.suspects is not None and len(shown) == len(found.suspects) > 0
+    assert shown == [str(digits_frame.ids[r]) for r in found.suspects.rows]  # the ids the frame was written with
