@@ -87,3 +87,32 @@ def test_the_flag_wins_over_the_environment(monkeypatch):
     assert ck.scheduler_address(None) == "tcp://127.0.0.2:8786"
     monkeypatch.delenv("LOGITSCOPE_SCHEDULER")
     assert ck.scheduler_address(None) is None
+
+
+def test_the_report_on_the_cluster_equals_the_in_memory_one(cluster, store, tmp_path, monkeypatch):
+    import zarr
+
+    from logitscope.findings import collect, resolve_choices
+    from logitscope.findings.chunked import collect_chunked, resolve_chunked
+    from test_chunked_report import differences, page_differences
+
+    frame, path = store
+    cf = ck.open_chunked(path)
+    frame.write(tmp_path / "mailroom.npz")
+    args = ["--fit-temperature", "--target-accuracy", "0.97", "--per-class"]
+    assert main(["report", str(tmp_path / "mailroom.npz"), "-o", str(tmp_path / "m.html"), *args]) == 0
+
+    def no_reading_here(*args, **kwargs):
+        raise AssertionError("the client read a chunk of the store")
+
+    monkeypatch.setattr(zarr.Array, "__getitem__", no_reading_here)  # the workers read every chunk
+    with ck.connected(cluster.scheduler_address):
+        choices, temps = resolve_chunked(cf, costs=(10.0, 1.0), per_class=False)
+        got = collect_chunked(cf, choices, temps)
+    ref = collect(frame, *resolve_choices(frame, costs=(10.0, 1.0), fitted=temps.fitted))
+    assert differences(ref, got) == []
+    out = tmp_path / "c.html"
+    assert main(["report", str(path), "-o", str(out), "--scheduler", cluster.scheduler_address, *args]) == 0
+    assert page_differences(tmp_path / "m.html", out) == []
+    with distributed.Client(cluster.scheduler_address, timeout=10) as client:  # left running, both workers
+        assert len(client.scheduler_info()["workers"]) == 2

@@ -5,10 +5,11 @@ from __future__ import annotations
 import numpy as np
 import pandas as pd
 import pytest
+from scipy.stats import binomtest
 from sklearn.datasets import load_digits
 from sklearn.model_selection import train_test_split
 
-from logitscope.analysis.split import Split, random_split, split_by_values
+from logitscope.analysis.split import Split, hash_split, held_out_by_hash, random_split, split_by_values
 from logitscope.errors import LogitscopeError, ParameterError, ShapeError
 
 
@@ -56,6 +57,47 @@ def test_stratified_split_tiny_groups_keep_both_parts() -> None:
     split = random_split(4, 0.5, seed=0, stratify=["a", "b", "c", "d"])
     _check_partition(split, 4)
     assert len(split.fit) >= 1 and len(split.held_out) >= 1
+
+
+_M64 = (1 << 64) - 1
+
+
+def _splitmix64(state: int) -> int:
+    """SplitMix64's output for a state already advanced by the golden gamma (Steele, Lea and Flood 2014;
+    the reference C code of Vigna's splitmix64.c), in Python's exact integers."""
+    z = state & _M64
+    z = ((z ^ (z >> 30)) * 0xBF58476D1CE4E5B9) & _M64
+    z = ((z ^ (z >> 27)) * 0x94D049BB133111EB) & _M64
+    return z ^ (z >> 31)
+
+
+def test_splitmix64_reference_outputs() -> None:
+    # from memory: the first outputs of splitmix64 seeded with 0 (states gamma, 2 gamma, 3 gamma)
+    gamma = 0x9E3779B97F4A7C15
+    assert [_splitmix64(i * gamma) for i in (1, 2, 3)] == [0xE220A8397B1DCDAF, 0x6E789E6AA1B965F4, 0x06C45D188009454F]
+
+
+@pytest.mark.parametrize(("seed", "frac"), [(0, 0.5), (3, 0.2), (12345, 0.9)])
+def test_held_out_by_hash_is_splitmix64_of_the_row(seed: int, frac: float) -> None:
+    # reference: the published SplitMix64 finaliser above, row + (seed + 1) * gamma, held out below frac * 2**64
+    gamma = 0x9E3779B97F4A7C15
+    rows = [*range(0, 300), *range(2**33, 2**33 + 50)]
+    want = [_splitmix64(r + (seed + 1) * gamma) < int(frac * 2**64) for r in rows]
+    got = np.r_[held_out_by_hash(0, 300, frac, seed), held_out_by_hash(2**33, 2**33 + 50, frac, seed)]
+    assert got.tolist() == want
+
+
+def test_hash_split_is_a_partition_the_same_for_any_range_and_holds_the_share() -> None:
+    n = 200_000
+    split = hash_split(n, 0.3, seed=2)
+    _check_partition(split, n)
+    held = np.zeros(n, dtype=bool)
+    held[split.held_out] = True
+    for a, b in [(0, 17), (1000, 70_000), (199_990, n)]:  # any range split alone gives the same rows
+        assert np.array_equal(held_out_by_hash(a, b, 0.3, seed=2), held[a:b])
+    # each row independently held out with probability 0.3: a binomial count (scipy.stats.binomtest)
+    assert binomtest(int(held.sum()), n, 0.3).pvalue > 1e-4
+    assert "row hash" in split.description and "seed 2" in split.description
 
 
 def test_split_by_values_matches_pandas_isin() -> None:

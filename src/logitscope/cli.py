@@ -24,7 +24,7 @@ from pathlib import Path
 from typing import Any, Literal, TypeVar
 
 from . import __version__
-from .errors import InputTypeError, LogitscopeError, ShapeError
+from .errors import InputTypeError, LogitscopeError, ParameterError, ShapeError
 
 T = TypeVar("T")
 
@@ -161,8 +161,10 @@ def _parser() -> argparse.ArgumentParser:
     )  # fmt: skip
 
     r = sub.add_parser("report", help="write a self-contained HTML report")
-    r.add_argument("file", help=_FILE_HELP)
+    r.add_argument("file", help=_FILE_HELP + "; or read in chunks: a .zarr store, a folder of .parquet files, .npy")
     r.add_argument("-o", "--output", required=True, metavar="HTML", help="the report file to write")
+    r.add_argument("--scheduler", metavar="ADDRESS", help="dask.distributed scheduler for a chunked store "
+                   "(default: $LOGITSCOPE_SCHEDULER, else in process); the cluster keeps running")  # fmt: skip
     g = r.add_mutually_exclusive_group()
     g.add_argument("--temperature", type=float, metavar="T", help=_TEMPERATURE_HELP)
     g.add_argument("--fit-temperature", action="store_true", help=_FIT_HELP)
@@ -279,10 +281,13 @@ def _cmd_demo(args: argparse.Namespace) -> int:
 
 
 def _cmd_report(args: argparse.Namespace) -> int:
+    from .chunked.frame import is_chunked_source
     from .frame import LogitFrame
     from .report import write_report
 
-    frame = _Progress(f"reading {args.file}").run(lambda: LogitFrame.read(args.file))
+    chunked = is_chunked_source(args.file)
+    if chunked and args.relabel:
+        raise ParameterError("--relabel needs the file read in memory (.npz or .parquet), not a chunked store")
     options: dict[str, Any] = {"fit_temperature": args.fit_temperature}
     if args.temperature is not None:
         options["temperature"] = args.temperature
@@ -298,7 +303,13 @@ def _cmd_report(args: argparse.Namespace) -> int:
         options["title"] = args.title
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
-        _Progress("writing the report").run(lambda: write_report(frame, args.output, **options))
+        if chunked:
+            from .chunked.cli import chunked_report
+
+            _Progress("writing the report over chunks").run(lambda: chunked_report(args, options))
+        else:
+            frame = _Progress(f"reading {args.file}").run(lambda: LogitFrame.read(args.file))
+            _Progress("writing the report").run(lambda: write_report(frame, args.output, **options))
     for w in caught:  # one line per problem, as every message of the command line
         print(f"logitscope: warning: {' '.join(str(w.message).split())}", file=sys.stderr)
     print(f"wrote {Path(args.output)}")

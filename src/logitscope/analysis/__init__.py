@@ -70,7 +70,7 @@ from .selective import (
     threshold_for_cost,
 )
 from .softmax import binary_to_two_column, energy, log_softmax, logsumexp, softmax
-from .split import Split, random_split, split_by_values
+from .split import Split, hash_split, held_out_by_hash, random_split, split_by_values
 from .temperature import (
     TemperatureFit,
     TemperatureSweep,
@@ -129,6 +129,8 @@ __all__ = [
     "find_nonfinite_rows",
     "fit_temperature",
     "flip_table",
+    "hash_split",
+    "held_out_by_hash",
     "holm_adjust",
     "largest_confusions",
     "log_softmax",

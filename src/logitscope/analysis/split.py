@@ -9,7 +9,10 @@ are chosen) and ``held_out`` (where they are judged). Pure numpy.
   label column so every class keeps its share in both parts;
 - :func:`split_by_values`: rows whose metadata value is among ``fit_values``
   form the fit part, the rest the held-out part (for example fit on one
-  desk's mail, judge on the other desks').
+  desk's mail, judge on the other desks');
+- :func:`hash_split`: each row held out or not by a seeded hash of its
+  position (:func:`held_out_by_hash`), so any range of rows can be split on
+  its own: a batch read in chunks is split chunk by chunk exactly as in memory.
 """
 
 from __future__ import annotations
@@ -23,7 +26,7 @@ from numpy.typing import ArrayLike
 from ..errors import ParameterError, ShapeError
 from ..parameters import check as check_parameter
 
-__all__ = ["Split", "random_split", "split_by_values"]
+__all__ = ["Split", "hash_split", "held_out_by_hash", "random_split", "split_by_values"]
 
 
 class Split(NamedTuple):
@@ -146,3 +149,52 @@ def split_by_values(column: ArrayLike, fit_values: ArrayLike | Any) -> Split:
     return Split(
         np.flatnonzero(mask).astype(np.int64), np.flatnonzero(~mask).astype(np.int64), f"fit on rows with {shown}"
     )
+
+
+_GOLDEN = np.uint64(0x9E3779B97F4A7C15)
+
+
+def held_out_by_hash(start: int, stop: int, held_out_fraction: float = 0.5, seed: int = 0) -> np.ndarray:
+    """For rows ``start .. stop - 1``: whether each is held out, by a seeded hash of its position.
+
+    The hash is SplitMix64 (Steele, Lea and Flood 2014) of ``row + (seed + 1) * 0x9E3779B97F4A7C15``;
+    a row is held out when the hash, as a fraction of ``2**64``, is below ``held_out_fraction``. It
+    depends on the row's position alone, not on the rows around it.
+
+    Examples
+    --------
+    >>> held_out_by_hash(0, 8).astype(int).tolist()
+    [0, 0, 0, 1, 1, 1, 0, 1]
+    >>> bool(np.all(held_out_by_hash(4, 8) == held_out_by_hash(0, 8)[4:]))
+    True
+    """
+    frac = float(check_parameter(held_out_fraction, "held_out_fraction"))
+    x = np.arange(int(start), int(stop), dtype=np.uint64)
+    with np.errstate(over="ignore"):  # arithmetic modulo 2**64 is the point
+        x += np.uint64((int(seed) + 1) % (1 << 64)) * _GOLDEN
+        x ^= x >> np.uint64(30)
+        x *= np.uint64(0xBF58476D1CE4E5B9)
+        x ^= x >> np.uint64(27)
+        x *= np.uint64(0x94D049BB133111EB)
+        x ^= x >> np.uint64(31)
+    return x < np.uint64(min(frac * 2.0**64, 2.0**64 - 2048))
+
+
+def hash_split(n_samples: int, held_out_fraction: float = 0.5, seed: int = 0) -> Split:
+    """A seeded split in which each row is held out by a hash of its position (:func:`held_out_by_hash`).
+
+    About ``held_out_fraction`` of the rows are held out, each row independently of the others, so
+    the split of rows ``a .. b`` is the same whether they are split alone or within the whole batch.
+    This is the report's own split, in memory and chunk by chunk on a batch too large for memory.
+
+    Examples
+    --------
+    >>> fit, held_out, how = hash_split(10)
+    >>> held_out.tolist(), how
+    ([3, 4, 5, 7], 'split by row hash, seed 0, 50% held out')
+    """
+    n = _check_n(n_samples)
+    frac = float(check_parameter(held_out_fraction, "held_out_fraction"))
+    held = np.concatenate([held_out_by_hash(a, min(n, a + (1 << 20)), frac, seed) for a in range(0, n, 1 << 20)])
+    how = f"split by row hash, seed {seed}, {frac:.0%} held out"
+    return Split(np.flatnonzero(~held).astype(np.int64), np.flatnonzero(held).astype(np.int64), how)

@@ -785,14 +785,21 @@ class _DoubtfulCandidates(_Collector):
             score = nm
             suggested[keep] = assigned[keep]
         order = keep[np.argsort(score[keep], kind="stable")][: self.top]
-        return score[order], order + offset, suggested[order]
+        return score[order], order + offset, suggested[order], int(keep.size)
 
     def combine(self, parts: Sequence[Any]) -> Any:
         score = np.concatenate([p[0] for p in parts])
         index = np.concatenate([p[1] for p in parts])
         suggested = np.concatenate([p[2] for p in parts])
         order = np.lexsort((index, score))[: self.top]  # by score, ties by row: as a stable sort of all rows
-        return score[order], index[order], suggested[order]
+        return score[order], index[order], suggested[order], sum(p[3] for p in parts)
+
+
+def cl_thresholds(totals: dict[str, Any], confusion: dict[str, Any]) -> np.ndarray:
+    """Confident learning's per-class thresholds (mean given-label probability per class) from the sums of
+    a ``_CLThresholds`` and a ``_Confusion`` collector of one pass."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return np.asarray(totals["total"] / confusion["labels"])
 
 
 def rank_doubtful_labels(
@@ -800,11 +807,16 @@ def rank_doubtful_labels(
     method: Literal["confident_learning", "given_probability", "label_margin"] = "confident_learning",
     temperature: float | None = None,
     top: int = 1000,
-) -> an.DoubtfulLabelRanking:
+    count: bool = False,
+    class_thresholds: np.ndarray | None = None,
+) -> Any:
     """The first ``top`` rows of :func:`logitscope.analysis.rank_doubtful_labels`: each chunk's best, merged.
 
     Confident learning (Northcutt et al. 2021) first needs its per-class
-    thresholds over all rows: one pass more.
+    thresholds over all rows: one pass more. With ``count``, returns
+    ``(ranking, n)``, ``n`` the number of rows the whole ranking holds (the rows
+    confident learning flags; every row for the other methods). ``class_thresholds``: confident
+    learning's per-class thresholds when a pass of the caller's has summed them (:func:`cl_thresholds`).
     """
     _require_labels(cf, "rank_doubtful_labels")
     if method not in ("confident_learning", "given_probability", "label_margin"):
@@ -813,14 +825,14 @@ def rank_doubtful_labels(
         )
     t = _t(cf, temperature)
     beta = 1.0 / t
-    thresholds = None
-    if method == "confident_learning":
+    thresholds = class_thresholds
+    if method == "confident_learning" and thresholds is None:
         part, conf = _run(cf, t, [_CLThresholds(cf.n_classes, beta), _Confusion(cf.n_classes)])
-        with np.errstate(invalid="ignore", divide="ignore"):
-            thresholds = part["total"] / conf["labels"]
+        thresholds = cl_thresholds(part, conf)
     (found,) = _run(cf, t, [_DoubtfulCandidates(method, int(top), beta, thresholds)])
-    score, index, suggested = found
-    return an.DoubtfulLabelRanking(method=method, index=index, score=score, suggested=suggested)
+    score, index, suggested, n_ranked = found
+    ranking = an.DoubtfulLabelRanking(method=method, index=index, score=score, suggested=suggested)
+    return (ranking, int(n_ranked)) if count else ranking
 
 
 # --------------------------------------------------------------------------- the summary

@@ -1,4 +1,4 @@
-"""The command line's chunked path: ``logitscope summary STORE.zarr [--scheduler ADDRESS]``."""
+"""The command line's chunked path: ``logitscope summary | report STORE.zarr [--scheduler ADDRESS]``."""
 
 from __future__ import annotations
 
@@ -9,7 +9,7 @@ from .analysis import summarize_chunked
 from .cluster import connected, scheduler_address
 from .frame import open_chunked
 
-__all__ = ["chunked_summary"]
+__all__ = ["chunked_report", "chunked_summary"]
 
 
 def chunked_summary(args: argparse.Namespace) -> dict[str, Any]:
@@ -27,3 +27,13 @@ def chunked_summary(args: argparse.Namespace) -> dict[str, Any]:
             target_accuracy=args.target_accuracy,
             interval=args.interval,
         )
+
+
+def chunked_report(args: argparse.Namespace, options: dict[str, Any]) -> None:
+    """Write the report of a store, a Parquet folder or an ``.npy`` file to ``args.output``, in process or
+    on the cluster of ``args.scheduler`` / ``LOGITSCOPE_SCHEDULER`` (left running)."""
+    from ..report import write_chunked_report
+
+    cf = open_chunked(args.file)
+    with connected(scheduler_address(getattr(args, "scheduler", None))):
+        write_chunked_report(cf, args.output, **options)

@@ -354,7 +354,7 @@ def is_chunked_source(path: str | os.PathLike[str]) -> bool:
     p = Path(path)
     if p.suffix.lower() in (".zarr", ".npy"):
         return True
-    return p.is_dir()
+    return p.is_dir() and p.suffix.lower() != ".npz"  # a folder named .npz is a mistake the in-memory reader names
 
 
 def open_chunked(path: str | os.PathLike[str], **options: Any) -> ChunkedFrame:

@@ -12,12 +12,13 @@ for the same choices, so both show the same numbers.
 from __future__ import annotations
 
 import math
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import TYPE_CHECKING, Any
 
 from .. import analysis as an
-from ..analysis.split import Split, random_split
+from ..analysis.split import Split, hash_split
 from ..errors import LabelError, ParameterError
 from .calibration import CalibrationSummary, PredictionSummary, calibration_summary, prediction_summary
 from .choices import Binning, Choices, ThresholdRule
@@ -29,6 +30,7 @@ from .sweep import SweepFinding, fitted_temperature, sweep_finding
 from .threshold import ThresholdDecision, threshold_decision
 
 if TYPE_CHECKING:
+    from ..chunked.frame import ChunkedFrame
     from ..frame import LogitFrame
 
 __all__ = ["Findings", "TemperatureContext", "collect", "resolve_choices", "rule_from_options", "temperature_context"]
@@ -94,8 +96,21 @@ def rule_from_options(
     return None
 
 
+def _fit_all(frame: LogitFrame | ChunkedFrame) -> an.TemperatureFit:
+    """The temperature fit on all labelled rows (a chunked batch fits over its chunks)."""
+    from ..frame import LogitFrame
+
+    if isinstance(frame, LogitFrame):
+        return fitted_temperature(frame)
+    from ..chunked.analysis import fit_temperature as chunked_fit
+
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", RuntimeWarning)  # a bound hit is carried in at_bound, as in memory
+        return chunked_fit(frame)
+
+
 def resolve_choices(
-    frame: LogitFrame,
+    frame: LogitFrame | ChunkedFrame,
     temperature: float | None = None,
     fit_temperature: bool = False,
     target_accuracy: float | None = None,
@@ -109,8 +124,14 @@ def resolve_choices(
     strategy: str = "uniform",
     split: Split | None = None,
     temperature_how: str | None = None,
+    *,
+    fitted: an.TemperatureFit | None = None,
 ) -> tuple[Choices, TemperatureContext]:
     """Check the options and settle the temperatures and the threshold rule.
+
+    ``frame`` is a :class:`~logitscope.LogitFrame` or a :class:`~logitscope.chunked.ChunkedFrame`.
+    ``fitted`` is the temperature fit on all labelled rows when the caller has it already; else it is
+    computed here for a labelled frame (over the chunks for a chunked batch).
 
     Raises
     ------
@@ -137,7 +158,8 @@ def resolve_choices(
         if asked:
             raise LabelError(f"{' and '.join(asked)} needs labels; this frame has none (use with_labels)")
     base = frame.temperature
-    fitted = fitted_temperature(frame) if frame.has_labels else None
+    if fitted is None and frame.has_labels:
+        fitted = _fit_all(frame)
     if temperature is not None:
         t = an.check_temperature(temperature)
         how = "set by hand"
@@ -155,7 +177,7 @@ def resolve_choices(
 
 
 def temperature_context(
-    frame: LogitFrame, temperature: float, how: str, fitted: an.TemperatureFit | None = None
+    frame: LogitFrame | ChunkedFrame, temperature: float, how: str, fitted: an.TemperatureFit | None = None
 ) -> TemperatureContext:
     """The temperatures shown beside a decision temperature: the frame's own, the fitted one, the compared one.
 
@@ -172,7 +194,7 @@ def temperature_context(
     t = an.check_temperature(temperature)
     base = frame.temperature
     if fitted is None and frame.has_labels:
-        fitted = fitted_temperature(frame)
+        fitted = _fit_all(frame)
     if fitted is None:
         compare, compare_how = None, ""
     elif not math.isclose(t, base, rel_tol=1e-12):
@@ -217,8 +239,9 @@ def collect(
     """Compute the findings of ``frame`` for ``choices``.
 
     With ``own_split`` and no split in the choices, the held-out check uses a
-    seeded (seed 0), stratified half-and-half random split when the frame has
-    at least ``MIN_ROWS_FOR_SPLIT`` rows.
+    seeded (seed 0) half-and-half split by row hash (:func:`logitscope.analysis.hash_split`:
+    the one a chunked batch gets, so both give the same report) when the frame
+    has at least ``MIN_ROWS_FOR_SPLIT`` labelled rows and both parts hold some.
 
     Examples
     --------
@@ -252,9 +275,10 @@ def collect(
     chosen_on = None if choices.split is None else choices.split.fit
     threshold = None if choices.rule is None else threshold_decision(frame, choices.rule, t, chosen_on)
     split = choices.split
-    if split is None and own_split and frame.n_samples >= MIN_ROWS_FOR_SPLIT:
-        assert frame.labels is not None
-        split = random_split(frame.n_samples, 0.5, seed=0, stratify=frame.labels)
+    if split is None and own_split and frame.n_labelled >= MIN_ROWS_FOR_SPLIT:
+        own = hash_split(frame.n_samples, 0.5, seed=0)  # as a chunked batch is split, chunk by chunk
+        if frame.labelled[own.fit].any() and frame.labelled[own.held_out].any():  # each part judged on labels
+            split = own
     held = None if split is None else held_out_check(frame, split, t, choices.rule, b)
     return Findings(
         choices=choices,

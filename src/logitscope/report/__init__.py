@@ -21,10 +21,11 @@ from ..findings import Choices, Findings, collect, resolve_choices, temperature_
 from .html import build_report
 
 if TYPE_CHECKING:
+    from ..chunked.frame import ChunkedFrame
     from ..frame import LogitFrame
     from ..relabel_store import RelabelStore
 
-__all__ = ["build_report", "write_report"]
+__all__ = ["build_report", "write_chunked_report", "write_report"]
 
 #: The options that settle the choices, with their defaults (they cannot be combined with ``findings``/``choices``).
 _OPTION_DEFAULTS: dict[str, Any] = {
@@ -124,7 +125,8 @@ def write_report(
     strategy : {"uniform", "quantile"}
         Equal-width or equal-mass bins.
     split : Split, optional
-        Fit/held-out rows for the held-out check (default: a stratified random half split, seed 0).
+        Fit/held-out rows for the held-out check (default: a half split by row hash, seed 0:
+        :func:`logitscope.analysis.hash_split`).
     temperature_how : str, optional
         How the temperature was chosen, in words for the page (escaped); default from the options.
     findings : Findings, optional
@@ -206,3 +208,79 @@ def write_report(
     page = build_report(frame, found, title=title, marks=marks, marks_source=source)
     with atomic_write(path, "w") as fh:
         fh.write(page)
+
+
+class _ChunkedPage:
+    """What the page reads of a chunked batch: names, counts and the ids of the rows it lists (read by row)."""
+
+    payload = None
+    read_in_chunks = True
+
+    def __init__(self, cf: ChunkedFrame, rows: Any) -> None:
+        import numpy as np
+
+        from ..chunked.analysis import compute
+
+        self.classes = cf.classes
+        self.source = cf.source
+        self.n_samples = cf.n_samples
+        self.n_classes = cf.n_classes
+        self.n_labelled = cf.n_samples if cf.has_labels else 0
+        r = np.unique(np.asarray(rows, dtype=np.int64))
+        (found,) = compute(cf.ids[r]) if r.size else (np.zeros(0),)
+        self.ids = {int(i): v.item() if hasattr(v, "item") else v for i, v in zip(r.tolist(), found, strict=True)}
+
+
+def write_chunked_report(
+    cf: ChunkedFrame,
+    path: str | os.PathLike[str],
+    temperature: float | None = None,
+    fit_temperature: bool = False,
+    target_accuracy: float | None = None,
+    costs: Sequence[float] | None = None,
+    title: str | None = None,
+    *,
+    threshold: float | None = None,
+    use_lower_bound: bool = False,
+    per_class: bool = False,
+    interval: IntervalMethod = "wilson",
+    level: float = 0.95,
+    n_bins: int = 15,
+    temperature_how: str | None = None,
+) -> Findings:
+    """:func:`write_report` for a batch read in chunks (a :class:`~logitscope.chunked.ChunkedFrame`).
+
+    Returns the findings rendered.
+
+    The findings come from passes over the chunks (:func:`logitscope.findings.collect_chunked`), on dask's
+    threaded scheduler or on the dask.distributed cluster of the active client; the page is the one
+    :func:`write_report` writes for the same rows in memory. It states where a chunked number has a
+    resolution (the drawn risk-coverage curve). Equal-width bins only; no relabel list, no split of your own.
+
+    Examples
+    --------
+    >>> import tempfile, pathlib
+    >>> from logitscope import load_demo
+    >>> from logitscope.chunked import open_chunked, write_zarr
+    >>> folder = pathlib.Path(tempfile.mkdtemp())
+    >>> write_zarr(load_demo("helpdesk"), folder / "tickets.zarr", chunk_rows=400, drop_extras=True)
+    >>> f = write_chunked_report(open_chunked(folder / "tickets.zarr"), folder / "r.html", target_accuracy=0.95)
+    >>> f.threshold.choice.n_total, "histogram of the confidence" in (folder / "r.html").read_text()
+    (1200, True)
+    """
+    from ..chunked.frame import ChunkedFrame
+    from ..findings.chunked import collect_chunked, resolve_chunked
+
+    if not isinstance(cf, ChunkedFrame):
+        raise InputTypeError(f"write_chunked_report needs a ChunkedFrame, got {type(cf).__name__}")
+    options = {
+        "temperature": temperature, "fit_temperature": fit_temperature, "target_accuracy": target_accuracy,
+        "costs": costs, "threshold": threshold, "use_lower_bound": use_lower_bound, "per_class": per_class,
+        "interval": interval, "level": level, "n_bins": n_bins, "temperature_how": temperature_how,
+    }  # fmt: skip
+    found = collect_chunked(cf, *resolve_chunked(cf, **options))
+    rows: Any = [] if found.suspects is None else found.suspects.rows
+    page = build_report(_ChunkedPage(cf, rows), found, title=title)
+    with atomic_write(path, "w") as fh:
+        fh.write(page)
+    return found

@@ -27,7 +27,7 @@ import hashlib
 import math
 from collections.abc import Iterable, Mapping
 from importlib import resources
-from typing import TYPE_CHECKING, Any
+from typing import Any, Protocol
 
 import numpy as np
 from jinja2 import Environment, FileSystemBytecodeCache, PackageLoader, StrictUndefined
@@ -41,10 +41,28 @@ from . import figures as fig
 from .svg import IdSource
 from .text import fmt_value, hover, raw_value, short, temp_label
 
-if TYPE_CHECKING:
-    from ..frame import LogitFrame
+__all__ = ["CSP", "CSS", "ReportFrame", "build_report", "mark_rows"]
 
-__all__ = ["CSP", "CSS", "build_report", "mark_rows"]
+
+class ReportFrame(Protocol):
+    """What the page reads of the data besides the findings: a :class:`~logitscope.LogitFrame`, or for a batch
+    read in chunks the few ids and names the page shows (:func:`logitscope.report.write_chunked_report`)."""
+
+    @property
+    def payload(self) -> Any: ...
+    @property
+    def ids(self) -> Any: ...
+    @property
+    def classes(self) -> tuple[str, ...]: ...
+    @property
+    def source(self) -> str: ...
+    @property
+    def n_samples(self) -> int: ...
+    @property
+    def n_labelled(self) -> int: ...
+    @property
+    def n_classes(self) -> int: ...
+
 
 #: Long side of a sample thumbnail in the report, in pixels.
 THUMBNAIL_SIZE = 48
@@ -91,7 +109,7 @@ _ENV.tests["finite_number"] = _is_finite
 # --------------------------------------------------------------------------- previews
 
 
-def _preview(frame: LogitFrame, row: int | None, cache: ThumbnailCache) -> dict[str, Any]:
+def _preview(frame: ReportFrame, row: int | None, cache: ThumbnailCache) -> dict[str, Any]:
     """What the sample cell shows: a data: PNG for images, an escaped snippet for texts, or nothing."""
     p = frame.payload
     if p is None or row is None:
@@ -123,7 +141,7 @@ def _plain_id(value: Any) -> Any:
     return value.item() if isinstance(value, np.generic) else value
 
 
-def mark_rows(frame: LogitFrame, marks: Iterable[Mapping[str, Any]]) -> list[dict[str, Any]]:
+def mark_rows(frame: ReportFrame, marks: Iterable[Mapping[str, Any]]) -> list[dict[str, Any]]:
     """The relabel marks as table rows; ``row`` is None for a mark whose id is not at its row in ``frame``.
 
     Examples
@@ -203,7 +221,7 @@ def _passes(fit: an.TemperatureFit | None) -> int | None:
     return int(getattr(fit, "passes", fit.iterations))
 
 
-def _labelled_context(frame: LogitFrame, f: Findings, ids: IdSource, cache: ThumbnailCache) -> dict[str, Any]:
+def _labelled_context(frame: ReportFrame, f: Findings, ids: IdSource, cache: ThumbnailCache) -> dict[str, Any]:
     assert f.before is not None and f.sweep is not None and f.suspects is not None and f.histogram is not None
     t = f.temperatures
     reliability = [
@@ -270,7 +288,7 @@ def _labelled_context(frame: LogitFrame, f: Findings, ids: IdSource, cache: Thum
 
 
 def build_report(
-    frame: LogitFrame,
+    frame: ReportFrame,
     findings: Findings,
     title: str | None = None,
     marks: Iterable[Mapping[str, Any]] | None = None,
@@ -353,6 +371,7 @@ def build_report(
         share_bar=fig.share_bar,
         nav=nav,
         many_classes=MANY_CLASSES,
+        read_in_chunks=bool(getattr(frame, "read_in_chunks", False)),
         marks=marks_context,
         **context,
     )
