@@ -93,7 +93,7 @@ def _bad_files(tmp_path: Path) -> list[tuple[list[object], str]]:
     np.savez(tmp_path / "uint.npz", logits=np.eye(2) * 2, labels=np.array([0, 2**64 - 1], dtype=np.uint64))
     np.savez(tmp_path / "nanids.npz", logits=np.eye(2) * 2, ids=np.array([np.nan, np.nan]))
     return [
-        (["summary", tmp_path / "folder.npz"], "is a directory with no .parquet files"),
+        (["summary", tmp_path / "folder.npz"], "is a directory"),
         (["summary", tmp_path / "meta2d.npz"], "meta/desk must be 1-D"),
         (["summary", tmp_path / "meta0d.npz"], "meta/desk must be 1-D"),
         (["summary", tmp_path / "classes0d.npz"], "classes must be one-dimensional"),
