@@ -407,3 +407,23 @@ def test_user_strings_reach_the_front_end_raw_and_js_uses_text_only(tmp_path: Pa
         for sink in ("innerHTML", "outerHTML", "insertAdjacentHTML", "document.write", "DOMParser", "eval("):
             assert sink not in src, f"{name} uses {sink}"
         assert "textContent" in src
+
+
+def test_first_rows_in_order_equal_numpys_stable_sort():
+    from logitscope.widgets.gallery import first_in_order
+
+    rng = np.random.default_rng(5)
+    for keys in (rng.normal(size=5000), rng.integers(0, 7, 5000).astype(float), np.r_[rng.normal(size=50), np.nan]):
+        for m in (1, 12, 48, 700, keys.size, keys.size + 3):
+            # reference: numpy's stable sort of every key (numpy.argsort, kind="stable")
+            np.testing.assert_array_equal(first_in_order(keys, m), np.argsort(keys, kind="stable")[:m])
+
+
+def test_a_large_selection_pages_in_the_order_of_a_full_sort(mailroom):
+    gallery = SampleGallery(mailroom, page_size=12)
+    conf = mailroom.sample_scores().confidence
+    ref = np.argsort(conf, kind="stable")  # numpy.argsort: the display order of "low first"
+    np.testing.assert_array_equal(gallery.page_rows, ref[:12])
+    gallery.page = 40  # far past the first rows ranked
+    np.testing.assert_array_equal(gallery.page_rows, ref[480:492])
+    np.testing.assert_array_equal(gallery.order, ref)

@@ -48,6 +48,29 @@ def top_classes(probs: np.ndarray, k: int) -> np.ndarray:
     return order[:, : min(k, probs.shape[1])]
 
 
+
+def first_in_order(keys: np.ndarray, m: int) -> np.ndarray:
+    """Positions of the ``m`` smallest ``keys`` in the order of a stable sort, without sorting them all.
+
+    ``np.argpartition`` finds the ``m``-th smallest value in linear time; only the keys below it
+    and the first ties at it are sorted, so a gallery page of a 10M-row selection costs a pass,
+    not a sort. Equal to ``np.argsort(keys, kind="stable")[:m]`` (NaN keys: that sort, in full).
+
+    Examples
+    --------
+    >>> keys = np.array([0.5, 0.1, 0.5, 0.3, 0.5, 0.2])
+    >>> first_in_order(keys, 4).tolist(), np.argsort(keys, kind="stable")[:4].tolist()
+    ([1, 5, 3, 0], [1, 5, 3, 0])
+    """
+    n = keys.size
+    if m >= n or np.isnan(keys).any():
+        return np.argsort(keys, kind="stable")[:m]
+    cut = keys[np.argpartition(keys, m - 1)[:m]].max()
+    below = np.flatnonzero(keys < cut)
+    tied = np.flatnonzero(keys == cut)[: m - below.size]
+    picked = np.concatenate([below, tied])  # each part in row order: a stable sort keeps it for ties
+    return picked[np.argsort(keys[picked], kind="stable")]
+
 class SampleGallery(LinkedView, anywidget.AnyWidget):
     """Tiles of the selected samples (all samples when nothing is selected), one page at a time.
 
@@ -116,7 +139,9 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
         self._check_sort(sort_by, cols)
         self._order_key: tuple[Any, ...] | None = None
         self._order_rows: np.ndarray | None = None
-        self._order = np.zeros(0, dtype=np.int64)
+        self._order = np.zeros(0, dtype=np.int64)  # the first rows in display order (``_ranked`` of them)
+        self._base = np.zeros(0, dtype=np.int64)
+        self._keys = np.zeros(0, dtype=np.float64)
         self._page_rows = np.zeros(0, dtype=np.int64)
         self._busy = False
         super().__init__(sort_columns=cols, sort_by=sort_by, descending=bool(descending), focus=st.focus, **kwargs)
@@ -136,6 +161,7 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
     def order(self) -> np.ndarray:
         """Every row in the gallery, in display order (the selection, or all rows)."""
         self._ensure_order()
+        self._rank_first(self._base.size)
         return self._order.copy()
 
     def next_page(self) -> None:
@@ -149,9 +175,10 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
     def refresh(self) -> None:
         """Recompute the visible page from the state."""
         self._ensure_order()
-        n = int(self._order.size)
+        n = int(self._base.size)
         n_pages = max(1, -(-n // self.page_size))
         page = min(max(int(self.page), 0), n_pages - 1)
+        self._rank_first((page + 1) * self.page_size)  # a page needs only the rows up to its own
         rows = self._order[page * self.page_size : (page + 1) * self.page_size]
         self._page_rows = rows
         tiles = self._tiles(rows)
@@ -192,10 +219,16 @@ class SampleGallery(LinkedView, anywidget.AnyWidget):
             return
         base = rows if rows.size else np.arange(self.frame.n_samples, dtype=np.int64)
         v = self._sort_values()[base]
-        idx = np.argsort(-v if self.descending else v, kind="stable")
-        self._order = base[idx]
+        self._base, self._keys = base, (-v if self.descending else v)
+        self._order = base[:0]
         self._order_rows = rows
         self._order_key = key
+
+    def _rank_first(self, m: int) -> None:
+        """Make ``_order`` hold at least the first ``m`` rows in display order (a stable sort by the key)."""
+        if self._order.size >= min(m, self._base.size):
+            return
+        self._order = self._base[first_in_order(self._keys, max(m, 4 * self.page_size))]
 
     def _tiles(self, rows: np.ndarray) -> list[dict[str, Any]]:
         if rows.size == 0:
