@@ -125,3 +125,19 @@ def test_update_redraws_the_calibration_tab(mailroom: LogitFrame, tmp_path: Path
     assert panel.diagram.finding.nll == pytest.approx(log_loss(nxt.labels, p), rel=1e-9)  # sklearn
     dash.tabs.selected_index = 1  # the sweep was out of sight: it redraws when shown
     assert panel.sweep.finding.n == nxt.n_samples
+
+
+def test_the_first_record_waits_for_the_history_and_equals_an_eager_one(mailroom: LogitFrame, tmp_path: Path) -> None:
+    from logitscope.findings import epoch_record
+
+    dash = Dashboard(mailroom, relabel_path=tmp_path / "m.json")
+    eager = epoch_record(mailroom, 0, None, dash.state.binning).to_dict()
+    dash.tabs.selected_index = 2  # the History tab: the first record is made now
+    assert len(dash.history_view.points["accuracy"].y) == 1
+    row = dash.history.iloc[0].to_dict()
+    assert set(row) == set(eager)
+    for key, value in eager.items():
+        assert row[key] == value or (value != value and row[key] != row[key]), key  # NaN equals NaN here
+    # the header's accuracy is the record's, and scikit-learn's (sklearn.metrics.accuracy_score)
+    ref = accuracy_score(mailroom.labels, np.argmax(mailroom.logits, axis=1))
+    assert row["accuracy"] == pytest.approx(ref) and f"accuracy {ref:.1%}" in dash._summary.value

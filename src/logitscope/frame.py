@@ -556,13 +556,17 @@ class LogitFrame:
 
     @property
     def n_labelled(self) -> int:
-        """How many rows have a label."""
-        return 0 if self._labels is None else int(np.count_nonzero(self._labels >= 0))
+        """How many rows have a label (counted once: the labels never change)."""
+        memo = self.__dict__.get("_n_labelled_memo")
+        if memo is None:
+            memo = 0 if self._labels is None else int(np.count_nonzero(self._labels >= 0))
+            self.__dict__["_n_labelled_memo"] = memo
+        return int(memo)
 
     @property
     def fully_labelled(self) -> bool:
         """Whether every row has a label."""
-        return self._labels is not None and bool(np.all(self._labels >= 0))
+        return self._labels is not None and self.n_labelled == self.n_samples
 
     def labelled_rows(self, rows: ArrayLike | None = None) -> np.ndarray | None:
         """Positions of the labelled rows among ``rows`` (default all rows); None when that is every row.
@@ -641,6 +645,8 @@ class LogitFrame:
         new = object.__new__(LogitFrame)
         new.__dict__.update(self.__dict__)
         new._cache = OrderedDict()
+        if "labels" in changes:
+            new.__dict__.pop("_n_labelled_memo", None)  # counted again for the new labels
         for k, v in changes.items():
             setattr(new, f"_{k}", v)
         if "temperature" not in changes and "logits" not in changes and "labels" not in changes:

@@ -34,7 +34,7 @@ from ..alignment import MissingIds
 from ..analysis import check_temperature
 from ..checkpoints import FrameForgetting, compare_frames, forgetting_across
 from ..errors import ClassNameError, InputTypeError, LogitscopeError, ParameterError, ShapeError
-from ..findings import calibration_summary, count_selection, epoch_record
+from ..findings import count_selection, epoch_record
 from ..frame import LogitFrame
 from .base import LinkedView
 from .card import SampleCard
@@ -188,9 +188,10 @@ class Dashboard(LinkedView, widgets.VBox):
         row3 = _row(_panel("Confusion matrix", self.confusion, flex="1.4 1 640px"), side)
         self.explore = widgets.VBox([row1, row2, row3], layout=widgets.Layout(width="100%"))
         self._calibrate_box = widgets.VBox([widgets.Label("building the calibration views…")])
-        self.history_view = EpochHistoryView(
-            [epoch_record(frame, 0, label, st.binning)], on_pick=self.show_update, kept=lambda i: i in self._frames
-        )
+        # the first frame's record (a temperature fit and a sort of the confidences: seconds at 10M rows)
+        # is made when the history is first needed: its tab, an update, ``history``
+        self._first_record: tuple[LogitFrame, str | None, Any] | None = (frame, label, st.binning)
+        self.history_view = EpochHistoryView([], on_pick=self.show_update, kept=lambda i: i in self._frames)
         self.history_tab = widgets.VBox([self.history_view, self.forgetting_list], layout=widgets.Layout(width="100%"))
         # Each tab holds its content only while it is shown: a bqplot figure drawn inside a hidden tab
         # (also after a page reload) has no size and fills the console with negative-size errors.
@@ -344,6 +345,7 @@ class Dashboard(LinkedView, widgets.VBox):
     @property
     def history(self) -> pd.DataFrame:
         """One row per frame shown (the first included): accuracy, NLL, ECE, fitted T, ..."""
+        self._record_first()
         return self.history_view.table()
 
     def update(self, frame: LogitFrame, label: str | None = None, *, temperature: float | None = None) -> None:
@@ -364,6 +366,7 @@ class Dashboard(LinkedView, widgets.VBox):
         temperature : float, optional
             Set the shared temperature to this value.
         """
+        self._record_first()
         self._show(frame, temperature)
         n = len(self.history_view.records)
         self._frames[n] = frame
@@ -379,6 +382,7 @@ class Dashboard(LinkedView, widgets.VBox):
             kept = ", ".join(str(i) for i in self._frames)
             raise ParameterError(f"the frame of update {index} is not kept; kept: {kept}")
         self._show(self._frames[index], None)
+        self._record_first()
         self.history_view.current = int(index)
 
     def _show(self, frame: LogitFrame, temperature: float | None) -> None:
@@ -452,6 +456,7 @@ class Dashboard(LinkedView, widgets.VBox):
             self._calibration.sweep.live = False
         # the forgetting ranking costs a pass over every kept frame: made when its tab is in sight
         if index == _HISTORY_TAB:
+            self._record_first()
             self._refresh_forgetting()
         if self.comparison is not None:
             self.comparison.live = index == self._compare_index
@@ -471,11 +476,21 @@ class Dashboard(LinkedView, widgets.VBox):
         self._selection.value = text
         self._clear.disabled = False
 
+    def _record_first(self) -> None:
+        """Add the first frame's record to the history, once."""
+        if self._first_record is not None:
+            frame, label, binning = self._first_record
+            self._first_record = None
+            self.history_view.add(epoch_record(frame, 0, label, binning))
+
     def _on_temperature(self, change: Any = None) -> None:
         f = self.frame
         text = f"{f.n_samples:,} samples × {f.n_classes:,} classes"
         if f.has_labels:
-            text += f", accuracy {calibration_summary(f, self.state.temperature).accuracy:.1%}"
+            # the share right among the labelled rows (the calibration summary's accuracy, without its sorts)
+            every = count_selection(f, np.arange(f.n_samples), self.state.temperature)
+            assert every.wrong_share is not None
+            text += f", accuracy {1.0 - every.wrong_share:.1%}"
             if not f.fully_labelled:
                 text += f" on the {f.n_labelled:,} labelled rows"
         self._summary.value = text

@@ -48,7 +48,6 @@ def top_classes(probs: np.ndarray, k: int) -> np.ndarray:
     return order[:, : min(k, probs.shape[1])]
 
 
-
 def first_in_order(keys: np.ndarray, m: int) -> np.ndarray:
     """Positions of the ``m`` smallest ``keys`` in the order of a stable sort, without sorting them all.
 
@@ -70,6 +69,7 @@ def first_in_order(keys: np.ndarray, m: int) -> np.ndarray:
     tied = np.flatnonzero(keys == cut)[: m - below.size]
     picked = np.concatenate([below, tied])  # each part in row order: a stable sort keeps it for ties
     return picked[np.argsort(keys[picked], kind="stable")]
+
 
 class SampleGallery(LinkedView, anywidget.AnyWidget):
     """Tiles of the selected samples (all samples when nothing is selected), one page at a time.
