@@ -583,7 +583,7 @@ class LogitFrame:
         if rows is None:
             return None if self.fully_labelled else np.flatnonzero(self._labels >= 0)
         r = np.asarray(rows, dtype=np.int64)
-        return r[self._labels[r] >= 0]
+        return r if self.fully_labelled else r[self._labels[r] >= 0]
 
     def _labels_for_analysis(self) -> np.ndarray:
         """Labels with every unlabelled row given class 0, for analysis calls restricted to labelled rows."""
