@@ -11,7 +11,7 @@ from typing import Literal
 
 from .errors import ParameterError
 
-__all__ = ["ELLIPSIS", "HOVER_LIMIT", "hover", "shorten"]
+__all__ = ["ELLIPSIS", "HOVER_LIMIT", "hover", "shorten", "unique_keys"]
 
 #: Most characters of a full text put in a tooltip (a 1 MB name must not fill the page).
 HOVER_LIMIT = 2000
@@ -105,3 +105,24 @@ def hover(text: object) -> str:
     """
     s = str(text)
     return s if len(s) <= HOVER_LIMIT else s[:HOVER_LIMIT] + f"{ELLIPSIS} ({len(s):,} characters in all)"
+
+
+def unique_keys(names: list[str]) -> list[str]:
+    """The names, made unique for use as plot keys: a repeated name gets zero-width spaces appended.
+
+    It reads the same on screen (an aggregate named like a class, two classes shortened alike).
+
+    Examples
+    --------
+    >>> [len(k) for k in unique_keys(["other", "billing", "other"])]
+    [5, 7, 6]
+    """
+    seen: set[str] = set()
+    out = []
+    for name in names:
+        key = name
+        while key in seen:
+            key += "\u200b"
+        seen.add(key)
+        out.append(key)
+    return out

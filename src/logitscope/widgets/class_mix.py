@@ -29,7 +29,7 @@ from .. import analysis as an
 from ..errors import ParameterError
 from ..frame import LogitFrame
 from ..parameters import check as check_parameter
-from ..text import shorten
+from ..text import shorten, unique_keys
 from .base import LinkedView
 from .state import SharedState
 from .style import REFERENCE, SELECTED, css, figure_layout
@@ -111,7 +111,7 @@ class ClassMixView(LinkedView, widgets.VBox):
         self.selected_class: int | None = None
         k = batch.n_classes
         names = list(batch.classes)
-        self._keys = self._unique(names)
+        self._keys = unique_keys(names)
         self._sx = bq.OrdinalScale()
         self._sy = bq.LinearScale(min=0.0)
         scales = {"x": self._sx, "y": self._sy}
@@ -172,18 +172,6 @@ class ClassMixView(LinkedView, widgets.VBox):
         self._draw()
 
     # ------------------------------------------------------------------ numbers
-
-    @staticmethod
-    def _unique(names: list[str]) -> list[str]:
-        seen: set[str] = set()
-        out = []
-        for n in names:
-            key = n
-            while key in seen:
-                key += "\u200b"
-            seen.add(key)
-            out.append(key)
-        return out
 
     def _run_check(self) -> an.ClassMixCheck:
         """``batch.class_mix_check(reference, ...)`` with the view's options at the shared temperature."""

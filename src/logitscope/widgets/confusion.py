@@ -30,7 +30,7 @@ from ..errors import ClassNameError, ParameterError
 from ..findings import ConfusionSummary, confusion_summary
 from ..frame import LogitFrame
 from ..parameters import check as check_parameter
-from ..text import shorten
+from ..text import shorten, unique_keys
 from .base import LinkedView
 from .state import SharedState
 from .style import INK, MUTED, SELECTED, css, figure_layout
@@ -59,19 +59,6 @@ def short_label(name: str, limit: int = _LABEL_CHARS) -> str:
     'aaaaa…aaaa'
     """
     return shorten(name, limit, where="middle")
-
-
-def _unique_keys(names: list[str]) -> list[str]:
-    """The names, made unique where an aggregate name equals a class name (zero-width spaces appended)."""
-    seen: set[str] = set()
-    out = []
-    for name in names:
-        key = name
-        while key in seen:
-            key += "\u200b"
-        seen.add(key)
-        out.append(key)
-    return out
 
 
 class ConfusionHeatmap(LinkedView, widgets.VBox):
@@ -305,7 +292,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self.position_names = [names[i] for i in self.shown_classes]
         if self.has_other:
             self.position_names.append(f"other ({kk - self.shown_classes.size} classes)")
-        self._keys = _unique_keys(self.position_names)
+        self._keys = unique_keys(self.position_names)
         known = self._labels >= 0  # unlabelled rows (a partly labelled batch) fall in no cell: position -1
         self._true_pos = np.where(known, self.position[np.maximum(self._labels, 0)], -1)
         self._pred_pos = self.position[self._predicted]
