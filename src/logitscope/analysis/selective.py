@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -102,10 +102,27 @@ def risk_coverage_curve(confidence: ArrayLike, correct: ArrayLike) -> RiskCovera
     return _curve(*_check_pair(confidence, correct))
 
 
+def _select_kernels() -> Any:
+    """The compiled curve and bin kernels (:mod:`._numba_select`), or None when numba does not run."""
+    from .scores import _numba
+
+    if _numba() is None:
+        return None
+    from . import _numba_select
+
+    return _numba_select
+
+
 def _curve(conf: np.ndarray, ok: np.ndarray) -> RiskCoverage:
     # a sort instead of an arg-sort (several times faster): the distinct confidences come from the sorted
-    # values, and each error is placed in its run by a binary search
+    # values, and each error is placed in its run by merging the errors' sorted confidences into them
     c = np.sort(conf)[::-1]  # descending
+    kernels = _select_kernels()
+    if kernels is not None:
+        last, n_errors, runs = kernels.curve_runs(c, np.sort(conf[~ok])[::-1])
+        if runs < c.size:  # let go of the unused tails
+            last, n_errors = last[:runs].copy(), n_errors[:runs].copy()
+        return RiskCoverage(threshold=c[last], n_accepted=last + 1, n_errors=n_errors, n_total=conf.size)
     last = np.flatnonzero(np.r_[c[1:] != c[:-1], True])  # last index of each run of equal confidence
     thresholds = c[last]
     # each error's run: its confidence is one of the thresholds; the errors' confidences are sorted first,
