@@ -261,7 +261,10 @@ class LogitFrame:
     (2, 2, 0.5)
     """
 
+    #: Most temperatures whose per-sample scores are cached, and the bytes they may take together
+    #: (at least one temperature is always kept): a quarter of the logit matrix, or 64 MiB for a small one.
     _CACHE_SIZE = 4
+    _CACHE_MIN_BYTES = 64 << 20
 
     def __init__(
         self,
@@ -748,15 +751,23 @@ class LogitFrame:
         if hit is not None:
             self._cache.move_to_end(t)
             return hit
+        keep = self._cache_slots()
+        while self._cache and len(self._cache) >= keep:  # make room first: old and new scores never coexist
+            self._cache.popitem(last=False)
         y = self._labels
         with assume_valid():
             s = an.sample_scores(self._logits, None if y is None else self._labels_for_analysis(), temperature=t)
         if y is not None and not self.fully_labelled:
             s = _blank_unlabelled(s, y < 0)
         self._cache[t] = s
-        while len(self._cache) > self._CACHE_SIZE:
-            self._cache.popitem(last=False)
         return s
+
+    def _cache_slots(self) -> int:
+        """How many temperatures' scores the cache keeps: ``_CACHE_SIZE``, fewer when they would take more
+        than a quarter of the logit matrix (or ``_CACHE_MIN_BYTES``), never none."""
+        per_row = 8 * 10 + 1  # the scores of one temperature: ten 8-byte columns and a boolean one
+        budget = max(self._logits.nbytes // 4, self._CACHE_MIN_BYTES)
+        return int(max(1, min(self._CACHE_SIZE, budget // max(1, per_row * self.n_samples))))
 
     def probabilities(self, temperature: float | None = None) -> np.ndarray:
         """``softmax(z / T)`` as an (N, K) array (float32 for float16/32 logits)."""

@@ -253,10 +253,8 @@ def collect(
     (True, 'accuracy')
     """
     t = choices.temperature
-    preds = prediction_summary(frame, t)
-    histogram = confidence_histogram(frame, t)
     if not frame.has_labels:
-        return Findings(choices, temperatures, preds, histogram=histogram)
+        return Findings(choices, temperatures, prediction_summary(frame, t), histogram=confidence_histogram(frame, t))
     b = choices.binning
     made: dict[float, CalibrationSummary] = {}
 
@@ -265,21 +263,28 @@ def collect(
             made[temperature] = calibration_summary(frame, temperature, None, b)
         return made[temperature]
 
+    # The findings are computed temperature by temperature, the decision temperature's last, so that a
+    # frame that caches the scores of one temperature only (a large one) computes each one's scores once
+    # or nearly (the held-out check ends on the decision temperature too).
+    if temperatures.compare is not None and temperatures.compare != t:
+        summary(temperatures.compare)
     before = summary(temperatures.base)
-    after = None if temperatures.compare is None else summary(temperatures.compare)
-    decision = summary(t)
-    marks = [temperatures.base, t]
-    sweep = sweep_finding(frame, None, b, marks=marks, fitted=temperatures.fitted)
-    # with a split of the user's, the threshold is chosen on its fit part (as the panel's picker does); the
-    # held-out check then judges it on the other part. The report's own split only checks.
-    chosen_on = None if choices.split is None else choices.split.fit
-    threshold = None if choices.rule is None else threshold_decision(frame, choices.rule, t, chosen_on)
     split = choices.split
     if split is None and own_split and frame.n_labelled >= MIN_ROWS_FOR_SPLIT:
         own = hash_split(frame.n_samples, 0.5, seed=0)  # as a chunked batch is split, chunk by chunk
         if frame.labelled[own.fit].any() and frame.labelled[own.held_out].any():  # each part judged on labels
             split = own
     held = None if split is None else held_out_check(frame, split, t, choices.rule, b)
+    preds = prediction_summary(frame, t)
+    histogram = confidence_histogram(frame, t)
+    decision = summary(t)
+    after = None if temperatures.compare is None else summary(temperatures.compare)
+    marks = [temperatures.base, t]
+    sweep = sweep_finding(frame, None, b, marks=marks, fitted=temperatures.fitted)
+    # with a split of the user's, the threshold is chosen on its fit part (as the panel's picker does); the
+    # held-out check then judges it on the other part. The report's own split only checks.
+    chosen_on = None if choices.split is None else choices.split.fit
+    threshold = None if choices.rule is None else threshold_decision(frame, choices.rule, t, chosen_on)
     return Findings(
         choices=choices,
         temperatures=temperatures,

@@ -94,6 +94,7 @@ def held_out_check(
     # a partly labelled batch: each part is judged on its labelled rows
     fit_rows = fit_rows[frame.labelled[fit_rows]]
     held_rows = held_rows[frame.labelled[held_rows]]
+    fit_rows.flags.writeable = held_rows.flags.writeable = False  # read-only: the findings below share them
     if fit_rows.size == 0 or held_rows.size == 0:
         raise LabelError("both parts of a split need labelled rows; one part has none")
     t_dec = frame.temperature if temperature is None else an.check_temperature(temperature)
@@ -105,8 +106,13 @@ def held_out_check(
     ]
     if not any(math.isclose(t_dec, t, rel_tol=1e-9) for _, t, _ in columns):
         columns.append(("decision", t_dec, "decision temperature"))
-    fit = {key: calibration_summary(frame, t, fit_rows, b) for key, t, _ in columns}
-    held = {key: calibration_summary(frame, t, held_rows, b) for key, t, _ in columns}
+    # both parts at one temperature before the next, the decision temperature last (the threshold below
+    # uses it): a large frame caches the scores of one temperature only
+    made: dict[str, tuple[CalibrationSummary, CalibrationSummary]] = {}
+    for key, t, _ in sorted(columns, key=lambda c: math.isclose(c[1], t_dec, rel_tol=1e-9)):
+        made[key] = calibration_summary(frame, t, fit_rows, b), calibration_summary(frame, t, held_rows, b)
+    fit = {key: made[key][0] for key, _, _ in columns}
+    held = {key: made[key][1] for key, _, _ in columns}
     decision = judged = None
     if rule is not None:
         decision = threshold_decision(frame, rule, t_dec, fit_rows)
