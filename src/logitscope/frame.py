@@ -5,7 +5,8 @@ from __future__ import annotations
 import os
 import warnings
 from collections import OrderedDict
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -314,6 +315,7 @@ class LogitFrame:
         self._temperature = check_temperature(temperature)
         self._source = source
         self._cache: OrderedDict[float, an.SampleScores] = OrderedDict()
+        self._curves: dict[float, tuple[np.ndarray | None, an.RiskCoverage]] | None = None
 
     # ------------------------------------------------------------------ validation
 
@@ -644,6 +646,7 @@ class LogitFrame:
         new = object.__new__(LogitFrame)
         new.__dict__.update(self.__dict__)
         new._cache = OrderedDict()
+        new._curves = None
         for k, v in changes.items():
             setattr(new, f"_{k}", v)
         if "temperature" not in changes and "logits" not in changes and "labels" not in changes:
@@ -761,6 +764,33 @@ class LogitFrame:
             s = _blank_unlabelled(s, y < 0)
         self._cache[t] = s
         return s
+
+    @contextmanager
+    def _sharing_curves(self) -> Iterator[None]:
+        """Within this block, :meth:`_risk_coverage` keeps its last curve (findings of the same rows share it)."""
+        self._curves = {}
+        try:
+            yield
+        finally:
+            self._curves = None
+
+    def _risk_coverage(self, temperature: float, rows: np.ndarray | None, conf: Any, ok: Any) -> an.RiskCoverage:
+        """The risk-coverage curve of ``conf`` and ``ok``, the scores of ``rows`` (None: all) at ``temperature``.
+
+        Inside :meth:`_sharing_curves` the last curve is kept and given again for the same temperature and
+        the same rows (the same array, read-only, or None), so the calibration summary and the threshold of
+        those rows sort their confidences once.
+        """
+        memo = self._curves
+        if memo is None or (rows is not None and rows.flags.writeable):
+            return an.risk_coverage_curve(conf, ok)
+        hit = memo.get(temperature)
+        if hit is not None and hit[0] is rows:
+            return hit[1]
+        memo.clear()  # one curve at a time: it is as large as the rows
+        curve = an.risk_coverage_curve(conf, ok)
+        memo[temperature] = (rows, curve)
+        return curve
 
     def _cache_slots(self) -> int:
         """How many temperatures' scores the cache keeps: ``_CACHE_SIZE``, fewer when they would take more

@@ -20,14 +20,18 @@ def curve_runs(c, errors):  # pragma: no cover - compiled
     """Runs of equal confidence in ``c`` (sorted descending) and the errors accepted with each.
 
     ``errors`` are the confidences of the wrong samples, sorted descending (each is one of ``c``).
-    Returns ``(last, n_errors, n_runs)``: for run ``r < n_runs``, ``last[r]`` is the index in ``c`` of its
-    last sample and ``n_errors[r]`` the number of errors whose confidence is at least the run's (a merge
-    of the two sorted arrays: one pass over each).
+    Returns ``(threshold, n_accepted, n_errors)``, one entry per run: its confidence, the number of
+    samples at least as confident and the number of errors among them (a merge of the two sorted
+    arrays). A first pass counts the runs, so the arrays are made at their size.
     """
     n = c.size
     m = errors.size
-    last = np.empty(n, dtype=np.int64)
-    n_errors = np.empty(n, dtype=np.int64)
+    runs = 0
+    for i in range(n):
+        runs += i + 1 == n or c[i + 1] != c[i]
+    threshold = np.empty(runs)
+    n_accepted = np.empty(runs, dtype=np.int64)
+    n_errors = np.empty(runs, dtype=np.int64)
     r = 0
     j = 0
     for i in range(n):
@@ -36,10 +40,11 @@ def curve_runs(c, errors):  # pragma: no cover - compiled
         t = c[i]
         while j < m and errors[j] >= t:
             j += 1
-        last[r] = i
+        threshold[r] = t
+        n_accepted[r] = i + 1
         n_errors[r] = j
         r += 1
-    return last, n_errors, r
+    return threshold, n_accepted, n_errors
 
 
 @numba.njit(cache=True, nogil=True)

@@ -119,10 +119,8 @@ def _curve(conf: np.ndarray, ok: np.ndarray) -> RiskCoverage:
     c = np.sort(conf)[::-1]  # descending
     kernels = _select_kernels()
     if kernels is not None:
-        last, n_errors, runs = kernels.curve_runs(c, np.sort(conf[~ok])[::-1])
-        if runs < c.size:  # let go of the unused tails
-            last, n_errors = last[:runs].copy(), n_errors[:runs].copy()
-        return RiskCoverage(threshold=c[last], n_accepted=last + 1, n_errors=n_errors, n_total=conf.size)
+        thresholds, n_accepted, n_errors = kernels.curve_runs(c, np.sort(conf[~ok])[::-1])
+        return RiskCoverage(threshold=thresholds, n_accepted=n_accepted, n_errors=n_errors, n_total=conf.size)
     last = np.flatnonzero(np.r_[c[1:] != c[:-1], True])  # last index of each run of equal confidence
     thresholds = c[last]
     # each error's run: its confidence is one of the thresholds; the errors' confidences are sorted first,

@@ -234,7 +234,7 @@ def calibration_summary(
         brier=float(np.mean(_take(s.brier, r))),
         ece=bins.ece,
         mce=bins.mce,
-        aurc=an.aurc(conf, ok),
+        aurc=an.selective.aurc_of_curve(frame._risk_coverage(t, r, conf, ok)),
         mean_confidence=float(np.mean(conf)),
         mean_entropy=float(np.mean(_take(s.entropy, r))),
         bins=bins,

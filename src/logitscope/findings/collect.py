@@ -252,9 +252,23 @@ def collect(
     >>> f.before.accuracy == f.decision.accuracy, f.threshold.rule.kind
     (True, 'accuracy')
     """
-    t = choices.temperature
     if not frame.has_labels:
+        t = choices.temperature
         return Findings(choices, temperatures, prediction_summary(frame, t), histogram=confidence_histogram(frame, t))
+    with frame._sharing_curves():  # a summary and a threshold of the same rows sort their confidences once
+        return _labelled_findings(frame, choices, temperatures, own_split, n_suspects, n_pairs)
+
+
+def _labelled_findings(
+    frame: LogitFrame,
+    choices: Choices,
+    temperatures: TemperatureContext,
+    own_split: bool,
+    n_suspects: int,
+    n_pairs: int,
+) -> Findings:
+    """:func:`collect` of a frame with labels."""
+    t = choices.temperature
     b = choices.binning
     made: dict[float, CalibrationSummary] = {}
 

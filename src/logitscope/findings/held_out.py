@@ -106,11 +106,13 @@ def held_out_check(
     ]
     if not any(math.isclose(t_dec, t, rel_tol=1e-9) for _, t, _ in columns):
         columns.append(("decision", t_dec, "decision temperature"))
-    # both parts at one temperature before the next, the decision temperature last (the threshold below
-    # uses it): a large frame caches the scores of one temperature only
+    # both parts at one temperature before the next, the decision temperature last and its fit part last of
+    # all (the threshold below uses them): a large frame caches the scores of one temperature only, and the
+    # fit part's risk-coverage curve at the decision temperature is shared with the threshold
     made: dict[str, tuple[CalibrationSummary, CalibrationSummary]] = {}
     for key, t, _ in sorted(columns, key=lambda c: math.isclose(c[1], t_dec, rel_tol=1e-9)):
-        made[key] = calibration_summary(frame, t, fit_rows, b), calibration_summary(frame, t, held_rows, b)
+        on_held = calibration_summary(frame, t, held_rows, b)
+        made[key] = calibration_summary(frame, t, fit_rows, b), on_held
     fit = {key: made[key][0] for key, _, _ in columns}
     held = {key: made[key][1] for key, _, _ in columns}
     decision = judged = None

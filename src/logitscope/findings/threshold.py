@@ -163,7 +163,7 @@ def threshold_decision(
     s = frame.sample_scores(t)
     assert s.correct is not None
     conf, ok, pred = _take(s.confidence, r), _take(s.correct, r), _take(s.predicted, r)
-    curve = an.risk_coverage_curve(conf, ok)  # sorted once: the rule, the curve and the AURC read it
+    curve = frame._risk_coverage(t, r, conf, ok)  # sorted once: the rule, the curve and the AURC read it
     choice = rule.choose(conf, ok, curve)
     by_class: list[an.ThresholdChoice | None] = []
     # a stable sort of small integers is a radix sort: the same order, several times faster
