@@ -56,6 +56,20 @@ def test_curve_kernel_equals_the_numpy_path(n: int, monkeypatch: pytest.MonkeyPa
         assert a.dtype == b.dtype and np.array_equal(a, b)
 
 
+def test_aurc_kernel_equals_the_numpy_expression_to_the_bit(monkeypatch: pytest.MonkeyPatch) -> None:
+    conf, ok = _coarse_confidences(30000, seed=5)
+    rc = selective.risk_coverage_curve(conf, ok)
+    fast = selective.aurc_of_curve(rc)
+    monkeypatch.setattr(selective, "_select_kernels", lambda: None)
+    assert fast == selective.aurc_of_curve(rc)
+    monkeypatch.undo()
+    # the definition (Geifman, Uziel and El-Yaniv 2019) with ties accepted together: the mean over samples
+    # of the risk at each sample's own confidence
+    c, o = conf[:2000], ok[:2000]
+    risk = [((c >= x) & ~o).sum() / (c >= x).sum() for x in c]
+    assert selective.aurc_of_curve(selective.risk_coverage_curve(c, o)) == pytest.approx(np.mean(risk), rel=1e-12)
+
+
 def test_uniform_bins_equal_the_numpy_path_to_the_bit(monkeypatch: pytest.MonkeyPatch) -> None:
     conf, ok = _coarse_confidences(20000)
     conf[:50] = 2 / 15  # on an inner edge: the lower bin, as (b / B, (b + 1) / B] (Guo et al. 2017)

@@ -67,3 +67,17 @@ def uniform_bins(conf, ok, edges, bin_of):  # pragma: no cover - compiled
         right[b] += 1.0 if ok[i] else 0.0
         total[b] += c
     return count, right, total
+
+
+@numba.njit(cache=True, nogil=True)
+def aurc_terms(n_accepted, n_errors, n_total):  # pragma: no cover - compiled
+    """Each run's term of the AURC, ``(n_accepted[r] - n_accepted[r - 1]) / n_total * n_errors[r] / n_accepted[r]``,
+    in one pass (the operations of the numpy expression, in its order)."""
+    out = np.empty(n_accepted.size)
+    total = np.float64(n_total)
+    prev = 0
+    for r in range(n_accepted.size):
+        a = n_accepted[r]
+        out[r] = np.float64(a - prev) / total * np.float64(n_errors[r]) / np.float64(a)
+        prev = a
+    return out

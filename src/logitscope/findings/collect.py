@@ -286,9 +286,13 @@ def _labelled_findings(
     split = choices.split
     if split is None and own_split and frame.n_labelled >= MIN_ROWS_FOR_SPLIT:
         own = hash_split(frame.n_samples, 0.5, seed=0)  # as a chunked batch is split, chunk by chunk
+        own.fit.flags.writeable = own.held_out.flags.writeable = False  # the findings of each part share it
         if frame.labelled[own.fit].any() and frame.labelled[own.held_out].any():  # each part judged on labels
             split = own
     held = None if split is None else held_out_check(frame, split, t, choices.rule, b)
+    # the findings that need transient per-row arrays come before those that keep some (the curve)
+    suspects = suspect_labels(frame, "confident_learning", t, top=n_suspects)
+    confusion = confusion_summary(frame, t, 1, n_pairs)
     preds = prediction_summary(frame, t)
     histogram = confidence_histogram(frame, t)
     decision = summary(t)
@@ -309,8 +313,8 @@ def _labelled_findings(
         sweep=sweep,
         threshold=threshold,
         held_out=held,
-        confusion=confusion_summary(frame, t, 1, n_pairs),
-        suspects=suspect_labels(frame, "confident_learning", t, top=n_suspects),
+        confusion=confusion,
+        suspects=suspects,
         split=split,
         histogram=histogram,
     )
