@@ -5,7 +5,8 @@ from __future__ import annotations
 import os
 import warnings
 from collections import OrderedDict
-from collections.abc import Sequence
+from collections.abc import Iterator, Sequence
+from contextlib import contextmanager
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -261,7 +262,10 @@ class LogitFrame:
     (2, 2, 0.5)
     """
 
+    #: Most temperatures whose per-sample scores are cached, and the bytes they may take together
+    #: (at least one temperature is always kept): a quarter of the logit matrix, or 64 MiB for a small one.
     _CACHE_SIZE = 4
+    _CACHE_MIN_BYTES = 64 << 20
 
     def __init__(
         self,
@@ -311,6 +315,7 @@ class LogitFrame:
         self._temperature = check_temperature(temperature)
         self._source = source
         self._cache: OrderedDict[float, an.SampleScores] = OrderedDict()
+        self._curves: dict[float, tuple[np.ndarray | None, an.RiskCoverage]] | None = None
 
     # ------------------------------------------------------------------ validation
 
@@ -647,6 +652,7 @@ class LogitFrame:
         new._cache = OrderedDict()
         if "labels" in changes:
             new.__dict__.pop("_n_labelled_memo", None)  # counted again for the new labels
+        new._curves = None
         for k, v in changes.items():
             setattr(new, f"_{k}", v)
         if "temperature" not in changes and "logits" not in changes and "labels" not in changes:
@@ -754,15 +760,50 @@ class LogitFrame:
         if hit is not None:
             self._cache.move_to_end(t)
             return hit
+        keep = self._cache_slots()
+        while self._cache and len(self._cache) >= keep:  # make room first: old and new scores never coexist
+            self._cache.popitem(last=False)
         y = self._labels
         with assume_valid():
             s = an.sample_scores(self._logits, None if y is None else self._labels_for_analysis(), temperature=t)
         if y is not None and not self.fully_labelled:
             s = _blank_unlabelled(s, y < 0)
         self._cache[t] = s
-        while len(self._cache) > self._CACHE_SIZE:
-            self._cache.popitem(last=False)
         return s
+
+    @contextmanager
+    def _sharing_curves(self) -> Iterator[None]:
+        """Within this block, :meth:`_risk_coverage` keeps its last curve (findings of the same rows share it)."""
+        self._curves = {}
+        try:
+            yield
+        finally:
+            self._curves = None
+
+    def _risk_coverage(self, temperature: float, rows: np.ndarray | None, conf: Any, ok: Any) -> an.RiskCoverage:
+        """The risk-coverage curve of ``conf`` and ``ok``, the scores of ``rows`` (None: all) at ``temperature``.
+
+        Inside :meth:`_sharing_curves` the last curve is kept and given again for the same temperature and
+        the same rows (the same array, read-only, or None), so the calibration summary and the threshold of
+        those rows sort their confidences once.
+        """
+        memo = self._curves
+        if memo is None or (rows is not None and rows.flags.writeable):
+            return an.risk_coverage_curve(conf, ok)
+        hit = memo.get(temperature)
+        if hit is not None and hit[0] is rows:
+            return hit[1]
+        memo.clear()  # one curve at a time: it is as large as the rows
+        curve = an.risk_coverage_curve(conf, ok)
+        memo[temperature] = (rows, curve)
+        return curve
+
+    def _cache_slots(self) -> int:
+        """How many temperatures' scores the cache keeps: ``_CACHE_SIZE``, fewer when they would take more
+        than a quarter of the logit matrix (or ``_CACHE_MIN_BYTES``), never none."""
+        per_row = 8 * 10 + 1  # the scores of one temperature: ten 8-byte columns and a boolean one
+        budget = max(self._logits.nbytes // 4, self._CACHE_MIN_BYTES)
+        return int(max(1, min(self._CACHE_SIZE, budget // max(1, per_row * self.n_samples))))
 
     def probabilities(self, temperature: float | None = None) -> np.ndarray:
         """``softmax(z / T)`` as an (N, K) array (float32 for float16/32 logits)."""

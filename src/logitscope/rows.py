@@ -14,7 +14,8 @@ __all__ = ["as_rows", "rows_or_all"]
 def as_rows(rows: Any, n_samples: int) -> np.ndarray:
     """Normalise a selection to sorted unique int64 row positions in ``[0, n_samples)``.
 
-    Accepts positions, a boolean mask of length ``n_samples``, or None (nothing).
+    Accepts positions, a boolean mask of length ``n_samples``, or None (nothing). The result is a new
+    array, except that a read-only 1-D int64 array owning its data, sorted and unique, comes back as it is.
 
     Examples
     --------
@@ -37,7 +38,10 @@ def as_rows(rows: Any, n_samples: int) -> np.ndarray:
             r = r.astype(np.int64)
         else:
             raise ShapeError(f"a selection must hold row positions (integers), got dtype {r.dtype}")
-    r = np.array(r, dtype=np.int64).ravel()  # a copy: the caller may reuse its array
+    # a copy, as the caller may reuse its array; a read-only int64 array that owns its data cannot change
+    # and is kept as it is (the parts of a split shared by several findings)
+    if not (r.dtype == np.int64 and r.ndim == 1 and r.base is None and not r.flags.writeable):
+        r = np.array(r, dtype=np.int64).ravel()
     if r.size > 1 and not bool(np.all(r[1:] > r[:-1])):  # already sorted and unique: skip the sort
         r = np.unique(r)
     if r[0] < 0 or r[-1] >= n_samples:

@@ -39,7 +39,8 @@ Strategy = Literal["uniform", "quantile"]
 class ReliabilityBins:
     """Per-bin counts, accuracies and mean confidences of a reliability diagram.
 
-    ``bin_of`` maps each sample to its bin, so a view can select a bin's samples.
+    ``bin_of`` maps each sample to its bin (the smallest integer type that holds the bin numbers: int8 up
+    to 127 bins), so a view can select a bin's samples.
     Empty bins have ``count == 0`` and NaN accuracy and confidence.
     """
 
@@ -106,13 +107,23 @@ def reliability_bins(
         raise ShapeError("reliability_bins needs at least one sample")
     if np.any(~np.isfinite(conf)) or np.any((conf < 0) | (conf > 1)):
         raise ParameterError("confidence values must lie in [0, 1]")
+    small = np.int8 if n_bins <= np.iinfo(np.int8).max else np.int16  # a bin index per row: one or two bytes
     if strategy == "uniform":
         edges = np.linspace(0.0, 1.0, n_bins + 1)
-        bin_of = np.searchsorted(edges[1:-1], conf, side="left")
         lower, upper = edges[:-1], edges[1:]
+        from .selective import _select_kernels
+
+        kernels = _select_kernels()
+        if kernels is not None:  # one pass: the bin of each row and the sums per bin, in row order
+            bin_of = np.empty(conf.size, dtype=small)
+            count, right, total = kernels.uniform_bins(conf, ok, edges[1:-1], bin_of)
+            with np.errstate(invalid="ignore", divide="ignore"):
+                acc, mconf = right / count, total / count
+            return ReliabilityBins(lower, upper, count, acc, mconf, bin_of, strategy)
+        bin_of = np.searchsorted(edges[1:-1], conf, side="left")
     elif strategy == "quantile":
         order = np.argsort(conf, kind="stable")
-        bin_of = np.empty(conf.size, dtype=np.int64)
+        bin_of = np.empty(conf.size, dtype=small)
         chunks = np.array_split(order, n_bins)
         lower = np.full(n_bins, np.nan)
         upper = np.full(n_bins, np.nan)
@@ -128,7 +139,7 @@ def reliability_bins(
         mconf = np.bincount(bin_of, weights=conf, minlength=n_bins) / count
     return ReliabilityBins(
         lower=lower, upper=upper, count=count, accuracy=acc, confidence=mconf,
-        bin_of=bin_of.astype(np.int64), strategy=strategy,
+        bin_of=bin_of.astype(small), strategy=strategy,
     )  # fmt: skip
 
 

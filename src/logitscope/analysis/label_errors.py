@@ -180,9 +180,9 @@ def rank_doubtful_labels(
     with assume_valid():
         s = sample_scores(z, y, temperature=t) if scores is None else scores
     assert s.true_probability is not None and s.correct is not None
-    second = s.confidence - s.margin  # the runner-up probability
-    best_other = np.where(s.correct, second, s.confidence)
-    nm = s.true_probability - best_other
+    if method == "confident_learning":
+        return _confident_ranking(z, y, t, s)
+    nm = _label_margin(s)
     # most probable class other than the label: the prediction, or the runner-up when the prediction is y
     suggested = s.predicted.copy()
     if np.any(s.correct):
@@ -195,23 +195,44 @@ def rank_doubtful_labels(
     elif method == "label_margin":
         score = nm
         idx = np.argsort(score, kind="stable")
-    elif method == "confident_learning":
-        # t_j = mean of p_j over the rows labelled j: p_y of each row is already among the scores
-        with np.errstate(invalid="ignore", divide="ignore"):
-            thr = np.bincount(y, weights=s.true_probability, minlength=k) / np.bincount(y, minlength=k)
-        with assume_valid():
-            assigned = _confident_assignment(z, y, 1.0 / t, thr)
-        flagged = np.flatnonzero((assigned >= 0) & (assigned != y))
-        order = np.argsort(nm[flagged], kind="stable")
-        idx = flagged[order]
-        score = nm
-        suggested = suggested.copy()
-        suggested[flagged] = assigned[flagged]
     else:
         raise ParameterError(
             f"method must be 'confident_learning', 'given_probability' or 'label_margin', got {method!r}"
         )
     return DoubtfulLabelRanking(method=method, index=idx, score=score[idx], suggested=suggested[idx])
+
+
+def _label_margin(s: SampleScores, rows: np.ndarray | None = None) -> np.ndarray:
+    """The label's probability minus the best other class's, of every row (of ``rows`` only, when given)."""
+    assert s.true_probability is not None and s.correct is not None
+
+    def take(a: np.ndarray) -> np.ndarray:
+        return a if rows is None else a[rows]
+
+    conf = take(s.confidence)
+    second = conf - take(s.margin)  # the runner-up probability
+    return take(s.true_probability) - np.where(take(s.correct), second, conf)
+
+
+def _confident_ranking(z: np.ndarray, y: np.ndarray, t: float, s: SampleScores) -> DoubtfulLabelRanking:
+    """Confident learning's flagged rows (Northcutt et al. 2021), most doubtful (least label margin) first.
+
+    Only the flagged rows get a margin and a suggestion (the class they confidently count for), so a large
+    batch with few flagged rows costs one pass over the logits and a few per-row arrays.
+    """
+    k = z.shape[1]
+    assert s.true_probability is not None
+    # t_j = mean of p_j over the rows labelled j: p_y of each row is already among the scores
+    with np.errstate(invalid="ignore", divide="ignore"):
+        thr = np.bincount(y, weights=s.true_probability, minlength=k) / np.bincount(y, minlength=k)
+    with assume_valid():
+        assigned = _confident_assignment(z, y, 1.0 / t, thr)
+    flagged = np.flatnonzero((assigned >= 0) & (assigned != y))
+    nm = _label_margin(s, flagged)
+    order = np.argsort(nm, kind="stable")
+    return DoubtfulLabelRanking(
+        method="confident_learning", index=flagged[order], score=nm[order], suggested=assigned[flagged[order]]
+    )
 
 
 def _runner_up(z: np.ndarray, rows: np.ndarray | None = None) -> np.ndarray:

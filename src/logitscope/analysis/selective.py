@@ -17,7 +17,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, field
-from typing import Literal
+from typing import Any, Literal
 
 import numpy as np
 from numpy.typing import ArrayLike
@@ -102,10 +102,25 @@ def risk_coverage_curve(confidence: ArrayLike, correct: ArrayLike) -> RiskCovera
     return _curve(*_check_pair(confidence, correct))
 
 
+def _select_kernels() -> Any:
+    """The compiled curve and bin kernels (:mod:`._numba_select`), or None when numba does not run."""
+    from .scores import _numba
+
+    if _numba() is None:
+        return None
+    from . import _numba_select
+
+    return _numba_select
+
+
 def _curve(conf: np.ndarray, ok: np.ndarray) -> RiskCoverage:
     # a sort instead of an arg-sort (several times faster): the distinct confidences come from the sorted
-    # values, and each error is placed in its run by a binary search
+    # values, and each error is placed in its run by merging the errors' sorted confidences into them
     c = np.sort(conf)[::-1]  # descending
+    kernels = _select_kernels()
+    if kernels is not None:
+        thresholds, n_accepted, n_errors = kernels.curve_runs(c, np.sort(conf[~ok])[::-1])
+        return RiskCoverage(threshold=thresholds, n_accepted=n_accepted, n_errors=n_errors, n_total=conf.size)
     last = np.flatnonzero(np.r_[c[1:] != c[:-1], True])  # last index of each run of equal confidence
     thresholds = c[last]
     # each error's run: its confidence is one of the thresholds; the errors' confidences are sorted first,
@@ -145,6 +160,9 @@ def aurc_of_curve(rc: RiskCoverage) -> float:
     >>> round(aurc_of_curve(risk_coverage_curve([0.9, 0.8, 0.7, 0.6], [1, 1, 0, 0])), 6)
     0.208333
     """
+    kernels = _select_kernels()
+    if kernels is not None and rc.n_accepted.dtype == np.int64 and rc.n_errors.dtype == np.int64:
+        return float(np.sum(kernels.aurc_terms(rc.n_accepted, rc.n_errors, rc.n_total)))  # the same terms, one pass
     share = np.diff(rc.n_accepted, prepend=0) / rc.n_total
     return float(np.sum(share * rc.n_errors / rc.n_accepted))
 

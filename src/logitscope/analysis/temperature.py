@@ -28,7 +28,7 @@ from ..errors import InputTypeError, ParameterError, ShapeError
 from ..parameters import check as check_parameter
 from ..parameters import get_range
 from ._sweep import SweepSums, sweep_sums
-from ._validation import assume_valid, check_labels, check_logits
+from ._validation import assume_valid, check_labels, check_logits, checks_enabled
 from .calibration import ReliabilityBins, Strategy, reliability_bins
 from .scores import sample_scores, temperature_moments
 
@@ -172,13 +172,41 @@ def _gathered(z: np.ndarray, rows: np.ndarray) -> Iterator[tuple[slice, np.ndarr
         yield part, rows[part]
 
 
+def _rows_kernel(z: np.ndarray, y: np.ndarray) -> Callable[..., Moments] | None:
+    """The compiled moments kernel that reads selected rows in place, when numba runs and can read ``z`` as is."""
+    from .scores import _numba, _pick
+
+    if _pick("auto") != "numba" or _numba() is None:
+        return None
+    if z.dtype not in (np.float32, np.float64) or not z.flags.c_contiguous or y.dtype != np.int64:
+        return None
+    from . import _numba_rows
+
+    kernel: Callable[..., Moments] = _numba_rows.moments_on_rows
+    return kernel
+
+
+def _block_moments(z: np.ndarray, y: np.ndarray, idx: np.ndarray, beta: float, kernel: Any) -> Moments:
+    """:func:`temperature_moments` of the rows ``idx``: read in place by ``kernel``, else gathered (a copy)."""
+    if kernel is not None:
+        nll, d1, d2 = kernel(z, y, idx, beta)
+        if np.isfinite(d1) or not checks_enabled():
+            return nll / idx.size, d1 / idx.size, d2 / idx.size
+    return temperature_moments(z[idx], y[idx], beta)  # a non-finite row: this one names it
+
+
 def _moments_on(z: np.ndarray, y: np.ndarray, beta: float, rows: np.ndarray | None) -> Moments:
-    """:func:`temperature_moments` on ``rows`` (all rows when None), gathering one block of rows at a time."""
+    """:func:`temperature_moments` on ``rows`` (all rows when None), one block of rows at a time.
+
+    The blocks are those of a gathered copy (:func:`_gathered`), read in place where numba runs, so the sums
+    are the same whichever way the rows are read.
+    """
     if rows is None:
         return temperature_moments(z, y, beta)
+    kernel = _rows_kernel(z, y)
     nll = d1 = d2 = 0.0
     for _, idx in _gathered(z, rows):
-        a, b, c = temperature_moments(z[idx], y[idx], beta)
+        a, b, c = _block_moments(z, y, idx, beta, kernel)
         nll, d1, d2 = nll + a * idx.size, d1 + b * idx.size, d2 + c * idx.size
     return nll / rows.size, d1 / rows.size, d2 / rows.size
 

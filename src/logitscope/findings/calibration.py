@@ -46,7 +46,9 @@ def _label_rows(frame: LogitFrame, rows: Any, what: str) -> np.ndarray | None:
     """The labelled rows among ``rows`` (None: every row, all labelled); a label-based finding uses only these."""
     if not frame.has_labels:
         raise LabelError(f"{what} needs labels; this frame has none (use with_labels)")
-    r = frame.labelled_rows(_rows(frame, rows))
+    r = _rows(frame, rows)
+    if r is None or not frame.fully_labelled:  # every row labelled: the rows as they are (no copy)
+        r = frame.labelled_rows(r)
     if r is not None and r.size == 0:
         raise LabelError(f"{what} needs labelled rows; none of the {_count(frame, rows):,} rows given has a label")
     return r
@@ -232,7 +234,7 @@ def calibration_summary(
         brier=float(np.mean(_take(s.brier, r))),
         ece=bins.ece,
         mce=bins.mce,
-        aurc=an.aurc(conf, ok),
+        aurc=an.selective.aurc_of_curve(frame._risk_coverage(t, r, conf, ok)),
         mean_confidence=float(np.mean(conf)),
         mean_entropy=float(np.mean(_take(s.entropy, r))),
         bins=bins,

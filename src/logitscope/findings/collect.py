@@ -252,11 +252,23 @@ def collect(
     >>> f.before.accuracy == f.decision.accuracy, f.threshold.rule.kind
     (True, 'accuracy')
     """
-    t = choices.temperature
-    preds = prediction_summary(frame, t)
-    histogram = confidence_histogram(frame, t)
     if not frame.has_labels:
-        return Findings(choices, temperatures, preds, histogram=histogram)
+        t = choices.temperature
+        return Findings(choices, temperatures, prediction_summary(frame, t), histogram=confidence_histogram(frame, t))
+    with frame._sharing_curves():  # a summary and a threshold of the same rows sort their confidences once
+        return _labelled_findings(frame, choices, temperatures, own_split, n_suspects, n_pairs)
+
+
+def _labelled_findings(
+    frame: LogitFrame,
+    choices: Choices,
+    temperatures: TemperatureContext,
+    own_split: bool,
+    n_suspects: int,
+    n_pairs: int,
+) -> Findings:
+    """:func:`collect` of a frame with labels."""
+    t = choices.temperature
     b = choices.binning
     made: dict[float, CalibrationSummary] = {}
 
@@ -265,21 +277,32 @@ def collect(
             made[temperature] = calibration_summary(frame, temperature, None, b)
         return made[temperature]
 
+    # The findings are computed temperature by temperature, the decision temperature's last, so that a
+    # frame that caches the scores of one temperature only (a large one) computes each one's scores once
+    # or nearly (the held-out check ends on the decision temperature too).
+    if temperatures.compare is not None and temperatures.compare != t:
+        summary(temperatures.compare)
     before = summary(temperatures.base)
-    after = None if temperatures.compare is None else summary(temperatures.compare)
+    split = choices.split
+    if split is None and own_split and frame.n_labelled >= MIN_ROWS_FOR_SPLIT:
+        own = hash_split(frame.n_samples, 0.5, seed=0)  # as a chunked batch is split, chunk by chunk
+        own.fit.flags.writeable = own.held_out.flags.writeable = False  # the findings of each part share it
+        if frame.labelled[own.fit].any() and frame.labelled[own.held_out].any():  # each part judged on labels
+            split = own
+    held = None if split is None else held_out_check(frame, split, t, choices.rule, b)
+    # the findings that need transient per-row arrays come before those that keep some (the curve)
+    suspects = suspect_labels(frame, "confident_learning", t, top=n_suspects)
+    confusion = confusion_summary(frame, t, 1, n_pairs)
+    preds = prediction_summary(frame, t)
+    histogram = confidence_histogram(frame, t)
     decision = summary(t)
+    after = None if temperatures.compare is None else summary(temperatures.compare)
     marks = [temperatures.base, t]
     sweep = sweep_finding(frame, None, b, marks=marks, fitted=temperatures.fitted)
     # with a split of the user's, the threshold is chosen on its fit part (as the panel's picker does); the
     # held-out check then judges it on the other part. The report's own split only checks.
     chosen_on = None if choices.split is None else choices.split.fit
     threshold = None if choices.rule is None else threshold_decision(frame, choices.rule, t, chosen_on)
-    split = choices.split
-    if split is None and own_split and frame.n_labelled >= MIN_ROWS_FOR_SPLIT:
-        own = hash_split(frame.n_samples, 0.5, seed=0)  # as a chunked batch is split, chunk by chunk
-        if frame.labelled[own.fit].any() and frame.labelled[own.held_out].any():  # each part judged on labels
-            split = own
-    held = None if split is None else held_out_check(frame, split, t, choices.rule, b)
     return Findings(
         choices=choices,
         temperatures=temperatures,
@@ -290,8 +313,8 @@ def collect(
         sweep=sweep,
         threshold=threshold,
         held_out=held,
-        confusion=confusion_summary(frame, t, 1, n_pairs),
-        suspects=suspect_labels(frame, "confident_learning", t, top=n_suspects),
+        confusion=confusion,
+        suspects=suspects,
         split=split,
         histogram=histogram,
     )

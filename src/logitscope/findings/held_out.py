@@ -54,6 +54,18 @@ class HeldOutCheck:
     judged_on_held: an.ThresholdChoice | None = None
 
 
+def _labelled_part(frame: LogitFrame, part: np.ndarray) -> np.ndarray:
+    """The labelled rows of a part of a split, read-only, so that the findings of the part share them
+    (:func:`logitscope.rows.as_rows` keeps such an array): the part itself when it is a read-only int64
+    array of its own and every row has a label, else a new array."""
+    r = np.asarray(part)
+    if frame.fully_labelled and r.dtype == np.int64 and r.ndim == 1 and r.base is None and not r.flags.writeable:
+        return r
+    r = r[frame.labelled[r]]
+    r.flags.writeable = False
+    return r
+
+
 def held_out_check(
     frame: LogitFrame,
     split: Split,
@@ -88,12 +100,10 @@ def held_out_check(
     """
     if not frame.has_labels:
         raise LabelError("a held-out check needs labels; this frame has none (use with_labels)")
-    fit_rows, held_rows = np.asarray(split.fit), np.asarray(split.held_out)
-    if fit_rows.size == 0 or held_rows.size == 0:
+    if np.asarray(split.fit).size == 0 or np.asarray(split.held_out).size == 0:
         raise ParameterError("both parts of a split need at least one row")
     # a partly labelled batch: each part is judged on its labelled rows
-    fit_rows = fit_rows[frame.labelled[fit_rows]]
-    held_rows = held_rows[frame.labelled[held_rows]]
+    fit_rows, held_rows = _labelled_part(frame, split.fit), _labelled_part(frame, split.held_out)
     if fit_rows.size == 0 or held_rows.size == 0:
         raise LabelError("both parts of a split need labelled rows; one part has none")
     t_dec = frame.temperature if temperature is None else an.check_temperature(temperature)
@@ -105,8 +115,15 @@ def held_out_check(
     ]
     if not any(math.isclose(t_dec, t, rel_tol=1e-9) for _, t, _ in columns):
         columns.append(("decision", t_dec, "decision temperature"))
-    fit = {key: calibration_summary(frame, t, fit_rows, b) for key, t, _ in columns}
-    held = {key: calibration_summary(frame, t, held_rows, b) for key, t, _ in columns}
+    # both parts at one temperature before the next, the decision temperature last and its fit part last of
+    # all (the threshold below uses them): a large frame caches the scores of one temperature only, and the
+    # fit part's risk-coverage curve at the decision temperature is shared with the threshold
+    made: dict[str, tuple[CalibrationSummary, CalibrationSummary]] = {}
+    for key, t, _ in sorted(columns, key=lambda c: math.isclose(c[1], t_dec, rel_tol=1e-9)):
+        on_held = calibration_summary(frame, t, held_rows, b)
+        made[key] = calibration_summary(frame, t, fit_rows, b), on_held
+    fit = {key: made[key][0] for key, _, _ in columns}
+    held = {key: made[key][1] for key, _, _ in columns}
     decision = judged = None
     if rule is not None:
         decision = threshold_decision(frame, rule, t_dec, fit_rows)

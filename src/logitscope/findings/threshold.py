@@ -163,10 +163,11 @@ def threshold_decision(
     s = frame.sample_scores(t)
     assert s.correct is not None
     conf, ok, pred = _take(s.confidence, r), _take(s.correct, r), _take(s.predicted, r)
-    curve = an.risk_coverage_curve(conf, ok)  # sorted once: the rule, the curve and the AURC read it
+    curve = frame._risk_coverage(t, r, conf, ok)  # sorted once: the rule, the curve and the AURC read it
     choice = rule.choose(conf, ok, curve)
     by_class: list[an.ThresholdChoice | None] = []
-    order = np.argsort(pred, kind="stable")
+    # a stable sort of small integers is a radix sort: the same order, several times faster
+    order = np.argsort(pred.astype(np.int16) if frame.n_classes <= np.iinfo(np.int16).max else pred, kind="stable")
     bounds = np.searchsorted(pred[order], np.arange(frame.n_classes + 1))
     for k in range(frame.n_classes):
         idx = order[bounds[k] : bounds[k + 1]]
