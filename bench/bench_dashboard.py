@@ -22,7 +22,7 @@ measures, in the page (``performance.now()``):
   and the histogram show the new frame and the kernel is idle;
 - render with ``--k-large`` classes (heat map shows the top classes plus "other").
 
-Targets: render < 3 s, brush median < 150 ms and update < 1 s at N = 100,000, K = 100.
+Targets: render < 3 s, brush median < 100 ms (the issue's target for chromium) and update < 1 s at N = 100,000, K = 100.
 
 Run: ``python bench/bench_dashboard.py`` (about two minutes; needs
 /usr/bin/chromium and playwright). ``--n``, ``--k``, ``--k-large``,
@@ -46,7 +46,7 @@ REPO = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(REPO))
 
 TARGET_RENDER_S = 3.0
-TARGET_BRUSH_MS = 150.0
+TARGET_BRUSH_MS = 100.0
 TARGET_UPDATE_S = 1.0
 
 
@@ -112,7 +112,7 @@ SIGNATURES_JS = """
   return [
     images.map((i) => (i.getAttribute('href') || '').slice(-48)).join('|'),
     bars.map((b) => b.getAttribute('height')).join(','),
-    text('.logitscope-confusion .logitscope-note'),
+    text('.logitscope-confusion .ls-note'),
     text('.lsg-head .lsg-scope'),
     text('.logitscope-selection'),
   ];
