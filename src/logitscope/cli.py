@@ -181,6 +181,8 @@ def _parser() -> argparse.ArgumentParser:
         "--per-class", action="store_true", help="with --target-accuracy: one threshold per predicted class too"
     )
     r.add_argument("--relabel", metavar="FILE.json", help="a relabel list whose marks and notes the report lists")
+    r.add_argument("--compare", metavar="B", help="another checkpoint's file of the same samples: a comparison section")
+    r.add_argument("--drop-missing", action="store_true", help="with --compare: compare the shared ids only")
     r.add_argument("--title", help="the title at the top of the report")
     _add_compare_parser(sub)
     _add_demo_parser(sub)
@@ -288,6 +290,10 @@ def _cmd_report(args: argparse.Namespace) -> int:
     chunked = is_chunked_source(args.file)
     if chunked and args.relabel:
         raise ParameterError("--relabel needs the file read in memory (.npz or .parquet), not a chunked store")
+    if chunked and args.compare:
+        raise ParameterError("--compare needs the file read in memory (.npz or .parquet), not a chunked store")
+    if args.drop_missing and not args.compare:
+        raise ParameterError("--drop-missing goes with --compare")
     options: dict[str, Any] = {"fit_temperature": args.fit_temperature}
     if args.temperature is not None:
         options["temperature"] = args.temperature
@@ -309,7 +315,14 @@ def _cmd_report(args: argparse.Namespace) -> int:
             _Progress("writing the report over chunks").run(lambda: chunked_report(args, options))
         else:
             frame = _Progress(f"reading {args.file}").run(lambda: LogitFrame.read(args.file))
-            _Progress("writing the report").run(lambda: write_report(frame, args.output, **options))
+            if args.compare:
+                options["compare"] = _Progress(f"reading {args.compare}").run(lambda: LogitFrame.read(args.compare))
+                options["compare_missing"] = "drop" if args.drop_missing else "raise"
+                options["compare_name"] = Path(args.compare).name
+            try:
+                _Progress("writing the report").run(lambda: write_report(frame, args.output, **options))
+            except ShapeError as exc:
+                raise ShapeError(str(exc).replace("Pass missing='drop'", "Pass --drop-missing")) from exc
     for w in caught:  # one line per problem, as every message of the command line
         print(f"logitscope: warning: {' '.join(str(w.message).split())}", file=sys.stderr)
     print(f"wrote {Path(args.output)}")

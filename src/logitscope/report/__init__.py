@@ -83,6 +83,9 @@ def write_report(
     findings: Findings | None = None,
     choices: Choices | None = None,
     relabel: RelabelStore | str | os.PathLike[str] | None = None,
+    compare: LogitFrame | None = None,
+    compare_missing: str = "raise",
+    compare_name: str = "the other checkpoint",
 ) -> None:
     """Write one self-contained HTML report about ``frame`` to ``path`` (atomically).
 
@@ -135,6 +138,13 @@ def write_report(
         Choices already settled (instead of the options above); the findings are computed for them.
     relabel : RelabelStore or path, optional
         The user's relabel list; its marks and notes get a section of their own.
+    compare : LogitFrame, optional
+        Another checkpoint's frame of the same samples (matched by id, in any order): a section compares
+        this frame (A) with it (B): flip table, exact McNemar test, per-class accuracy change.
+    compare_missing : {"raise", "drop"}
+        Ids held by one frame only: a ShapeError naming them, or left out and counted in the section.
+    compare_name : str
+        What the section calls the other frame (escaped; the CLI gives its file name).
 
     Raises
     ------
@@ -205,7 +215,17 @@ def write_report(
     else:
         found = collect(frame, *resolve_choices(frame, **options))  # type: ignore[arg-type]
     marks, source = (None, "") if relabel is None else _open_marks(frame, relabel)
-    page = build_report(frame, found, title=title, marks=marks, marks_source=source)
+    comparison = None
+    if compare is not None:
+        from ..checkpoints import compare_frames
+
+        if not isinstance(compare, LogitFrame):
+            raise InputTypeError(f"compare must be a LogitFrame, got {type(compare).__name__}")
+        if compare_missing not in ("raise", "drop"):
+            raise ParameterError(f"compare_missing must be 'raise' or 'drop', got {compare_missing!r}")
+        names = ("this batch", str(compare_name))
+        comparison = compare_frames(frame, compare, missing=compare_missing, names=names)  # type: ignore[arg-type]
+    page = build_report(frame, found, title=title, marks=marks, marks_source=source, comparison=comparison)
     with atomic_write(path, "w") as fh:
         fh.write(page)
 

@@ -27,7 +27,7 @@ import hashlib
 import math
 from collections.abc import Iterable, Mapping
 from importlib import resources
-from typing import Any, Protocol
+from typing import TYPE_CHECKING, Any, Protocol
 
 import numpy as np
 from jinja2 import Environment, FileSystemBytecodeCache, PackageLoader, StrictUndefined
@@ -40,6 +40,9 @@ from ..thumbnails import ThumbnailCache, snippet
 from . import figures as fig
 from .svg import IdSource
 from .text import fmt_value, hover, raw_value, short, temp_label
+
+if TYPE_CHECKING:
+    from ..checkpoints import FrameComparison
 
 __all__ = ["CSP", "CSS", "ReportFrame", "build_report", "mark_rows"]
 
@@ -132,6 +135,49 @@ def _preview(frame: ReportFrame, row: int | None, cache: ThumbnailCache) -> dict
         "height": thumb.height,
         "alt": f"sample {frame.ids[row]}",
     }
+
+
+# --------------------------------------------------------------------------- another checkpoint
+
+
+def comparison_context(c: FrameComparison) -> dict[str, Any]:
+    """What the comparison section shows, read from the comparison (no number is computed here)."""
+    cmp = c.comparison
+    out: dict[str, Any] = {
+        "other": str(c.aligned.names[1]),
+        "n": cmp.n_samples,
+        "only_a": int(c.only_in_a.size),
+        "only_b": int(c.only_in_b.size),
+        "t_a": c.a.temperature,
+        "t_b": c.b.temperature,
+        "agreement": cmp.agreement,
+        "confidence_change": cmp.mean_abs_confidence_change,
+        "accuracy_a": cmp.accuracy_a,
+        "accuracy_b": cmp.accuracy_b,
+        "mcnemar_p": cmp.mcnemar_p,
+        "flips": None,
+        "classes": [],
+    }
+    if c.flips is not None:
+        table = c.flips.to_frame()
+        out["flips"] = [
+            {"key": key, "description": row["description"], "count": int(row["count"]), "share": float(row["share"])}
+            for key, (_, row) in zip(an.FLIP_CELLS, table.iterrows(), strict=True)
+        ]
+    if c.per_class is not None:
+        per = c.per_class_frame()
+        out["classes"] = [
+            {"name": name, "support": int(r["support"]), "accuracy_a": _nan_none(r["accuracy_a"]),
+             "accuracy_b": _nan_none(r["accuracy_b"]), "change": _nan_none(r["change"]), "fixed": int(r["fixed"]),
+             "broken": int(r["broken"]), "p_holm": _nan_none(r["mcnemar_p_holm"])}
+            for name, r in per.iterrows()
+        ]  # fmt: skip
+    return out
+
+
+def _nan_none(v: Any) -> float | None:
+    v = float(v)
+    return None if math.isnan(v) else v
 
 
 # --------------------------------------------------------------------------- relabel marks
@@ -294,6 +340,7 @@ def build_report(
     marks: Iterable[Mapping[str, Any]] | None = None,
     marks_source: str = "",
     written: _dt.datetime | None = None,
+    comparison: FrameComparison | None = None,
 ) -> str:
     """The report of ``findings`` (computed for ``frame``) as one HTML document.
 
@@ -310,6 +357,9 @@ def build_report(
         Where the marks come from (shown).
     written : datetime, optional
         The time stamp (default now).
+    comparison : FrameComparison, optional
+        This frame (A) against another checkpoint's (B) (:func:`logitscope.checkpoints.compare_frames`);
+        a section renders its flip table, McNemar test and per-class change.
 
     Examples
     --------
@@ -348,6 +398,8 @@ def build_report(
             d["marked"] = d["row"] in marked
         for r in mark_list:
             r["preview"] = _preview(frame, r["row"], cache)
+    if comparison is not None:
+        nav.append(("comparison", "Against another checkpoint"))
     marks_context = None
     if mark_list is not None:
         unmatched = sum(r["row"] is None for r in mark_list)
@@ -373,5 +425,6 @@ def build_report(
         many_classes=MANY_CLASSES,
         read_in_chunks=bool(getattr(frame, "read_in_chunks", False)),
         marks=marks_context,
+        cmp=None if comparison is None else comparison_context(comparison),
         **context,
     )
