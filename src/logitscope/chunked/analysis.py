@@ -391,17 +391,24 @@ def sample_scores(cf: ChunkedFrame, temperature: float | None = None) -> an.Samp
 # --------------------------------------------------------------------------- temperature
 
 
+def _block_moments(zb: np.ndarray, yb: np.ndarray, beta: float, offset: int) -> tuple[float, float, float]:
+    """Sums (not means) of the NLL and its two derivatives in beta over one checked block of rows."""
+    n = zb.shape[0]
+    if n == 0:
+        return 0.0, 0.0, 0.0
+    try:
+        with _one_numba_thread():
+            nll, d1, d2 = an.temperature_moments(zb, yb, beta)
+    except NonFiniteError:
+        raise _nonfinite(zb, offset) from None
+    return nll * n, d1 * n, d2 * n
+
+
 def _moments_part(beta: float) -> Callable[[Any, Any, int], tuple[float, float, float]]:
     def part(z: Any, y: Any, offset: int) -> tuple[float, float, float]:
         zb, yb = _checked_block(z, y, offset)
         assert yb is not None
-        n = zb.shape[0]
-        try:
-            with _one_numba_thread():
-                nll, d1, d2 = an.temperature_moments(zb, yb, beta)
-        except NonFiniteError:
-            raise _nonfinite(zb, offset) from None
-        return nll * n, d1 * n, d2 * n
+        return _block_moments(zb, yb, beta, offset)
 
     return part
 

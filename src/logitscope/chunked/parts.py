@@ -37,13 +37,12 @@ from ..analysis._validation import assume_valid
 from ..analysis.selective import IntervalMethod, _choice, _last_lower_bound_reaching
 from ..analysis.split import held_out_by_hash
 from ..analysis.temperature import WARM_START_ROWS, newton_fit
-from ..errors import NonFiniteError
 from .analysis import (
     SUB_ROWS,
     ExactOrder,
+    _block_moments,
     _checked_block,
     _Collector,
-    _nonfinite,
     _one_numba_thread,
     _rc_bin,
     _rc_n_bins,
@@ -519,15 +518,7 @@ def _moments_on_part(beta: float, part: str) -> Any:
         m = part_mask(part, offset, zb.shape[0])
         if m is not None:
             zb, yb = zb[m], yb[m]
-        n = zb.shape[0]
-        if n == 0:
-            return 0.0, 0.0, 0.0
-        try:
-            with _one_numba_thread():
-                nll, d1, d2 = an.temperature_moments(zb, yb, beta)
-        except NonFiniteError:
-            raise _nonfinite(zb, offset) from None
-        return nll * n, d1 * n, d2 * n
+        return _block_moments(zb, yb, beta, offset)
 
     return run
 
