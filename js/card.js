@@ -42,31 +42,6 @@ const CSS = `
 .lsc-meta td:first-child { color: var(--jp-ui-font-color2, #59636e); white-space: nowrap; }
 `;
 
-function make(tag, cls, text) {
-  const node = document.createElement(tag);
-  if (cls) node.className = cls;
-  if (text !== undefined && text !== null) node.textContent = String(text);
-  return node;
-}
-
-// At most `max` characters, cut in the middle with an ellipsis (as logitscope.text.shorten does).
-function short(text, max) {
-  const s = String(text);
-  if (s.length <= max) return s;
-  const keep = max - 1;
-  const head = Math.ceil(keep / 2);
-  const tail = keep - head;
-  return s.slice(0, head) + "…" + (tail ? s.slice(s.length - tail) : "");
-}
-
-// A node showing `text` cut to `max` characters; the full text is its title when cut.
-function named(tag, cls, text, max) {
-  const full = text === null || text === undefined ? "" : String(text);
-  const node = make(tag, cls, short(full, max));
-  if (full.length > max) node.title = full;
-  return node;
-}
-
 // Longest text shown in the card; a longer one ends with a note of what was left out.
 const MAX_TEXT = 20000;
 

@@ -60,23 +60,6 @@ const SORT_NAMES = {
   row: "row (frame order)",
 };
 
-function make(tag, cls, text) {
-  const node = document.createElement(tag);
-  if (cls) node.className = cls;
-  if (text !== undefined && text !== null) node.textContent = String(text);
-  return node;
-}
-
-// At most `max` characters, cut in the middle with an ellipsis (as logitscope.text.shorten does).
-function short(text, max) {
-  const s = String(text);
-  if (s.length <= max) return s;
-  const keep = max - 1;
-  const head = Math.ceil(keep / 2);
-  const tail = keep - head;
-  return s.slice(0, head) + "…" + (tail ? s.slice(s.length - tail) : "");
-}
-
 function pct(p) {
   const v = 100 * p;
   return (v >= 99.95 || v < 0.05 ? v.toFixed(0) : v.toFixed(1)) + "%";

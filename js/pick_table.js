@@ -33,13 +33,6 @@ const CSS = `
 .lspt-empty { color: var(--jp-ui-font-color2, #59636e); padding: 8px; }
 `;
 
-function make(tag, cls, text) {
-  const node = document.createElement(tag);
-  if (cls) node.className = cls;
-  if (text !== undefined && text !== null) node.textContent = String(text);
-  return node;
-}
-
 function cellText(value) {
   if (value === null || value === undefined) return "";
   if (typeof value === "object") return value.text === undefined || value.text === null ? "" : String(value.text);

@@ -38,31 +38,6 @@ const CSS = `
 .lsr-n { width: 64px; }
 `;
 
-function make(tag, cls, text) {
-  const node = document.createElement(tag);
-  if (cls) node.className = cls;
-  if (text !== undefined && text !== null) node.textContent = String(text);
-  return node;
-}
-
-// At most `max` characters, cut in the middle with an ellipsis (as logitscope.text.shorten does).
-function short(text, max) {
-  const s = String(text);
-  if (s.length <= max) return s;
-  const keep = max - 1;
-  const head = Math.ceil(keep / 2);
-  const tail = keep - head;
-  return s.slice(0, head) + "…" + (tail ? s.slice(s.length - tail) : "");
-}
-
-// A node showing `text` cut to `max` characters; the full text is its title when cut.
-function named(tag, cls, text, max) {
-  const full = text === null || text === undefined ? "" : String(text);
-  const node = make(tag, cls, short(full, max));
-  if (full.length > max) node.title = full;
-  return node;
-}
-
 function option(value, text) {
   const o = make("option", null, text);
   o.value = value;

@@ -2,7 +2,9 @@
 
 The modules are kept in the repository's top-level ``js/`` folder. An
 installed wheel carries them as ``logitscope/js`` (pyproject force-includes
-the folder); an editable install reads them from ``<repo>/js``.
+the folder); an editable install reads them from ``<repo>/js``. An anywidget
+module is one file, so the DOM helpers they share (``js/shared.js``) are put
+before each module's own text.
 """
 
 from __future__ import annotations
@@ -11,7 +13,10 @@ from pathlib import Path
 
 from ..errors import FileFormatError
 
-__all__ = ["esm", "js_dir"]
+__all__ = ["SHARED", "esm", "js_dir"]
+
+#: The helpers every module uses, put before its text by :func:`esm`.
+SHARED = "shared.js"
 
 
 def js_dir() -> Path:
@@ -29,7 +34,7 @@ def js_dir() -> Path:
 
 
 def esm(name: str) -> str:
-    """The text of the ES module ``name`` (e.g. ``"gallery.js"``).
+    """The text of the ES module ``name`` (e.g. ``"gallery.js"``), after the shared helpers.
 
     Raises
     ------
@@ -38,9 +43,14 @@ def esm(name: str) -> str:
 
     Examples
     --------
-    >>> "export default" in esm("gallery.js")
-    True
+    >>> text = esm("gallery.js")
+    >>> "export default" in text, text.count("function short(")
+    (True, 1)
     """
+    return _read(SHARED) + "\n" + _read(name)
+
+
+def _read(name: str) -> str:
     path = js_dir() / name
     try:
         return path.read_text(encoding="utf-8")
