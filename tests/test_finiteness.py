@@ -96,3 +96,35 @@ def test_frame_rejects_nonfinite_rows_when_built():
     z[4, 2] = np.inf
     with pytest.raises(NonFiniteError, match=r"1 of 6 rows: row 4\b"):
         LogitFrame(z)
+
+
+# ------------------------------------------------------------------ the frame's own check, with and without a copy
+
+
+@pytest.mark.parametrize("dtype", DTYPES)
+@pytest.mark.parametrize("copy", [True, False])
+def test_a_frame_names_the_nonfinite_rows_with_and_without_a_copy(check_backend, dtype, copy):
+    z = _poisoned(dtype, 17, seed=3)
+    bad = np.flatnonzero(~np.isfinite(z).all(axis=1))  # reference: numpy.isfinite
+    with pytest.raises(NonFiniteError, match=f"in {bad.size} of 64 rows: rows? {bad[0]}"):
+        LogitFrame(z, labels=np.zeros(64, dtype=int), copy=copy)
+
+
+def test_a_copying_frame_keeps_its_numbers_when_the_caller_writes_on(check_backend):
+    from scipy.special import softmax
+
+    rng = np.random.default_rng(12)
+    z = rng.normal(size=(500, 9)).astype(np.float32)
+    y = rng.integers(0, 9, 500)
+    y[::5] = -1  # a fifth unlabelled
+    keep = z.copy()
+    frame = LogitFrame(z, labels=y, temperature=0.8)
+    z[:] = 0.0  # the caller reuses the buffer for the next batch
+    np.testing.assert_array_equal(frame.logits, keep)
+    s = frame.sample_scores()
+    p = softmax(keep.astype(np.float64) / 0.8, axis=1)  # reference: scipy.special.softmax
+    np.testing.assert_allclose(s.confidence, p.max(axis=1), rtol=1e-12)
+    labelled = y >= 0
+    np.testing.assert_allclose(s.true_probability[labelled], p[labelled, y[labelled]], rtol=1e-12)
+    assert np.isnan(s.true_probability[~labelled]).all() and (s.true_rank[~labelled] == -1).all()
+    assert not s.correct[~labelled].any()

@@ -294,9 +294,9 @@ class LogitFrame:
                 "of class 1, e.g. decision_function) is passed as LogitFrame(scores, binary=True); its "
                 "probabilities of class 1 as LogitFrame.from_probabilities(np.column_stack([1 - p, p]))"
             )
-        z = check_logits(raw)
-        if copy and z is raw and not isinstance(logits, list | tuple):  # else z is a new array already
-            z = np.array(z, copy=True)
+        z = check_logits(raw, check_finite=False)
+        fresh = z is not raw or isinstance(logits, list | tuple)  # converted: a new array already
+        z = check_logits(z, copy=copy and not fresh)  # a copy is checked as it is made, in the same pass
         n, k = z.shape
         if source == "logits" and _looks_like_probabilities(z):
             warnings.warn(
