@@ -559,6 +559,36 @@ def open_notebook(page: Page, server: JupyterServer, path: str | os.PathLike[str
     return time.monotonic() - t0
 
 
+_TAB_SHOWN_JS = """(title) => {
+  const tab = Array.from(document.querySelectorAll('.lm-DockPanel-tabBar .lm-TabBar-tab'))
+    .find((t) => (t.textContent || '').includes(title));
+  if (!tab || !tab.classList.contains('lm-mod-current')) return false;
+  const panel = tab.dataset.id ? document.getElementById(tab.dataset.id) : null;
+  return !!panel && !panel.classList.contains('lm-mod-hidden') && panel.offsetParent !== null;
+}"""
+
+
+def activate_main_tab(page: Page, title: str, *, timeout_ms: int = PAGE_TIMEOUT_MS) -> None:
+    """Bring the main-area tab ``title`` (a document's name) to the front and wait until its panel is shown.
+
+    While JupyterLab restores its layout after a reload it may bring another document back to the front
+    after a click: the click is repeated until the tab stays current (each try waits on the condition).
+    """
+    from playwright.sync_api import TimeoutError as PlaywrightTimeoutError
+
+    tab = page.locator(".lm-DockPanel-tabBar .lm-TabBar-tab", has_text=title).first
+    deadline = time.monotonic() + timeout_ms / 1000
+    while True:
+        tab.click(timeout=5_000)
+        try:
+            page.wait_for_function(_TAB_SHOWN_JS, arg=title, timeout=2_000, polling=50)
+        except PlaywrightTimeoutError:
+            if time.monotonic() > deadline:
+                raise
+            continue
+        return
+
+
 def _notebook(page: Page) -> Locator:
     return page.locator(".jp-NotebookPanel:not(.lm-mod-hidden) .jp-Notebook").first
 

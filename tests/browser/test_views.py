@@ -24,6 +24,7 @@ import pytest
 from .harness import (
     ARTIFACTS_DIR,
     REPO_ROOT,
+    activate_main_tab,
     cell,
     open_notebook,
     read_cell_text,
@@ -302,12 +303,14 @@ def test_no_console_errors_after_a_reload_with_hidden_tabs(
         page.locator(".lm-TabBar-tab", has_text="other.ipynb").first.wait_for()
     page.reload(wait_until="domcontentloaded")
     if hidden == "notebook tab":
-        tab = page.locator(".lm-TabBar-tab", has_text=path.name).first
-        tab.wait_for()
+        page.locator(".lm-TabBar-tab", has_text=path.name).first.wait_for()
         page.wait_for_function(
             "() => document.querySelectorAll('.logitscope-dashboard').length > 0", timeout=120_000
         )  # views built while hidden
-        tab.click()
+        # the reload restores the layout (the dashboard's notebook first), then opens and brings to the front
+        # the URL's notebook: wait for that before bringing the dashboard's notebook back
+        activate_main_tab(page, "other.ipynb")
+        activate_main_tab(page, path.name)
         ready = cell(page, 0).locator(".logitscope-threshold .bqplot").first
         ready.wait_for(state="attached", timeout=120_000)
         ready.scroll_into_view_if_needed()
