@@ -356,6 +356,8 @@ def test_hostile_names_show_as_text_and_never_run(jupyter_server, notebook_dir, 
         arg=0,
     )
     out = cell(page, 0).locator(".jp-Cell-outputArea").first
+    # the pair buttons are named by a later message than the selection bar's: wait for the names
+    out.locator(".logitscope-confusion button", has_text=short_label(XSS)).first.wait_for(state="attached")
     found = out.evaluate(
         """(root, xss) => ({
              ticks: Array.from(root.querySelectorAll('.logitscope-confusion .tick text')).map((t) => t.textContent),
