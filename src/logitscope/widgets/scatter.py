@@ -198,6 +198,33 @@ class PointRaster:
         out[3] = a
         return out
 
+    def window_layer(
+        self, pixels: np.ndarray, groups: np.ndarray, colors: list[str], window: tuple[int, int, int, int]
+    ) -> np.ndarray:
+        """:meth:`layer` cut to ``window`` (columns ``c0:c1``, rows ``r0:r1``), painting only that part.
+
+        Equal to ``layer(...)[:, r0:r1, c0:c1]`` when every point lies at least the disc radius
+        inside the window (or the window reaches the image's edge there): a brush's points fill a
+        small part of the image, and painting that part alone is what makes a brush quick.
+
+        Examples
+        --------
+        >>> r = PointRaster(8, 6, (0.0, 1.0), (0.0, 1.0))
+        >>> px = r.pixels(np.array([0.3, 0.5]), np.array([0.5, 0.4]))
+        >>> g = np.array([0, 1])
+        >>> full = r.layer(px, g, ["#000000", "#ff0000"])
+        >>> bool(np.allclose(r.window_layer(px, g, ["#000000", "#ff0000"], (0, 6, 0, 6)), full[:, 0:6, 0:6]))
+        True
+        """
+        c0, c1, r0, r1 = window
+        sub = PointRaster.__new__(PointRaster)
+        sub.width, sub.height = c1 - c0, r1 - r0
+        sub.x_range, sub.y_range = self.x_range, self.y_range
+        sub.offsets, sub.pad, sub.depth = self.offsets, self.pad, self.depth
+        keep = pixels >= 0
+        py, px = np.divmod(pixels[keep], self.width)
+        return sub.layer((py - r0) * sub.width + (px - c0), groups[keep], colors)
+
     def _alpha(self, counts: np.ndarray, strength: float) -> np.ndarray:
         """Alpha ``(1 - exp(-c / depth)) * strength`` of each pixel from its spread point count ``c``."""
         spread = self._spread(counts)
@@ -491,14 +518,14 @@ class ScoreScatter(LinkedView, widgets.VBox):
                     w.close()
         rows = self.state.rows
         w, h = self.resolution
-        if rows.size == 0:
-            self._top = np.zeros_like(self._top)
-            window = (0, 1, 0, 1)
-        else:
-            self._top = self.raster.layer(self._pixels[rows], self._groups[rows], self._palette)
-            # send only the part of the image the selection covers (a brush covers a small part)
+        self._top = np.zeros_like(self._top)
+        window = (0, 1, 0, 1)
+        if rows.size:
+            # paint and send only the part of the image the selection covers (a brush covers a small part)
             px = self._pixels[rows]
-            px = px[px >= 0]
+            groups = self._groups[rows]
+            inside = px >= 0
+            px, groups = px[inside], groups[inside]
             pad = self.raster.pad + 1
             if px.size:
                 py, pxx = np.divmod(px, w)
@@ -508,8 +535,8 @@ class ScoreScatter(LinkedView, widgets.VBox):
                     max(int(py.min()) - pad, 0),
                     min(int(py.max()) + pad + 1, h),
                 )
-            else:
-                window = (0, 1, 0, 1)
+                c0, c1, r0, r1 = window
+                self._top[:, r0:r1, c0:c1] = self.raster.window_layer(px, groups, self._palette, window)
         c0, c1, r0, r1 = window
         (x0, x1), (y0, y1) = self.raster.x_range, self.raster.y_range
         self._turn = 1 - self._turn
