@@ -113,11 +113,9 @@ def test_scatter_box_selects_over_all_rows(parcels):
     assert min(_alpha_at(view, r) for r in range(0, parcels.n_samples, 97)) >= int(one) - 1
 
     # the browser brush sends only its extents; Python computes the rows over all 5,000
-    view._brush.brushing = True
-    view._brush.selected_x = np.array([0.3, 0.7])
-    view._brush.selected_y = np.array([0.5, 2.0])
-    assert view.state.rows.size == 0  # nothing happens while the mouse is still down
-    view._brush.brushing = False
+    assert view.state.rows.size == 0 and view.brush_box is None
+    view._brush.box = [0.7, 0.3, 0.5, 2.0]  # what the browser sends on release (the brush drags right to left)
+    assert view.brush_box == ((0.3, 0.7), (0.5, 2.0))
     expected = np.flatnonzero((conf >= 0.3) & (conf <= 0.7) & (ent >= 0.5) & (ent <= 2.0))
     assert 0 < expected.size < parcels.n_samples
     np.testing.assert_array_equal(view.state.rows, expected)
@@ -189,7 +187,7 @@ def test_scatter_paints_only_the_brushed_part_and_draws_what_a_full_painting_doe
 def test_scatter_lasso_rows_come_from_the_all_rows_probe(parcels):
     view = ScoreScatter(parcels)
     view.mode = "lasso"
-    assert view.figure.interaction is view._lasso
+    assert view.figure.interaction is view._lasso and not view._brush.active  # the mouse goes to the lasso
     assert len(view._probe.x) == parcels.n_samples  # the invisible line carries every row
     np.testing.assert_allclose(view._probe.x, _confidence(parcels), rtol=1e-6)
     assert view._probe.visible is False
@@ -200,7 +198,7 @@ def test_scatter_lasso_rows_come_from_the_all_rows_probe(parcels):
     view._probe.selected = None  # lasso deleted in the browser
     assert view.state.rows.size == 0
     view.mode = "rectangle"
-    assert view.figure.interaction is view._brush
+    assert view.figure.interaction is None and view._brush.active  # the rectangle brush takes the mouse again
 
 
 def test_scatter_axes_and_colours(parcels):
@@ -283,11 +281,11 @@ def test_selection_from_another_view_is_highlighted_without_feedback(parcels):
     assert rec.calls == ["histogram", "score scatter"]
     assert state.origin_name == "score scatter"
     # the same for the scatter's brush after another view selects
-    scatter._brush.selected_x = np.array([0.5, 1.0])
-    scatter._brush.selected_y = np.array([0.0, 5.0])
+    scatter._brush.box = [0.5, 1.0, 0.0, 5.0]  # the rectangle the browser shows
     n_calls = len(rec.calls)
     hist.select_interval(0.6, 0.9)
-    scatter._brush.selected_x = None  # reset seen by the browser
+    assert scatter.brush_box is None  # another view selected: the rectangle is removed
+    scatter._brush.box = []  # the browser's empty box after that
     assert len(rec.calls) == n_calls + 1 and state.origin_name == "histogram"
 
 

@@ -51,10 +51,10 @@ p = special.softmax(np.asarray(frame.logits, dtype=np.float64), axis=1)
 conf = p.max(axis=1)
 ent = -special.xlogy(p, p).sum(axis=1)
 y, pred = np.asarray(frame.labels), p.argmax(axis=1)
-b = dash.scatter._brush
+box = dash.scatter.brush_box  # the extents the browser's rectangle sent
 inside = None
-if b.selected_x is not None and len(b.selected_x) == 2:
-    (x0, x1), (y0, y1) = sorted(b.selected_x), sorted(b.selected_y)
+if box is not None:
+    (x0, x1), (y0, y1) = box
     inside = np.flatnonzero((conf >= x0) & (conf <= x1) & (ent >= y0) & (ent <= y1)).tolist()
 rows = dash.selected
 print(json.dumps({

@@ -8,7 +8,8 @@ stays smooth at 100,000 rows and more (an SVG scatter of 10,000 points takes
 about 100 ms to repaint on a headless chromium without GPU; measured with
 ``bench/bench_dashboard.py``).
 
-Every selection is computed in Python over all rows: a rectangle brush sends
+Every selection is computed in Python over all rows: a rectangle brush (drawn in the
+browser by :class:`~logitscope.widgets.brush.RectangleBrush`) sends
 back its two extents; the lasso is tested in the browser against an
 invisible line mark through every row, which sends back the indices inside.
 The selection is drawn as opaque points over the other points faded.
@@ -34,6 +35,7 @@ from ..frame import LogitFrame
 from ..text import shorten
 from ..ticks import nice_ticks
 from .base import LinkedView
+from .brush import RectangleBrush
 from .state import SharedState
 from .style import (
     CLASS_COLORS,
@@ -366,20 +368,20 @@ class ScoreScatter(LinkedView, widgets.VBox):
         self._ay = bq.Axis(
             scale=self._sy, label=y, side="left", grid_lines="none", tick_format="~g", label_offset="42px"
         )
-        self._brush = QuietBrush(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
-        self._brush.observe(self._on_brush, ["brushing", "selected_x", "selected_y"])
         self._probe: bq.Lines | None = None
         self._lasso: LassoSelector | None = None
         self.figure = bq.Figure(
             display_toolbar=False,
             marks=[self._mark, self._top_mark, self._focus_mark],
             axes=[self._ax, self._ay],
-            interaction=self._brush,
             fig_margin={"top": 10, "bottom": 48, "left": 58, "right": 12},
             padding_x=0.0,
             padding_y=0.0,
             layout=figure_layout("100%", "360px", "320px"),
         )
+        # the rectangle brush is drawn in the browser and sends its extents once, on release (js/brush.js)
+        self._brush = RectangleBrush(self.figure, layout=widgets.Layout(width="100%", min_width="320px"))
+        self._brush.observe(self._on_brush, "box")
 
         menu = {"options": score_options(self.scores_offered), "layout": {"width": "190px"}}
         self._x_menu = widgets.Dropdown(value=x, description="x", **menu)
@@ -398,7 +400,7 @@ class ScoreScatter(LinkedView, widgets.VBox):
             [self._x_menu, self._y_menu, self._c_menu, self._mode_buttons],
             layout=widgets.Layout(flex_flow="row wrap", align_items="center"),
         )
-        widgets.VBox.__init__(self, children=[controls, self._key, self.figure], **kwargs)
+        widgets.VBox.__init__(self, children=[controls, self._key, self._brush], **kwargs)
         self.add_class("logitscope-scatter")
 
         self.x_score, self.y_score, self.color_by = x, y, color
@@ -445,6 +447,8 @@ class ScoreScatter(LinkedView, widgets.VBox):
         self.raster = PointRaster(w, h, (x0, x1), (y0, y1), radius2=self._radius2, depth=self._depth)
         self._pixels = self.raster.pixels(x, y)
         self._base = None
+        with self._brush.hold_sync():
+            self._brush.x_range, self._brush.y_range = [x0, x1], [y0, y1]
         with self.figure.hold_sync():
             self._sx.min, self._sx.max = x0, x1
             self._sy.min, self._sy.max = y0, y1
@@ -583,13 +587,16 @@ class ScoreScatter(LinkedView, widgets.VBox):
             self._clear_tools()
         self._draw()
 
+    @property
+    def brush_box(self) -> tuple[tuple[float, float], tuple[float, float]] | None:
+        """``((x0, x1), (y0, y1))`` of the rectangle brush drawn on the plot, each sorted; None without one."""
+        return self._brush.extents
+
     def _clear_brush(self) -> None:
-        """Remove the brush rectangle (bqplot draws it from selected_x / selected_y; its reset does nothing)."""
+        """Remove the brush rectangle."""
         self._last_box = None
-        if self._brush.selected_x is not None or self._brush.selected_y is not None:
-            with self._brush.hold_sync():
-                self._brush.selected_x = None
-                self._brush.selected_y = None
+        if self._brush.box:
+            self._brush.box = []
 
     def _clear_tools(self) -> None:
         """Remove a stale brush rectangle or lasso when another view made the selection."""
@@ -625,18 +632,14 @@ class ScoreScatter(LinkedView, widgets.VBox):
         return self.select(rows)
 
     def _on_brush(self, change: Any) -> None:
-        b = self._brush
-        if b.brushing:
-            return
-        sx, sy = b.selected_x, b.selected_y
-        if sx is None or sy is None or len(sx) < 2 or len(sy) < 2:
+        extents = self._brush.extents
+        if extents is None:
             # the brush was removed: clear only a selection this view made
             if self._last_box is not None and self.owns_selection:
                 self._last_box = None
                 self.clear_selection()
             return
-        x0, x1 = sorted((float(sx[0]), float(sx[1])))
-        y0, y1 = sorted((float(sy[0]), float(sy[1])))
+        (x0, x1), (y0, y1) = extents
         box = (x0, x1, y0, y1)
         if box == self._last_box:
             return
@@ -682,10 +685,12 @@ class ScoreScatter(LinkedView, widgets.VBox):
             self._clear_brush()
             self._last_box = None
             self.figure.interaction = self._ensure_lasso()
+            self._brush.active = False
         else:
             if self._lasso is not None:
                 self._lasso.reset()
-            self.figure.interaction = self._brush
+            self.figure.interaction = None
+            self._brush.active = True
 
     def _on_axes(self, change: Any) -> None:
         self._clear_brush()
