@@ -45,14 +45,30 @@ function render({ model, el }) {
   let gone = false;
   let drag = null;
 
-  // The plot area in this element's pixels (bqplot's background rectangle of the plot).
+  // The plot area in this element's pixels (bqplot's background rectangle of the plot: where a drag may go),
+  // and where x_range and y_range lie (the figure's first image mark spans them; bqplot draws the scales'
+  // range a few pixels inside the background when a mark asks for room, so the background alone is not it).
   function area() {
     const bg = el.querySelector(".plotarea_background");
     if (!bg) return null;
     const a = bg.getBoundingClientRect();
     const b = el.getBoundingClientRect();
     if (a.width <= 0 || a.height <= 0) return null;
-    return { left: a.left - b.left, top: a.top - b.top, width: a.width, height: a.height, ox: b.left, oy: b.top };
+    const image = el.querySelector("image");
+    const d = image ? image.getBoundingClientRect() : a;
+    if (d.width <= 0 || d.height <= 0) return null;
+    return {
+      left: a.left - b.left,
+      top: a.top - b.top,
+      width: a.width,
+      height: a.height,
+      dl: d.left - b.left,
+      dt: d.top - b.top,
+      dw: d.width,
+      dh: d.height,
+      ox: b.left,
+      oy: b.top,
+    };
   }
 
   function place(p, c0, c1, r0, r1) {
@@ -76,8 +92,8 @@ function render({ model, el }) {
     }
     const [x0, x1] = model.get("x_range");
     const [y0, y1] = model.get("y_range");
-    const col = (x) => p.left + ((x - x0) / (x1 - x0)) * p.width;
-    const row = (y) => p.top + ((y1 - y) / (y1 - y0)) * p.height;
+    const col = (x) => p.dl + ((x - x0) / (x1 - x0)) * p.dw;
+    const row = (y) => p.dt + ((y1 - y) / (y1 - y0)) * p.dh;
     place(p, col(box[0]), col(box[1]), row(box[2]), row(box[3]));
   }
 
@@ -114,8 +130,8 @@ function render({ model, el }) {
     if (d.moved) {
       const [x0, x1] = model.get("x_range");
       const [y0, y1] = model.get("y_range");
-      const x = (c) => x0 + ((c - d.p.left) / d.p.width) * (x1 - x0);
-      const y = (r) => y1 - ((r - d.p.top) / d.p.height) * (y1 - y0);
+      const x = (c) => x0 + ((c - d.p.dl) / d.p.dw) * (x1 - x0);
+      const y = (r) => y1 - ((r - d.p.dt) / d.p.dh) * (y1 - y0);
       const xs = [x(d.c0), x(d.c1)].sort((a, b) => a - b);
       const ys = [y(d.r0), y(d.r1)].sort((a, b) => a - b);
       box = [xs[0], xs[1], ys[0], ys[1]];

@@ -58,7 +58,7 @@ if box is not None:
     inside = np.flatnonzero((conf >= x0) & (conf <= x1) & (ent >= y0) & (ent <= y1)).tolist()
 rows = dash.selected
 print(json.dumps({
-    "selected": rows.tolist(), "origin": dash.state.origin_name, "inside": inside,
+    "selected": rows.tolist(), "origin": dash.state.origin_name, "inside": inside, "box": box,
     "gallery": int(dash.gallery.n_shown), "sk_confusion": confusion_matrix(y, pred).tolist(),
     "labels": y[rows].tolist(), "pred": pred[rows].tolist(),
     "pairs": [[q.true, q.other, q.count] for q in dash.confusion.pairs],
@@ -128,15 +128,22 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
     assert box is not None and box["width"] > 250 and box["height"] > 200
     scope = _gallery_scope(page, 0)
     x, y, w, h = box["x"], box["y"], box["width"], box["height"]
-    _drag(page, _line(x + 0.05 * w, y + 0.2 * h, x + 0.6 * w, y + 0.9 * h))
+    (c0, r0), (c1, r1) = (x + 0.05 * w, y + 0.2 * h), (x + 0.6 * w, y + 0.9 * h)
+    _drag(page, _line(c0, r0, c1, r1))
     page.wait_for_function(
         "([i, old]) => { const e = document.querySelectorAll('.jp-Cell')[i].querySelector('.lsg-head .lsg-scope');"
         " return e && e.textContent.trim() !== old; }",
         arg=[0, scope],
     )
     screenshot(page, "dashboard-lab-brushed")
+    # screen position of the data (before the next cell scrolls the page), through the axes' tick marks
+    (ax_, bx_), (ay_, by_) = _axis_maps(cell(page, 0).locator(".logitscope-scatter").first)
     st = _state(page, 1)
     assert st["origin"] == "score scatter"
+    # the brush sent the extents of the dragged rectangle: its corners, read on the axes, within a pixel
+    (bx0, bx1), (by0, by1) = st["box"]
+    assert sorted([(c0 - bx_) / ax_, (c1 - bx_) / ax_]) == pytest.approx([bx0, bx1], abs=1.0 / abs(ax_))
+    assert sorted([(r0 - by_) / ay_, (r1 - by_) / ay_]) == pytest.approx([by0, by1], abs=1.0 / abs(ay_))
     assert len(st["selected"]) > 20
     # the rows Python selected are exactly those inside the brush extents (scipy scores)
     assert st["selected"] == st["inside"]

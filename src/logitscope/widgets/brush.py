@@ -28,8 +28,9 @@ __all__ = ["RectangleBrush"]
 class RectangleBrush(anywidget.AnyWidget):
     """A rectangle brush drawn over ``figure``; ``box`` holds its extents in data units (``[]``: none).
 
-    ``x_range`` and ``y_range`` are the data extents of the figure's plot area
-    (its scales' ``min`` and ``max``, with no padding). Setting ``box`` from
+    ``x_range`` and ``y_range`` are the data extents the figure's first image
+    mark spans (its ``x`` and ``y``; the scatter's painted points): the browser
+    maps pixels to data through that mark's box on the page. Setting ``box`` from
     Python draws that rectangle (``[]`` removes it); the browser sets it when
     the mouse is released.
 
