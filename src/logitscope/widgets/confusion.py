@@ -430,8 +430,10 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self._grid.selected = np.stack([cells // n, cells % n], axis=1).astype(np.int32)
         self._draw_numbers()
         held = "" if n <= MAX_NUMBERED else " (hover a cell for its numbers)"
+        # no stylesheet of its own: the pair panel's heading carries it for the whole view (a <style>
+        # element put in the page on every selection makes the browser restyle the whole page)
         self._note.value = (
-            css("views") + f"<span class='ls-note'>{rows.size:,} selected rows fall in {cells.size:,} cells, "
+            f"<span class='ls-note'>{rows.size:,} selected rows fall in {cells.size:,} cells, "
             f"outlined{held}{self.selected_by()}</span>"
         )
 
