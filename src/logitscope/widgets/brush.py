@@ -5,7 +5,10 @@ while the button is down; the widget manager keeps one message of a widget
 in flight at a time, so the release, the one message that selects, waits in
 the browser until the kernel has answered the move before it. This brush
 draws its rectangle in the browser alone and sends ``box`` once, when the
-mouse is released (an empty box for a click: the brush removed). The figure
+mouse is released (an empty box for a click: the brush removed). Given the
+picture of every point (``points``), the browser paints the brushed selection
+at once (the points inside the box at full strength, the rest at ``faded``)
+until the view's own picture, computed in Python over every row, arrives. The figure
 is drawn inside the brush widget, with a layer over it that takes the mouse
 while ``active`` and lets it through to the figure's own interaction (a lasso)
 otherwise.
@@ -56,9 +59,11 @@ class RectangleBrush(anywidget.AnyWidget):
     box = traitlets.List(traitlets.Float(), [], help="x0, x1, y0, y1 in data units, or []").tag(
         sync=True, echo_update=False
     )
-    active = traitlets.Bool(True, help="the layer takes the mouse (False: the figure's own interaction)").tag(
-        sync=True
-    )
+    active = traitlets.Bool(True, help="the layer takes the mouse (False: the figure's own interaction)").tag(sync=True)
+    points = traitlets.Instance(
+        widgets.Image, allow_none=True, help="every point drawn at full strength, over x_range x y_range"
+    ).tag(sync=True, **widgets.widget_serialization)
+    faded = traitlets.Float(0.5, help="opacity of the points outside a selection").tag(sync=True)
 
     def __init__(self, figure: bq.Figure, **kwargs: Any) -> None:
         super().__init__(child=figure, **kwargs)

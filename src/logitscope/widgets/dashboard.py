@@ -220,9 +220,7 @@ class Dashboard(LinkedView, widgets.VBox):
         self._n_updates = 1
         self._on_screen = 0  # the update whose frame the views show
         self._history_view = EpochHistoryView([], on_pick=self.show_update, kept=lambda i: i in self._frames)
-        self.history_tab = widgets.VBox(
-            [self._history_view, self.forgetting_list], layout=widgets.Layout(width="100%")
-        )
+        self.history_tab = widgets.VBox([self._history_view, self.forgetting_list], layout=widgets.Layout(width="100%"))
         # Each tab holds its content only while it is shown: a bqplot figure drawn inside a hidden tab
         # (also after a page reload) has no size and fills the console with negative-size errors.
         self._tab_contents: list[widgets.Widget] = [self.explore, self._calibrate_box, self.history_tab]

@@ -380,7 +380,7 @@ class ScoreScatter(LinkedView, widgets.VBox):
             layout=figure_layout("100%", "360px", "320px"),
         )
         # the rectangle brush is drawn in the browser and sends its extents once, on release (js/brush.js)
-        self._brush = RectangleBrush(self.figure, layout=widgets.Layout(width="100%", min_width="320px"))
+        self._brush = RectangleBrush(self.figure, faded=FADED, layout=widgets.Layout(width="100%", min_width="320px"))
         self._brush.observe(self._on_brush, "box")
 
         menu = {"options": score_options(self.scores_offered), "layout": {"width": "190px"}}
@@ -517,6 +517,7 @@ class ScoreScatter(LinkedView, widgets.VBox):
             old = self._base_widgets
             self._base_widgets = (widgets.Image(value=full, format="png"), widgets.Image(value=faded, format="png"))
             self._mark.image = self._base_widgets[0]
+            self._brush.points = self._base_widgets[0]  # the browser paints a brushed selection from it at once
             if old is not None:
                 for w in old:
                     w.close()
