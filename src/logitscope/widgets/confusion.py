@@ -191,6 +191,8 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             layout={"width": "190px"},
         )  # fmt: skip
         self._pair_box = widgets.VBox(layout={"width": "100%"})
+        self._pair_buttons: list[widgets.Button] = []
+        self._no_pairs = widgets.Label("no sample is read as another class")
         self._note = widgets.HTML()
         pair_panel = widgets.VBox(
             [widgets.HTML(css("views") + "<div class='ls-subhead'>Where the model mixes classes up</div>"),
@@ -396,8 +398,14 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
     def _on_k(self, change: Any = None) -> None:
         self.pairs = list(self.summary_at(self.k).pairs)
         names = self.frame.classes
-        buttons = []
-        for pair in self.pairs:
+        # the buttons are made once and relabelled (a new frame or k): each new button costs the browser
+        # three new widget models, and the old ones would live on unseen
+        while len(self._pair_buttons) < len(self.pairs):
+            btn = widgets.Button(layout={"width": "100%"})
+            btn.add_class("logitscope-pair")
+            btn.on_click(lambda _b, i=len(self._pair_buttons): self._select_listed_pair(i))
+            self._pair_buttons.append(btn)
+        for pair, btn in zip(self.pairs, self._pair_buttons, strict=False):
             a, b = names[pair.true], names[pair.other]
             if self.k == 1:
                 text = f"{short_label(a, 18)} read as {short_label(b, 18)} ({pair.count:,})"
@@ -405,13 +413,19 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             else:
                 text = f"{short_label(a, 18)}: {short_label(b, 18)} in its top {self.k} ({pair.count:,})"
                 tip = f"{a} with {b} among its top {self.k}: {pair.count:,} samples, {pair.rate:.1%} of the true class"
-            btn = widgets.Button(description=text, tooltip=tip, layout={"width": "100%"})
-            btn.add_class("logitscope-pair")
-            btn.on_click(lambda _b, p=pair: self.select_pair(p.true, p.other))
-            buttons.append(btn)
-        if not buttons:
-            buttons = [widgets.Label("no sample is read as another class")]
-        self._pair_box.children = buttons
+            with btn.hold_sync():
+                btn.description, btn.tooltip = text, tip
+        shown: list[widgets.Widget] = list(self._pair_buttons[: len(self.pairs)])
+        if not shown:
+            shown = [self._no_pairs]
+        if list(self._pair_box.children) != shown:
+            self._pair_box.children = shown
+
+    def _select_listed_pair(self, i: int) -> None:
+        """What a click on the ``i``-th pair button does: select that pair's samples."""
+        if i < len(self.pairs):
+            pair = self.pairs[i]
+            self.select_pair(pair.true, pair.other)
 
     # ------------------------------------------------------------------ selection in
 
