@@ -571,11 +571,13 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
     def on_frame(self) -> None:
         if not self._ready or not self.frame.has_labels:
             return
+        shown = list(self._keys)
         self._compute_structure()
-        with self._grid.hold_sync():
-            keys = np.asarray(self._keys, dtype=object)
-            self._grid.row, self._grid.column = keys, keys
-        self._place_ticks()
+        if list(self._keys) != shown:  # other classes drawn on their own: new rows, columns and ticks
+            with self._grid.hold_sync():
+                keys = np.asarray(self._keys, dtype=object)
+                self._grid.row, self._grid.column = keys, keys
+            self._place_ticks()
         self._reset_click_buttons()
         self._recolor()
         self._on_k()
