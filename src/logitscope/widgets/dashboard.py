@@ -392,8 +392,11 @@ class Dashboard(LinkedView, widgets.VBox):
         The selection, the focused sample and the relabel marks follow by sample id
         (rows whose id the new frame lacks drop out of the selection); the
         temperature stays as it is unless ``temperature`` is given. The new frame
-        is added to :attr:`history`. Callable from inside a running training loop:
-        the views update while the cell runs.
+        is added to :attr:`history`; its record (a temperature fit among others) is
+        made when the history is needed (the History tab in sight, :attr:`history`
+        read, or the frame about to leave the kept ones), so an update redraws the
+        views on screen and nothing else. Callable from inside a running training
+        loop: the views update while the cell runs.
 
         Parameters
         ----------
