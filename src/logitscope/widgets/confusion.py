@@ -403,7 +403,8 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         while len(self._pair_buttons) < len(self.pairs):
             btn = widgets.Button(layout={"width": "100%"})
             btn.add_class("logitscope-pair")
-            btn.on_click(lambda _b, i=len(self._pair_buttons): self._select_listed_pair(i))
+            index = len(self._pair_buttons)
+            btn.on_click(lambda _b, i=index: self._select_listed_pair(i))
             self._pair_buttons.append(btn)
         for pair, btn in zip(self.pairs, self._pair_buttons, strict=False):
             a, b = names[pair.true], names[pair.other]
@@ -563,6 +564,11 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self.select(rows)
 
     # ------------------------------------------------------------------ hooks of the linked view
+
+    def held_widgets(self) -> list[Any]:
+        if not self._ready:
+            return []
+        return [self._grid, self._numbers, self._selected_numbers, self._note, self._row_button, self._col_button]
 
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         if self._ready:

@@ -553,6 +553,9 @@ class Dashboard(LinkedView, widgets.VBox):
 
     # ------------------------------------------------------------------ hooks of the linked view
 
+    def held_widgets(self) -> list[Any]:
+        return [self._selection, self._clear]
+
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         self._on_rows()
 

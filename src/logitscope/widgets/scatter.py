@@ -703,6 +703,10 @@ class ScoreScatter(LinkedView, widgets.VBox):
 
     # ------------------------------------------------------------------ hooks of the linked view
 
+    def held_widgets(self) -> list[Any]:
+        # a picture's own message before the mark that shows it (bqplot redraws on the mark's message)
+        return [*self._top_widgets, self._top_mark, self._mark, self._focus_mark, self._brush]
+
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         self._on_rows()
 
