@@ -168,3 +168,37 @@ def test_sweep_selection_curve_waits_while_its_tab_is_hidden(dash):
     assert sweep.selection_curve.y[10] == pytest.approx(ref, rel=1e-7)
     dash.tabs.selected_index = 0
     assert not sweep.live
+
+
+def test_a_brush_sends_each_widget_one_message_after_every_view_followed(tmp_path) -> None:  # type: ignore[no-untyped-def]
+    """The messages of a selection leave together, one per widget, each picture before the mark showing it."""
+    import ipywidgets as widgets
+
+    import logitscope
+
+    frame = logitscope.load_demo("mailroom")
+    dash = logitscope.explore(frame, relabel_path=tmp_path / "m.json")
+    sent: list[tuple[object, dict]] = []
+    followed: list[str] = []
+    send = widgets.Widget._send
+
+    def record(self, msg, buffers=None):  # type: ignore[no-untyped-def]
+        sent.append((self, dict(msg.get("state") or {}), len(followed)))
+        return send(self, msg, buffers)
+
+    for view in dash.views:  # note when each view has followed the selection
+        view.state.observe(lambda change, v=view: followed.append(v.kind), "rows")
+    widgets.Widget._send = record
+    try:
+        dash.scatter._brush.box = [0.3, 0.6, 0.5, 2.0]  # what the browser sends on release
+    finally:
+        widgets.Widget._send = send
+    views_sent = [(w, s, n) for w, s, n in sent if w is not dash.scatter._brush]  # the brush's own box first
+    assert dash.selected.size > 0 and len(views_sent) >= 6
+    assert all(n == len(followed) for _, _, n in views_sent)  # nothing left before every view had followed
+    widgets_sent = [w for w, _, _ in views_sent]
+    assert len(widgets_sent) == len(set(map(id, widgets_sent)))  # one message per widget
+    # the selection's picture leaves before the mark that shows it (bqplot redraws on the mark's message)
+    mark = dash.scatter._top_mark
+    picture = mark.image
+    assert widgets_sent.index(picture) < widgets_sent.index(mark)

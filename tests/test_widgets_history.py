@@ -141,3 +141,52 @@ def test_the_first_record_waits_for_the_history_and_equals_an_eager_one(mailroom
     # the header's accuracy is the record's, and scikit-learn's (sklearn.metrics.accuracy_score)
     ref = accuracy_score(mailroom.labels, np.argmax(mailroom.logits, axis=1))
     assert row["accuracy"] == pytest.approx(ref) and f"accuracy {ref:.1%}" in dash._summary.value
+
+
+def test_update_relabels_the_pair_buttons_and_their_clicks_follow(mailroom: LogitFrame, tmp_path: Path) -> None:
+    from sklearn.metrics import confusion_matrix
+
+    dash = Dashboard(mailroom, relabel_path=tmp_path / "m.json")
+    before = list(dash.confusion._pair_box.children)
+    nxt = _epoch(mailroom, 2.0, seed=5)
+    dash.update(nxt)
+    after = list(dash.confusion._pair_box.children)
+    assert len(after) == len(before) and all(a is b for a, b in zip(before, after, strict=True))  # no new widgets
+    # the first button names the new frame's largest confusion (scikit-learn's confusion_matrix)
+    cm = confusion_matrix(nxt.labels, np.argmax(nxt.logits, axis=1), labels=range(nxt.n_classes))
+    np.fill_diagonal(cm, 0)
+    pair = dash.confusion.pairs[0]
+    assert pair.count == cm.max() == cm[pair.true, pair.other]
+    assert f"({pair.count:,})" in after[0].description
+    after[0].click()  # what a click in the browser does
+    assert dash.selected.size == cm[pair.true, pair.other] and dash.state.origin_name == "confusion matrix"
+
+
+def test_an_update_out_of_the_history_tab_defers_the_record_and_keeps_its_time(
+    mailroom: LogitFrame, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    import itertools
+
+    from logitscope.findings import epoch_record
+    from logitscope.widgets import dashboard as dashboard_module
+
+    clock = itertools.count()  # each reading of the clock a new time: a record shows when its frame was shown
+    monkeypatch.setattr(dashboard_module, "_now", lambda: f"2026-01-01T00:00:{next(clock):02d}+00:00")
+    dash = Dashboard(mailroom, relabel_path=tmp_path / "m.json", keep_frames=3)
+    frames = [_epoch(mailroom, s, seed=i) for i, s in enumerate((0.7, 1.4, 2.0, 2.5))]
+    dash.update(frames[0], "epoch 2")
+    assert dash.pending_records == 2  # the first frame's and this one's: the History tab is out of sight
+    for i, f in enumerate(frames[1:]):
+        dash.update(f, f"epoch {i + 3}")
+    # four frames shown beyond the first, three kept: the records of the frames let go are made, the rest wait
+    assert dash.pending_records == 3
+    h = dash.history  # reading the history makes every record
+    assert dash.pending_records == 0 and h["update"].tolist() == [0, 1, 2, 3, 4]
+    assert h["shown_at"].tolist() == [f"2026-01-01T00:00:{i:02d}+00:00" for i in range(5)]
+    for row, f in zip(h.itertuples(), [mailroom, *frames], strict=True):
+        eager = epoch_record(f, row.update, row.label, dash.state.binning)
+        assert row.fitted_temperature == eager.fitted_temperature and row.nll == eager.nll  # the same numbers
+    assert dash.history_view.current == 4  # the frame on screen
+    dash.tabs.selected_index = 2
+    dash.update(mailroom, "again")  # with the History tab in sight the record is made at once
+    assert dash.pending_records == 0 and len(dash.history_view.records) == 6

@@ -113,11 +113,9 @@ def test_scatter_box_selects_over_all_rows(parcels):
     assert min(_alpha_at(view, r) for r in range(0, parcels.n_samples, 97)) >= int(one) - 1
 
     # the browser brush sends only its extents; Python computes the rows over all 5,000
-    view._brush.brushing = True
-    view._brush.selected_x = np.array([0.3, 0.7])
-    view._brush.selected_y = np.array([0.5, 2.0])
-    assert view.state.rows.size == 0  # nothing happens while the mouse is still down
-    view._brush.brushing = False
+    assert view.state.rows.size == 0 and view.brush_box is None
+    view._brush.box = [0.7, 0.3, 0.5, 2.0]  # what the browser sends on release (the brush drags right to left)
+    assert view.brush_box == ((0.3, 0.7), (0.5, 2.0))
     expected = np.flatnonzero((conf >= 0.3) & (conf <= 0.7) & (ent >= 0.5) & (ent <= 2.0))
     assert 0 < expected.size < parcels.n_samples
     np.testing.assert_array_equal(view.state.rows, expected)
@@ -129,10 +127,67 @@ def test_scatter_box_selects_over_all_rows(parcels):
     assert far and max(_alpha_at(view, r) for r in far[:200]) <= int(255 * FADED) + 1
 
 
+def _painted(view: ScoreScatter, rows: np.ndarray) -> np.ndarray:
+    """Premultiplied RGBA planes of ``rows`` painted as the scatter's docstring says, with scipy.
+
+    Each group's point counts spread over the disc (scipy.ndimage.correlate), alpha
+    ``1 - exp(-c / depth)`` per pixel, groups painted in order, each over the ones before.
+    """
+    r = view.raster
+    h, w = r.height, r.width
+    rad = r.pad
+    yy, xx = np.mgrid[-rad : rad + 1, -rad : rad + 1]
+    disc = (xx**2 + yy**2 <= view._radius2).astype(float)
+    px, groups = view._pixels[rows], np.asarray(view._groups)[rows]
+    out = np.zeros((4, h, w))
+    for g, color in enumerate(view._palette):
+        counts = np.bincount(px[groups == g], minlength=h * w).reshape(h, w).astype(float)
+        a = 1.0 - np.exp(-ndimage.correlate(counts, disc, mode="constant", cval=0.0) / r.depth)
+        rgb = [int(color[i : i + 2], 16) / 255.0 for i in (1, 3, 5)]
+        for c in range(3):
+            out[c] = out[c] * (1 - a) + a * rgb[c]
+        out[3] = out[3] * (1 - a) + a
+    return out
+
+
+def test_scatter_paints_only_the_brushed_part_and_draws_what_a_full_painting_does(parcels):
+    view = ScoreScatter(parcels, x="confidence", y="entropy")
+    rows = view.select_box((0.3, 0.6), (1.0, 2.0))
+    assert 0 < rows.size < parcels.n_samples
+    # the selected points' image sent to the browser covers their part of the plot only
+    w, h = view.resolution
+    assert view._top_mark.x[1] - view._top_mark.x[0] < 0.6 * (view._sx.max - view._sx.min)
+    assert len(view._top_mark.image.value) < len(view._base_widgets[0].value)
+    # what the plot shows equals the selected points painted over all points faded (scipy reference)
+    top, base = _painted(view, rows), _painted(view, np.arange(parcels.n_samples))
+    composite = top + base * (1.0 - top[3]) * FADED
+    alpha = view.image[..., 3].astype(float)
+    np.testing.assert_allclose(alpha, np.clip(composite[3] * 255 + 0.5, 0, 255).astype(int), atol=1)
+    # the class colours (more than three: each pixel takes the last point's colour): the part
+    # painted alone equals the same part of the whole image painted
+    view.color_by = "true class"
+    r = view.raster
+    px, g = view._pixels[rows], view._groups[rows]
+    window = (0, w, 0, h)
+    np.testing.assert_allclose(r.window_layer(px, g, view._palette, window), r.layer(px, g, view._palette))
+    py, pxx = np.divmod(px, w)
+    window = (
+        int(pxx.min()) - r.pad - 1,
+        int(pxx.max()) + r.pad + 2,
+        int(py.min()) - r.pad - 1,
+        int(py.max()) + r.pad + 2,
+    )
+    window = (max(window[0], 0), min(window[1], w), max(window[2], 0), min(window[3], h))
+    c0, c1, r0, r1 = window
+    np.testing.assert_allclose(
+        r.window_layer(px, g, view._palette, window), r.layer(px, g, view._palette)[:, r0:r1, c0:c1]
+    )
+
+
 def test_scatter_lasso_rows_come_from_the_all_rows_probe(parcels):
     view = ScoreScatter(parcels)
     view.mode = "lasso"
-    assert view.figure.interaction is view._lasso
+    assert view.figure.interaction is view._lasso and not view._brush.active  # the mouse goes to the lasso
     assert len(view._probe.x) == parcels.n_samples  # the invisible line carries every row
     np.testing.assert_allclose(view._probe.x, _confidence(parcels), rtol=1e-6)
     assert view._probe.visible is False
@@ -143,7 +198,7 @@ def test_scatter_lasso_rows_come_from_the_all_rows_probe(parcels):
     view._probe.selected = None  # lasso deleted in the browser
     assert view.state.rows.size == 0
     view.mode = "rectangle"
-    assert view.figure.interaction is view._brush
+    assert view.figure.interaction is None and view._brush.active  # the rectangle brush takes the mouse again
 
 
 def test_scatter_axes_and_colours(parcels):
@@ -226,11 +281,11 @@ def test_selection_from_another_view_is_highlighted_without_feedback(parcels):
     assert rec.calls == ["histogram", "score scatter"]
     assert state.origin_name == "score scatter"
     # the same for the scatter's brush after another view selects
-    scatter._brush.selected_x = np.array([0.5, 1.0])
-    scatter._brush.selected_y = np.array([0.0, 5.0])
+    scatter._brush.box = [0.5, 1.0, 0.0, 5.0]  # the rectangle the browser shows
     n_calls = len(rec.calls)
     hist.select_interval(0.6, 0.9)
-    scatter._brush.selected_x = None  # reset seen by the browser
+    assert scatter.brush_box is None  # another view selected: the rectangle is removed
+    scatter._brush.box = []  # the browser's empty box after that
     assert len(rec.calls) == n_calls + 1 and state.origin_name == "histogram"
 
 

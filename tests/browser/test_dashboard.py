@@ -51,14 +51,14 @@ p = special.softmax(np.asarray(frame.logits, dtype=np.float64), axis=1)
 conf = p.max(axis=1)
 ent = -special.xlogy(p, p).sum(axis=1)
 y, pred = np.asarray(frame.labels), p.argmax(axis=1)
-b = dash.scatter._brush
+box = dash.scatter.brush_box  # the extents the browser's rectangle sent
 inside = None
-if b.selected_x is not None and len(b.selected_x) == 2:
-    (x0, x1), (y0, y1) = sorted(b.selected_x), sorted(b.selected_y)
+if box is not None:
+    (x0, x1), (y0, y1) = box
     inside = np.flatnonzero((conf >= x0) & (conf <= x1) & (ent >= y0) & (ent <= y1)).tolist()
 rows = dash.selected
 print(json.dumps({
-    "selected": rows.tolist(), "origin": dash.state.origin_name, "inside": inside,
+    "selected": rows.tolist(), "origin": dash.state.origin_name, "inside": inside, "box": box,
     "gallery": int(dash.gallery.n_shown), "sk_confusion": confusion_matrix(y, pred).tolist(),
     "labels": y[rows].tolist(), "pred": pred[rows].tolist(),
     "pairs": [[q.true, q.other, q.count] for q in dash.confusion.pairs],
@@ -128,15 +128,22 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
     assert box is not None and box["width"] > 250 and box["height"] > 200
     scope = _gallery_scope(page, 0)
     x, y, w, h = box["x"], box["y"], box["width"], box["height"]
-    _drag(page, _line(x + 0.05 * w, y + 0.2 * h, x + 0.6 * w, y + 0.9 * h))
+    (c0, r0), (c1, r1) = (x + 0.05 * w, y + 0.2 * h), (x + 0.6 * w, y + 0.9 * h)
+    _drag(page, _line(c0, r0, c1, r1))
     page.wait_for_function(
         "([i, old]) => { const e = document.querySelectorAll('.jp-Cell')[i].querySelector('.lsg-head .lsg-scope');"
         " return e && e.textContent.trim() !== old; }",
         arg=[0, scope],
     )
     screenshot(page, "dashboard-lab-brushed")
+    # screen position of the data (before the next cell scrolls the page), through the axes' tick marks
+    (ax_, bx_), (ay_, by_) = _axis_maps(cell(page, 0).locator(".logitscope-scatter").first)
     st = _state(page, 1)
     assert st["origin"] == "score scatter"
+    # the brush sent the extents of the dragged rectangle: its corners, read on the axes, within a pixel
+    (bx0, bx1), (by0, by1) = st["box"]
+    assert sorted([(c0 - bx_) / ax_, (c1 - bx_) / ax_]) == pytest.approx([bx0, bx1], abs=1.0 / abs(ax_))
+    assert sorted([(r0 - by_) / ay_, (r1 - by_) / ay_]) == pytest.approx([by0, by1], abs=1.0 / abs(ay_))
     assert len(st["selected"]) > 20
     # the rows Python selected are exactly those inside the brush extents (scipy scores)
     assert st["selected"] == st["inside"]
@@ -169,6 +176,91 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
 
     assert browser_log.errors() == []
     assert browser_log.external_requests() == []
+
+
+BUSY_CELL = "import time\ntime.sleep(8)"
+# What the kernel drew for the brush: the rows inside its extents (scipy scores, as STATE_CELL) and the
+# picture the scatter shows, as PNG in base64, with where the brush lies in that picture.
+PICTURE_CELL = """\
+import base64
+from logitscope.widgets.scatter import PointRaster
+p = special.softmax(np.asarray(frame.logits, dtype=np.float64), axis=1)
+conf, ent = p.max(axis=1), -special.xlogy(p, p).sum(axis=1)
+(x0, x1), (y0, y1) = dash.scatter.brush_box
+(a0, a1), (b0, b1) = dash.scatter.raster.x_range, dash.scatter.raster.y_range
+w, h = dash.scatter.resolution
+print(json.dumps({
+    "selected": dash.selected.tolist(),
+    "inside": np.flatnonzero((conf >= x0) & (conf <= x1) & (ent >= y0) & (ent <= y1)).tolist(),
+    "png": base64.b64encode(PointRaster.png(dash.scatter.image)).decode(),
+    "cols": [(x0 - a0) / (a1 - a0) * w, (x1 - a0) / (a1 - a0) * w],
+    "rows": [(b1 - y1) / (b1 - b0) * h, (b1 - y0) / (b1 - b0) * h],
+    "pad": dash.scatter.raster.pad,
+}))"""
+
+# The brush's own painting of the selection: shown or not, bqplot's images hidden or not, its picture.
+PAINT_JS = """(i) => {
+  const root = document.querySelectorAll('.jp-Cell')[i].querySelector('.logitscope-scatter');
+  const canvas = root.querySelector('.ls-brush-paint');
+  const images = Array.from(root.querySelectorAll('image'));
+  return {shown: canvas.style.display === 'block', hidden: images.every((im) => im.style.visibility === 'hidden'),
+          png: canvas.width ? canvas.toDataURL('image/png') : ''};
+}"""
+
+
+def _picture(data: str) -> np.ndarray:
+    """RGBA array of a base64 PNG (a data URL or bare)."""
+    import base64
+    import io
+
+    from PIL import Image
+
+    raw = base64.b64decode(data.split(",", 1)[-1])
+    return np.asarray(Image.open(io.BytesIO(raw)).convert("RGBA"))
+
+
+def test_the_brushed_scatter_answers_at_once_while_the_kernel_is_busy(
+    jupyter_server, notebook_dir, browser_page, browser_log
+):
+    page = browser_page
+    path = write_notebook(notebook_dir, "busy.ipynb", [DASH_CELL, BUSY_CELL, PICTURE_CELL])
+    open_notebook(page, jupyter_server, path)
+    run_cell(page, 0)
+    _wait_dashboard(page, 0, 100)
+    run_cell(page, 1, wait=False)  # the kernel sleeps: it cannot answer the brush for seconds
+    page.wait_for_function(
+        "() => /\\*/.test(document.querySelectorAll('.jp-Cell')[1].querySelector('.jp-InputPrompt').textContent)"
+    )
+    area = cell(page, 0).locator(".logitscope-scatter .plotarea_background").first
+    area.scroll_into_view_if_needed()
+    box = area.bounding_box()
+    assert box is not None
+    x, y, w, h = box["x"], box["y"], box["width"], box["height"]
+    _drag(page, _line(x + 0.1 * w, y + 0.15 * h, x + 0.55 * w, y + 0.85 * h))
+    # at once, with the kernel still asleep: the brush paints the selection in place of bqplot's images
+    now = page.evaluate(PAINT_JS, 0)
+    assert now["shown"] and now["hidden"], now
+    painted = _picture(now["png"])
+    screenshot(page, "dashboard-lab-brush-at-once")
+    # once the kernel answers, its own picture takes over
+    page.wait_for_function(f"(i) => !({PAINT_JS})(i).shown", arg=0, timeout=60_000)
+    after = page.evaluate(PAINT_JS, 0)
+    assert not after["hidden"]
+    st = _state(page, 2)
+    assert st["selected"] == st["inside"] and len(st["selected"]) > 20  # rows by scipy's scores
+    # the painting showed what the kernel drew (alpha within 3 of 255), but for a band along the
+    # brush's edges, as wide as a point's disc: there a point just outside the box spills in
+    kernel = _picture(st["png"])
+    assert painted.shape == kernel.shape
+    rows, cols = np.mgrid[0 : kernel.shape[0], 0 : kernel.shape[1]]
+    band = st["pad"] + 2
+    (c0, c1), (r0, r1) = st["cols"], st["rows"]
+    edge = ((np.abs(cols - c0) <= band) | (np.abs(cols - c1) <= band)) & (rows >= r0 - band) & (rows <= r1 + band)
+    edge |= ((np.abs(rows - r0) <= band) | (np.abs(rows - r1) <= band)) & (cols >= c0 - band) & (cols <= c1 + band)
+    diff = np.abs(painted[..., 3].astype(int) - kernel[..., 3].astype(int))
+    assert (kernel[..., 3][~edge] > 0).sum() > 500  # points on both sides of the edge
+    assert diff[~edge].max() <= 3, (int(diff[~edge].max()), int((diff[~edge] > 3).sum()))
+    assert browser_log.errors() == []
 
 
 LASSO_CELL = """\

@@ -57,9 +57,16 @@ class EpochRecord:
 
 
 def epoch_record(
-    frame: LogitFrame, update: int, label: str | None = None, binning: Binning | None = None
+    frame: LogitFrame,
+    update: int,
+    label: str | None = None,
+    binning: Binning | None = None,
+    *,
+    shown_at: str | None = None,
 ) -> EpochRecord:
     """The record of ``frame`` as update number ``update`` (at the frame's own temperature).
+
+    ``shown_at`` is when the frame was shown (ISO 8601; default: now), for a record made later.
 
     Examples
     --------
@@ -69,7 +76,7 @@ def epoch_record(
     >>> r.label, r.accuracy, r.n_samples
     ('epoch 1', 0.5, 2)
     """
-    when = _dt.datetime.now().astimezone().isoformat(timespec="seconds")
+    when = _dt.datetime.now().astimezone().isoformat(timespec="seconds") if shown_at is None else str(shown_at)
     name = f"update {update}" if label is None else str(label)
     if not frame.has_labels:
         p = prediction_summary(frame)

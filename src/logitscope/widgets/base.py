@@ -109,7 +109,7 @@ class LinkedView:
         self.state = check_view_args(frame, state)
         self.frame = frame
         self.name = str(name) if name else self.kind
-        self.origin = self.state.register(self.name)
+        self.origin = self.state.register(self.name, self)
         self._quiet_depth = 0
         self._seen_selection: tuple[int, str] | None = None
         self.state.observe(self._state_selection, ["rows", "origin"])
@@ -171,6 +171,14 @@ class LinkedView:
         check_view_args(frame, self.state)
         self.frame = frame
         self.on_frame()
+
+    def held_widgets(self) -> list[Any]:
+        """The widgets this view changes on a new selection, in the order their messages should leave.
+
+        :meth:`SharedState.select` holds their messages to the browser until every view has
+        followed the selection, then sends them together (see :meth:`SharedState.batch`).
+        """
+        return [self] if hasattr(self, "hold_sync") else []
 
     # ------------------------------------------------------------------ hooks (override)
 

@@ -191,6 +191,8 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             layout={"width": "190px"},
         )  # fmt: skip
         self._pair_box = widgets.VBox(layout={"width": "100%"})
+        self._pair_buttons: list[widgets.Button] = []
+        self._no_pairs = widgets.Label("no sample is read as another class")
         self._note = widgets.HTML()
         pair_panel = widgets.VBox(
             [widgets.HTML(css("views") + "<div class='ls-subhead'>Where the model mixes classes up</div>"),
@@ -396,8 +398,15 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
     def _on_k(self, change: Any = None) -> None:
         self.pairs = list(self.summary_at(self.k).pairs)
         names = self.frame.classes
-        buttons = []
-        for pair in self.pairs:
+        # the buttons are made once and relabelled (a new frame or k): each new button costs the browser
+        # three new widget models, and the old ones would live on unseen
+        while len(self._pair_buttons) < len(self.pairs):
+            btn = widgets.Button(layout={"width": "100%"})
+            btn.add_class("logitscope-pair")
+            index = len(self._pair_buttons)
+            btn.on_click(lambda _b, i=index: self._select_listed_pair(i))
+            self._pair_buttons.append(btn)
+        for pair, btn in zip(self.pairs, self._pair_buttons, strict=False):
             a, b = names[pair.true], names[pair.other]
             if self.k == 1:
                 text = f"{short_label(a, 18)} read as {short_label(b, 18)} ({pair.count:,})"
@@ -405,13 +414,19 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             else:
                 text = f"{short_label(a, 18)}: {short_label(b, 18)} in its top {self.k} ({pair.count:,})"
                 tip = f"{a} with {b} among its top {self.k}: {pair.count:,} samples, {pair.rate:.1%} of the true class"
-            btn = widgets.Button(description=text, tooltip=tip, layout={"width": "100%"})
-            btn.add_class("logitscope-pair")
-            btn.on_click(lambda _b, p=pair: self.select_pair(p.true, p.other))
-            buttons.append(btn)
-        if not buttons:
-            buttons = [widgets.Label("no sample is read as another class")]
-        self._pair_box.children = buttons
+            with btn.hold_sync():
+                btn.description, btn.tooltip = text, tip
+        shown: list[widgets.Widget] = list(self._pair_buttons[: len(self.pairs)])
+        if not shown:
+            shown = [self._no_pairs]
+        if list(self._pair_box.children) != shown:
+            self._pair_box.children = shown
+
+    def _select_listed_pair(self, i: int) -> None:
+        """What a click on the ``i``-th pair button does: select that pair's samples."""
+        if i < len(self.pairs):
+            pair = self.pairs[i]
+            self.select_pair(pair.true, pair.other)
 
     # ------------------------------------------------------------------ selection in
 
@@ -430,8 +445,10 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self._grid.selected = np.stack([cells // n, cells % n], axis=1).astype(np.int32)
         self._draw_numbers()
         held = "" if n <= MAX_NUMBERED else " (hover a cell for its numbers)"
+        # no stylesheet of its own: the pair panel's heading carries it for the whole view (a <style>
+        # element put in the page on every selection makes the browser restyle the whole page)
         self._note.value = (
-            css("views") + f"<span class='ls-note'>{rows.size:,} selected rows fall in {cells.size:,} cells, "
+            f"<span class='ls-note'>{rows.size:,} selected rows fall in {cells.size:,} cells, "
             f"outlined{held}{self.selected_by()}</span>"
         )
 
@@ -548,6 +565,11 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
 
     # ------------------------------------------------------------------ hooks of the linked view
 
+    def held_widgets(self) -> list[Any]:
+        if not self._ready:
+            return []
+        return [self._grid, self._numbers, self._selected_numbers, self._note, self._row_button, self._col_button]
+
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         if self._ready:
             self._on_rows()
@@ -555,11 +577,13 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
     def on_frame(self) -> None:
         if not self._ready or not self.frame.has_labels:
             return
+        shown = list(self._keys)
         self._compute_structure()
-        with self._grid.hold_sync():
-            keys = np.asarray(self._keys, dtype=object)
-            self._grid.row, self._grid.column = keys, keys
-        self._place_ticks()
+        if list(self._keys) != shown:  # other classes drawn on their own: new rows, columns and ticks
+            with self._grid.hold_sync():
+                keys = np.asarray(self._keys, dtype=object)
+                self._grid.row, self._grid.column = keys, keys
+            self._place_ticks()
         self._reset_click_buttons()
         self._recolor()
         self._on_k()

@@ -279,6 +279,9 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
 
     # ------------------------------------------------------------------ hooks of the linked view
 
+    def held_widgets(self) -> list[Any]:
+        return [self._sel_bars, self._bars, self._brush]
+
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         self._on_rows()
 

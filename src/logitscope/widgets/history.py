@@ -114,9 +114,19 @@ class EpochHistoryView(widgets.VBox):
 
     def add(self, record: EpochRecord) -> None:
         """Append a record and make it the current one."""
-        self.records.append(record)
-        self.current = len(self.records) - 1
-        self._draw()
+        self.extend([record])
+
+    def extend(self, records: Sequence[EpochRecord], current: int | None = None) -> None:
+        """Append records and draw once; ``current`` becomes the record on screen (default: the last)."""
+        if not records:
+            return
+        self.records.extend(records)
+        # the record on screen may not be made yet (records are made in order): then the last one made
+        index = len(self.records) - 1 if current is None else min(int(current), len(self.records) - 1)
+        if index == self.current:
+            self._draw()
+        else:
+            self.current = index  # its observer draws
 
     def table(self) -> pd.DataFrame:
         """The records as a DataFrame, one row per frame shown."""

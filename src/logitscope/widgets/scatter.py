@@ -8,7 +8,8 @@ stays smooth at 100,000 rows and more (an SVG scatter of 10,000 points takes
 about 100 ms to repaint on a headless chromium without GPU; measured with
 ``bench/bench_dashboard.py``).
 
-Every selection is computed in Python over all rows: a rectangle brush sends
+Every selection is computed in Python over all rows: a rectangle brush (drawn in the
+browser by :class:`~logitscope.widgets.brush.RectangleBrush`) sends
 back its two extents; the lasso is tested in the browser against an
 invisible line mark through every row, which sends back the indices inside.
 The selection is drawn as opaque points over the other points faded.
@@ -34,6 +35,7 @@ from ..frame import LogitFrame
 from ..text import shorten
 from ..ticks import nice_ticks
 from .base import LinkedView
+from .brush import RectangleBrush
 from .state import SharedState
 from .style import (
     CLASS_COLORS,
@@ -198,6 +200,33 @@ class PointRaster:
         out[3] = a
         return out
 
+    def window_layer(
+        self, pixels: np.ndarray, groups: np.ndarray, colors: list[str], window: tuple[int, int, int, int]
+    ) -> np.ndarray:
+        """:meth:`layer` cut to ``window`` (columns ``c0:c1``, rows ``r0:r1``), painting only that part.
+
+        Equal to ``layer(...)[:, r0:r1, c0:c1]`` when every point lies at least the disc radius
+        inside the window (or the window reaches the image's edge there): a brush's points fill a
+        small part of the image, and painting that part alone is what makes a brush quick.
+
+        Examples
+        --------
+        >>> r = PointRaster(8, 6, (0.0, 1.0), (0.0, 1.0))
+        >>> px = r.pixels(np.array([0.3, 0.5]), np.array([0.5, 0.4]))
+        >>> g = np.array([0, 1])
+        >>> full = r.layer(px, g, ["#000000", "#ff0000"])
+        >>> bool(np.allclose(r.window_layer(px, g, ["#000000", "#ff0000"], (0, 6, 0, 6)), full[:, 0:6, 0:6]))
+        True
+        """
+        c0, c1, r0, r1 = window
+        sub = PointRaster.__new__(PointRaster)
+        sub.width, sub.height = c1 - c0, r1 - r0
+        sub.x_range, sub.y_range = self.x_range, self.y_range
+        sub.offsets, sub.pad, sub.depth = self.offsets, self.pad, self.depth
+        keep = pixels >= 0
+        py, px = np.divmod(pixels[keep], self.width)
+        return sub.layer((py - r0) * sub.width + (px - c0), groups[keep], colors)
+
     def _alpha(self, counts: np.ndarray, strength: float) -> np.ndarray:
         """Alpha ``(1 - exp(-c / depth)) * strength`` of each pixel from its spread point count ``c``."""
         spread = self._spread(counts)
@@ -339,20 +368,20 @@ class ScoreScatter(LinkedView, widgets.VBox):
         self._ay = bq.Axis(
             scale=self._sy, label=y, side="left", grid_lines="none", tick_format="~g", label_offset="42px"
         )
-        self._brush = QuietBrush(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
-        self._brush.observe(self._on_brush, ["brushing", "selected_x", "selected_y"])
         self._probe: bq.Lines | None = None
         self._lasso: LassoSelector | None = None
         self.figure = bq.Figure(
             display_toolbar=False,
             marks=[self._mark, self._top_mark, self._focus_mark],
             axes=[self._ax, self._ay],
-            interaction=self._brush,
             fig_margin={"top": 10, "bottom": 48, "left": 58, "right": 12},
             padding_x=0.0,
             padding_y=0.0,
             layout=figure_layout("100%", "360px", "320px"),
         )
+        # the rectangle brush is drawn in the browser and sends its extents once, on release (js/brush.js)
+        self._brush = RectangleBrush(self.figure, faded=FADED, layout=widgets.Layout(width="100%", min_width="320px"))
+        self._brush.observe(self._on_brush, "box")
 
         menu = {"options": score_options(self.scores_offered), "layout": {"width": "190px"}}
         self._x_menu = widgets.Dropdown(value=x, description="x", **menu)
@@ -371,7 +400,7 @@ class ScoreScatter(LinkedView, widgets.VBox):
             [self._x_menu, self._y_menu, self._c_menu, self._mode_buttons],
             layout=widgets.Layout(flex_flow="row wrap", align_items="center"),
         )
-        widgets.VBox.__init__(self, children=[controls, self._key, self.figure], **kwargs)
+        widgets.VBox.__init__(self, children=[controls, self._key, self._brush], **kwargs)
         self.add_class("logitscope-scatter")
 
         self.x_score, self.y_score, self.color_by = x, y, color
@@ -418,6 +447,8 @@ class ScoreScatter(LinkedView, widgets.VBox):
         self.raster = PointRaster(w, h, (x0, x1), (y0, y1), radius2=self._radius2, depth=self._depth)
         self._pixels = self.raster.pixels(x, y)
         self._base = None
+        with self._brush.hold_sync():
+            self._brush.x_range, self._brush.y_range = [x0, x1], [y0, y1]
         with self.figure.hold_sync():
             self._sx.min, self._sx.max = x0, x1
             self._sy.min, self._sy.max = y0, y1
@@ -486,19 +517,20 @@ class ScoreScatter(LinkedView, widgets.VBox):
             old = self._base_widgets
             self._base_widgets = (widgets.Image(value=full, format="png"), widgets.Image(value=faded, format="png"))
             self._mark.image = self._base_widgets[0]
+            self._brush.points = self._base_widgets[0]  # the browser paints a brushed selection from it at once
             if old is not None:
                 for w in old:
                     w.close()
         rows = self.state.rows
         w, h = self.resolution
-        if rows.size == 0:
-            self._top = np.zeros_like(self._top)
-            window = (0, 1, 0, 1)
-        else:
-            self._top = self.raster.layer(self._pixels[rows], self._groups[rows], self._palette)
-            # send only the part of the image the selection covers (a brush covers a small part)
+        self._top = np.zeros_like(self._top)
+        window = (0, 1, 0, 1)
+        if rows.size:
+            # paint and send only the part of the image the selection covers (a brush covers a small part)
             px = self._pixels[rows]
-            px = px[px >= 0]
+            groups = self._groups[rows]
+            inside = px >= 0
+            px, groups = px[inside], groups[inside]
             pad = self.raster.pad + 1
             if px.size:
                 py, pxx = np.divmod(px, w)
@@ -508,8 +540,8 @@ class ScoreScatter(LinkedView, widgets.VBox):
                     max(int(py.min()) - pad, 0),
                     min(int(py.max()) + pad + 1, h),
                 )
-            else:
-                window = (0, 1, 0, 1)
+                c0, c1, r0, r1 = window
+                self._top[:, r0:r1, c0:c1] = self.raster.window_layer(px, groups, self._palette, window)
         c0, c1, r0, r1 = window
         (x0, x1), (y0, y1) = self.raster.x_range, self.raster.y_range
         self._turn = 1 - self._turn
@@ -556,13 +588,16 @@ class ScoreScatter(LinkedView, widgets.VBox):
             self._clear_tools()
         self._draw()
 
+    @property
+    def brush_box(self) -> tuple[tuple[float, float], tuple[float, float]] | None:
+        """``((x0, x1), (y0, y1))`` of the rectangle brush drawn on the plot, each sorted; None without one."""
+        return self._brush.extents
+
     def _clear_brush(self) -> None:
-        """Remove the brush rectangle (bqplot draws it from selected_x / selected_y; its reset does nothing)."""
+        """Remove the brush rectangle."""
         self._last_box = None
-        if self._brush.selected_x is not None or self._brush.selected_y is not None:
-            with self._brush.hold_sync():
-                self._brush.selected_x = None
-                self._brush.selected_y = None
+        if self._brush.box:
+            self._brush.box = []
 
     def _clear_tools(self) -> None:
         """Remove a stale brush rectangle or lasso when another view made the selection."""
@@ -598,18 +633,14 @@ class ScoreScatter(LinkedView, widgets.VBox):
         return self.select(rows)
 
     def _on_brush(self, change: Any) -> None:
-        b = self._brush
-        if b.brushing:
-            return
-        sx, sy = b.selected_x, b.selected_y
-        if sx is None or sy is None or len(sx) < 2 or len(sy) < 2:
+        extents = self._brush.extents
+        if extents is None:
             # the brush was removed: clear only a selection this view made
             if self._last_box is not None and self.owns_selection:
                 self._last_box = None
                 self.clear_selection()
             return
-        x0, x1 = sorted((float(sx[0]), float(sx[1])))
-        y0, y1 = sorted((float(sy[0]), float(sy[1])))
+        (x0, x1), (y0, y1) = extents
         box = (x0, x1, y0, y1)
         if box == self._last_box:
             return
@@ -655,10 +686,12 @@ class ScoreScatter(LinkedView, widgets.VBox):
             self._clear_brush()
             self._last_box = None
             self.figure.interaction = self._ensure_lasso()
+            self._brush.active = False
         else:
             if self._lasso is not None:
                 self._lasso.reset()
-            self.figure.interaction = self._brush
+            self.figure.interaction = None
+            self._brush.active = True
 
     def _on_axes(self, change: Any) -> None:
         self._clear_brush()
@@ -669,6 +702,10 @@ class ScoreScatter(LinkedView, widgets.VBox):
         self._draw()
 
     # ------------------------------------------------------------------ hooks of the linked view
+
+    def held_widgets(self) -> list[Any]:
+        # a picture's own message before the mark that shows it (bqplot redraws on the mark's message)
+        return [*self._top_widgets, self._top_mark, self._mark, self._focus_mark, self._brush]
 
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         self._on_rows()
