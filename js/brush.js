@@ -10,22 +10,6 @@
 // draws its child); a layer over it takes the mouse while "active" (rectangle mode) and lets it through to
 // the figure otherwise (lasso).
 
-function childId(ref) {
-  const s = String(ref || "");
-  return s.startsWith("IPY_MODEL_") ? s.slice("IPY_MODEL_".length) : s;
-}
-
-function attach(view, host) {
-  const lumino = view.luminoWidget || view.pWidget;
-  const ctor = lumino && lumino.constructor;
-  if (ctor && typeof ctor.attach === "function") {
-    ctor.attach(lumino, host);
-  } else {
-    host.appendChild(view.el);
-  }
-  view.trigger("displayed");
-}
-
 // A click moves the mouse less than this (pixels): it removes the brush instead of drawing one.
 const CLICK = 3;
 // Milliseconds the painting of a brush waits for the kernel's picture before it gives way to bqplot's again.
@@ -272,13 +256,8 @@ function render({ model, el }) {
   });
 
   (async () => {
-    const manager = model.widget_manager;
-    const child = await manager.get_model(childId(model.get("child")));
-    const made = await manager.create_view(child, {});
-    if (gone) {
-      made.remove();
-      return;
-    }
+    const made = await childView(model, () => gone);
+    if (!made) return;
     view = made;
     attach(view, el);
     el.appendChild(layer);

@@ -6,22 +6,6 @@
 // then asks the widget manager for the child's view and attaches it as JupyterLab attaches any output
 // (lumino's Widget.attach, so tab bars and other lumino parts get their events).
 
-function childId(ref) {
-  const s = String(ref || "");
-  return s.startsWith("IPY_MODEL_") ? s.slice("IPY_MODEL_".length) : s;
-}
-
-function attach(view, host) {
-  const lumino = view.luminoWidget || view.pWidget;
-  const ctor = lumino && lumino.constructor;
-  if (ctor && typeof ctor.attach === "function") {
-    ctor.attach(lumino, host); // Widget.attach: after-attach messages reach every part of the child
-  } else {
-    host.appendChild(view.el);
-  }
-  view.trigger("displayed");
-}
-
 function render({ model, el }) {
   el.classList.add("ls-gate");
   let view = null;
@@ -34,13 +18,8 @@ function render({ model, el }) {
     if (box.width <= 0 || !el.isConnected) return; // hidden: wait for the next resize
     pending = true;
     try {
-      const manager = model.widget_manager;
-      const child = await manager.get_model(childId(model.get("child")));
-      const made = await manager.create_view(child, {});
-      if (gone) {
-        made.remove();
-        return;
-      }
+      const made = await childView(model, () => gone);
+      if (!made) return;
       view = made;
       attach(view, el);
       model.set("shown", true);

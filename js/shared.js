@@ -26,3 +26,35 @@ function named(tag, cls, text, max) {
   if (full.length > max) node.title = full;
   return node;
 }
+
+// The model id inside a widget reference ("IPY_MODEL_<id>", as a child trait is serialised).
+function childId(ref) {
+  const s = String(ref || "");
+  return s.startsWith("IPY_MODEL_") ? s.slice("IPY_MODEL_".length) : s;
+}
+
+// Attach a child widget's view inside host as JupyterLab attaches any output (lumino's Widget.attach, so
+// tab bars and other lumino parts get their after-attach messages), then tell the view it is displayed.
+function attach(view, host) {
+  const lumino = view.luminoWidget || view.pWidget;
+  const ctor = lumino && lumino.constructor;
+  if (ctor && typeof ctor.attach === "function") {
+    ctor.attach(lumino, host);
+  } else {
+    host.appendChild(view.el);
+  }
+  view.trigger("displayed");
+}
+
+// The view of the widget's "child" trait, made by the widget manager; null (and the view removed) when
+// isGone() holds by the time it is made (the widget's own view was removed meanwhile).
+async function childView(model, isGone) {
+  const manager = model.widget_manager;
+  const child = await manager.get_model(childId(model.get("child")));
+  const made = await manager.create_view(child, {});
+  if (isGone()) {
+    made.remove();
+    return null;
+  }
+  return made;
+}
