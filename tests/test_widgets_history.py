@@ -128,14 +128,24 @@ def test_update_redraws_the_calibration_tab(mailroom: LogitFrame, tmp_path: Path
 
 
 def test_the_first_record_waits_for_the_history_and_equals_an_eager_one(mailroom: LogitFrame, tmp_path: Path) -> None:
+    import datetime as dt
+
     from logitscope.findings import epoch_record
 
+    def now() -> dt.datetime:
+        return dt.datetime.now().astimezone().replace(microsecond=0)
+
+    before = now()
     dash = Dashboard(mailroom, relabel_path=tmp_path / "m.json")
+    after = now()
     eager = epoch_record(mailroom, 0, None, dash.state.binning).to_dict()
     dash.tabs.selected_index = 2  # the History tab: the first record is made now
     assert len(dash.history_view.points["accuracy"].y) == 1
     row = dash.history.iloc[0].to_dict()
     assert set(row) == set(eager)
+    # made later, the record keeps the time its frame was shown: while the dashboard was built
+    assert before <= dt.datetime.fromisoformat(row.pop("shown_at")) <= after
+    eager.pop("shown_at")
     for key, value in eager.items():
         assert row[key] == value or (value != value and row[key] != row[key]), key  # NaN equals NaN here
     # the header's accuracy is the record's, and scikit-learn's (sklearn.metrics.accuracy_score)
