@@ -20,7 +20,7 @@ from .sweep import fitted_temperature
 if TYPE_CHECKING:
     from ..frame import LogitFrame
 
-__all__ = ["EPOCH_COLUMNS", "EpochRecord", "epoch_record"]
+__all__ = ["EPOCH_COLUMNS", "EpochRecord", "epoch_record", "record_time"]
 
 #: Columns of :meth:`Dashboard.history`, in order.
 EPOCH_COLUMNS = (
@@ -56,6 +56,17 @@ class EpochRecord:
         return asdict(self)
 
 
+def record_time() -> str:
+    """The local time now, as a record's ``shown_at`` gives it (ISO 8601, to the second).
+
+    Examples
+    --------
+    >>> len(record_time()) >= len("2026-01-01T00:00:00+00:00")
+    True
+    """
+    return _dt.datetime.now().astimezone().isoformat(timespec="seconds")
+
+
 def epoch_record(
     frame: LogitFrame,
     update: int,
@@ -76,7 +87,7 @@ def epoch_record(
     >>> r.label, r.accuracy, r.n_samples
     ('epoch 1', 0.5, 2)
     """
-    when = _dt.datetime.now().astimezone().isoformat(timespec="seconds") if shown_at is None else str(shown_at)
+    when = record_time() if shown_at is None else str(shown_at)
     name = f"update {update}" if label is None else str(label)
     if not frame.has_labels:
         p = prediction_summary(frame)

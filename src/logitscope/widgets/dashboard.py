@@ -19,7 +19,6 @@ relabel marks by sample id, and the temperature unless told otherwise.
 
 from __future__ import annotations
 
-import datetime as _dt
 import html
 import os
 from collections import OrderedDict
@@ -37,6 +36,7 @@ from ..analysis import check_temperature
 from ..checkpoints import FrameForgetting, compare_frames, forgetting_across
 from ..errors import ClassNameError, InputTypeError, LogitscopeError, ParameterError, ShapeError
 from ..findings import Binning, count_selection, epoch_record
+from ..findings.history import record_time as _now
 from ..frame import LogitFrame
 from .base import LinkedView
 from .card import SampleCard
@@ -96,11 +96,6 @@ def _same_ids(a: LogitFrame, b: LogitFrame) -> bool:
     """Whether two frames hold the same ids in the same row order (then rows map to themselves)."""
     ia, ib = np.asarray(a.ids), np.asarray(b.ids)
     return ia is ib or (ia.shape == ib.shape and ia.dtype.kind == ib.dtype.kind and bool(np.array_equal(ia, ib)))
-
-
-def _now() -> str:
-    """The local time, as history records give it."""
-    return _dt.datetime.now().astimezone().isoformat(timespec="seconds")
 
 
 def _row(*panels: widgets.Widget) -> widgets.HBox:
