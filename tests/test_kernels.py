@@ -56,3 +56,19 @@ def test_arg_max_and_runner_up_with_many_ties(backend, k):
     np.testing.assert_allclose(s.margin, p[:, -1] - p[:, -2], rtol=1e-12, atol=1e-15)
     zs = np.sort(z.astype(np.float64), axis=1)
     np.testing.assert_allclose(s.logit_margin, (zs[:, -1] - zs[:, -2]) / 0.7, rtol=1e-12, atol=0)
+
+
+@pytest.mark.parametrize("backend", ["numba", "numpy"])
+@pytest.mark.parametrize("k", [2, 5, 33])
+def test_label_rank_with_many_ties_is_scipy_ordinal_rank(backend, k):
+    # reference: scipy.stats.rankdata(-z, method="ordinal"), which ranks tied logits in the order they occur
+    # (the numpy.argmax convention), so rank 1 means "predicted"; labels at every column, ties at every rank
+    from scipy import stats
+
+    rng = np.random.default_rng(100 + k)
+    z = rng.integers(-2, 3, size=(3000, k)).astype(np.float32)
+    y = rng.integers(0, k, 3000)
+    s = sample_scores(z, y, backend=backend)
+    expected = stats.rankdata(-z.astype(np.float64), axis=1, method="ordinal")[np.arange(3000), y]
+    np.testing.assert_array_equal(s.true_rank, expected)
+    np.testing.assert_array_equal(s.correct, s.predicted == y)

@@ -350,9 +350,12 @@ class LogitFrame:
             raise LabelError(f"labels have length {y.shape[0]} but the logits have {n} rows")
         if y.ndim == 1 and missing.all():
             return None  # no row has a label: an unlabelled frame
+        names_given = y.ndim == 1 and y.dtype.kind in "OUS"
+        if not names_given and (y.ndim != 1 or not missing.any()):
+            return _readonly(np.array(check_labels(y, n, len(self._classes)), copy=True))
         have = ~missing
         out = np.full(n, UNLABELLED, dtype=np.int64)
-        if y.ndim == 1 and y.dtype.kind in "OUS":
+        if names_given:
             index = {c: i for i, c in enumerate(self._classes)}
             names = [str(v) for v in y[have].tolist()]
             unknown = sorted({v for v in names if v not in index})
@@ -366,8 +369,6 @@ class LogitFrame:
                 )
             out[have] = np.fromiter((index[v] for v in names), dtype=np.int64, count=len(names))
             return _readonly(out)
-        if y.ndim != 1 or not missing.any():
-            return _readonly(np.array(check_labels(y, n, len(self._classes)), copy=True))
         filled = np.where(missing, 0, y)  # rows without a label stand in as class 0, so errors name the true rows
         out[have] = check_labels(filled, n, len(self._classes))[have]
         return _readonly(out)

@@ -245,8 +245,8 @@ def check_labels(y: Any, n_samples: int, n_classes: int, what: str = "labels") -
             f"{what} must be integer class indices, got dtype {arr.dtype}; "
             "pass class names through LogitFrame(labels=..., classes=...)"
         )
-    bad = np.flatnonzero((arr < 0) | (arr >= n_classes))  # on the values as given: uint64 or 1e30 do not wrap
-    if bad.size:
+    if arr.size and (arr.min() < 0 or arr.max() >= n_classes):  # on the values as given: uint64 or 1e30 do not wrap
+        bad = np.flatnonzero((arr < 0) | (arr >= n_classes))
         raise LabelError(
             f"{what} must lie in [0, {n_classes}) for {n_classes} classes; "
             f"out of range at {describe_rows(bad)} (values {arr[bad[:5]].tolist()})"

@@ -196,8 +196,10 @@ def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[st
         out["energy"][rows] = -(m1 * beta + log_s) / beta
         if y is not None:
             lp = (zy - m1) * beta - log_s
+            py = np.exp(lp)
             out["true_log_probability"][rows] = lp
-            out["brier"][rows] = u / (s * s) - 2.0 * np.exp(lp) + 1.0
+            out["true_probability"][rows] = py
+            out["brier"][rows] = u / (s * s) - 2.0 * py + 1.0
     return nonfinite
 
 
@@ -249,6 +251,7 @@ def sample_scores(
     out["predicted"] = np.empty(n, dtype=np.int64)
     if y is not None:
         out["true_log_probability"] = np.empty(n, dtype=np.float64)
+        out["true_probability"] = np.empty(n, dtype=np.float64)
         out["brier"] = np.empty(n, dtype=np.float64)
         out["true_rank"] = np.empty(n, dtype=np.int64)
     nonfinite = 0
@@ -258,7 +261,10 @@ def sample_scores(
         for rows, zc in _numba_blocks(z):
             yy = y[rows] if y is not None else np.zeros(1, dtype=np.int64)
             per_row = [out[name][rows] for name in ("predicted", *f64)]
-            label_cols = [out[name][rows] if has_y else np.empty(1) for name in ("true_log_probability", "brier")]
+            label_cols = [
+                out[name][rows] if has_y else np.empty(1)
+                for name in ("true_log_probability", "true_probability", "brier")
+            ]
             rank = out["true_rank"][rows] if has_y else np.empty(1, dtype=np.int64)
             nonfinite += nb.scores_kernel(zc, yy, has_y, beta, *per_row, *label_cols, rank)
     else:
@@ -269,7 +275,6 @@ def sample_scores(
         if err is not None:
             raise err
     correct = None if y is None else out["predicted"] == y
-    ptrue = None if y is None else np.exp(out["true_log_probability"])
     return SampleScores(
         temperature=t,
         predicted=out["predicted"],
@@ -278,7 +283,7 @@ def sample_scores(
         margin=out["margin"],
         logit_margin=out["logit_margin"],
         energy=out["energy"],
-        true_probability=ptrue,
+        true_probability=out.get("true_probability"),
         true_log_probability=out.get("true_log_probability"),
         brier=out.get("brier"),
         true_rank=out.get("true_rank"),
