@@ -1,0 +1,232 @@
+"""Where a brush's time goes in chromium, at N x K (default 100,000 x 100).
+
+``bench/bench_dashboard.py`` gives the brush's total (mouse-up until every
+linked view shows the selection). This script splits it, per brush, by what
+the page sees on its kernel websocket and, with ``--trace``, by what chromium's
+main thread does:
+
+- ``sent``: the brush's one message leaves the page;
+- ``busy``: the kernel's "busy" status arrives (the round trip through the
+  Jupyter server to the kernel and back);
+- ``first`` / ``last``: the first and the last widget message of the answer
+  arrive, and how many there were and their bytes;
+- ``done``: every view shows the selection (the same condition as the bench);
+- ``frame``: with ``--trace``, the longest main-thread task after the mouse-up
+  and its style recalculation, layout and paint (milliseconds, with the number
+  of elements restyled).
+
+All times are milliseconds after the mouse-up. The scenario is the parcel
+camera of ``bench/bench_dashboard.py`` (seeded synthetic logits).
+
+Run: ``python bench/brush_breakdown.py [--n 100000] [--k 100] [--brushes 6] [--trace]``.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import shutil
+import statistics
+import sys
+import tempfile
+from pathlib import Path
+from typing import Any
+
+REPO = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(REPO))
+sys.path.insert(0, str(REPO / "bench"))
+
+# JS, run before the page's own scripts: log every kernel websocket message (arrival time, size, type).
+WEBSOCKET_LOG_JS = r"""
+window.__lsWs = [];
+const Native = window.WebSocket;
+function Logged(url, protocols) {
+  const ws = protocols === undefined ? new Native(url) : new Native(url, protocols);
+  ws.addEventListener('message', (ev) => {
+    const t = performance.now();
+    let size = 0, head = '';
+    if (typeof ev.data === 'string') { size = ev.data.length; head = ev.data.slice(0, 3000); }
+    else if (ev.data instanceof ArrayBuffer) {
+      size = ev.data.byteLength;
+      head = new TextDecoder().decode(new Uint8Array(ev.data, 0, Math.min(3000, size)));
+    }
+    const type = (head.match(/"msg_type":\s*"([a-z_]+)"/) || [])[1] || '';
+    const state = (head.match(/"execution_state":\s*"([a-z]+)"/) || [])[1] || '';
+    window.__lsWs.push({t, size, type, state});
+  });
+  const send = ws.send.bind(ws);
+  ws.send = (data) => { window.__lsWs.push({t: performance.now(), sent: true}); return send(data); };
+  return ws;
+}
+Logged.prototype = Native.prototype;
+Object.assign(Logged, {CONNECTING: 0, OPEN: 1, CLOSING: 2, CLOSED: 3});
+window.WebSocket = Logged;
+"""
+
+
+def _split(log: list[dict[str, Any]], up: float) -> dict[str, float]:
+    after = [m for m in log if m["t"] >= up]
+    sent = next((m["t"] - up for m in after if m.get("sent")), float("nan"))
+    busy = next((m["t"] - up for m in after if m.get("state") == "busy"), float("nan"))
+    comms = [m for m in after if m.get("type") == "comm_msg"]
+    return {
+        "sent": sent,
+        "busy": busy,
+        "first": comms[0]["t"] - up if comms else float("nan"),
+        "last": comms[-1]["t"] - up if comms else float("nan"),
+        "messages": float(len(comms)),
+        "kB": sum(m["size"] for m in comms) / 1000.0,
+    }
+
+
+def _longest_frame(path: Path) -> dict[str, float] | None:
+    """The longest main-thread task after the mouse-up in a chromium trace, split into its rendering steps."""
+    events = json.loads(path.read_text())
+    events = events["traceEvents"] if isinstance(events, dict) else events
+    ups = [
+        e
+        for e in events
+        if e.get("name") == "EventDispatch" and e.get("args", {}).get("data", {}).get("type") == "mouseup"
+    ]
+    if not ups:
+        return None
+    up = ups[-1]
+    thread = (up["pid"], up["tid"])
+    mine = [e for e in events if (e["pid"], e["tid"]) == thread and e.get("ph") == "X" and e["ts"] >= up["ts"]]
+    tasks = [e for e in mine if e.get("name") in ("RunTask", "ThreadControllerImpl::RunTask")]
+    if not tasks:
+        return None
+    task = max(tasks, key=lambda e: e.get("dur", 0))
+    inside = [e for e in mine if task["ts"] <= e["ts"] and e["ts"] + e.get("dur", 0) <= task["ts"] + task["dur"]]
+
+    def total(name: str) -> float:
+        return sum(e.get("dur", 0) for e in inside if e.get("name") == name) / 1000.0
+
+    restyled = sum(e.get("args", {}).get("elementCount", 0) for e in inside if e.get("name") == "UpdateLayoutTree")
+    return {
+        "at": (task["ts"] - up["ts"]) / 1000.0,
+        "ms": task["dur"] / 1000.0,
+        "style": total("UpdateLayoutTree"),
+        "elements": float(restyled),
+        "layout": total("Layout"),
+        "paint": total("Paint") + total("PrePaint"),
+    }
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    parser.add_argument("--n", type=int, default=100_000)
+    parser.add_argument("--k", type=int, default=100)
+    parser.add_argument("--brushes", type=int, default=6)
+    parser.add_argument("--trace", action="store_true", help="record a chromium trace of each brush")
+    args = parser.parse_args(argv)
+
+    import bench_dashboard as bd
+    from playwright.sync_api import sync_playwright
+    from tests.browser.harness import (
+        cell,
+        launch_chromium,
+        missing_browser_requirements,
+        open_notebook,
+        run_cell,
+        start_jupyter_server,
+        stop_jupyter_server,
+        write_notebook,
+    )
+
+    missing = missing_browser_requirements()
+    if missing:
+        print("cannot run: missing " + ", ".join(missing))
+        return 2
+    base = Path(tempfile.mkdtemp(prefix="brush-breakdown-"))
+    cells = [
+        "import sys\n"
+        f"sys.path.insert(0, {str(REPO / 'bench')!r})\n"
+        "import logitscope\n"
+        "from bench_dashboard import parcel_camera_frame\n"
+        f"frame = parcel_camera_frame({args.n}, {args.k})",
+        "dash = logitscope.explore(frame, relabel_path='marks.json')\ndash",
+    ]
+    rows: list[dict[str, float]] = []
+    server = start_jupyter_server(base / "root", base / "home")
+    try:
+        path = write_notebook(base / "root", "breakdown.ipynb", cells)
+        with sync_playwright() as pw:
+            browser = launch_chromium(pw)
+            try:
+                page = browser.new_context(viewport={"width": 1400, "height": 1000}).new_page()
+                page.add_init_script(WEBSOCKET_LOG_JS)
+                open_notebook(page, server, path)
+                run_cell(page, 0, timeout_ms=600_000)
+                bd._render(page, 1, (min(args.k, 30) + (1 if args.k > 30 else 0)) ** 2)
+                page.evaluate(bd.MOUSEUP_JS)
+                area = cell(page, 1).locator(".logitscope-scatter .plotarea_background").first
+                area.scroll_into_view_if_needed()
+                for i in range(args.brushes):
+                    box = area.bounding_box()
+                    assert box is not None
+                    x0 = box["x"] + (0.05 + 0.04 * (i % 3)) * box["width"]
+                    y0 = box["y"] + (0.05 + 0.03 * (i % 4)) * box["height"]
+                    x1 = box["x"] + (0.35 + 0.06 * i) * box["width"]
+                    y1 = box["y"] + (0.55 + 0.04 * (i % 5)) * box["height"]
+                    if i % 2:  # as the bench: every other brush first clears by a click outside the data
+                        page.mouse.click(box["x"] + box["width"] - 3, box["y"] + box["height"] - 3)
+                        page.wait_for_timeout(300)
+                    before = page.evaluate(bd.SIGNATURES_JS, 1)
+                    page.evaluate("window.__lsWs = []")
+                    trace = base / f"brush-{i}.json"
+                    if args.trace:
+                        browser.start_tracing(
+                            page=page,
+                            path=str(trace),
+                            categories=["devtools.timeline", "disabled-by-default-devtools.timeline", "toplevel"],
+                        )
+                    bd._drag(page, x0, y0, x1, y1)
+                    done = page.wait_for_function(bd.UPDATED_JS, arg=[1, before], polling="raf", timeout=20_000)
+                    page.wait_for_function(  # the kernel's idle status has arrived
+                        "() => window.__lsWs.some((m) => m.state === 'idle' && m.t > window.__lsMouseUp)",
+                        timeout=20_000,
+                    )
+                    row = _split(page.evaluate("window.__lsWs"), float(page.evaluate("window.__lsMouseUp")))
+                    row["done"] = float(done.json_value())
+                    if args.trace:
+                        page.wait_for_timeout(100)
+                        browser.stop_tracing()
+                        frame_split = _longest_frame(trace)
+                        if frame_split:
+                            row.update({f"frame_{k}": v for k, v in frame_split.items()})
+                    rows.append(row)
+                    page.wait_for_timeout(200)
+            finally:
+                browser.close()
+    finally:
+        stop_jupyter_server(server)
+        shutil.rmtree(base, ignore_errors=True)
+
+    print(f"N = {args.n:,}, K = {args.k}: ms after the mouse-up, per brush")
+    head = f"{'brush':>5} {'sent':>6} {'busy':>6} {'first':>6} {'last':>6} {'msgs':>5} {'kB':>6} {'done':>6}"
+    if args.trace:
+        head += f"   {'frame at':>8} {'ms':>5} {'style':>6} {'(elts)':>7} {'layout':>7} {'paint':>6}"
+    print(head)
+    for i, r in enumerate(rows, 1):
+        line = (
+            f"{i:>5} {r['sent']:6.1f} {r['busy']:6.1f} {r['first']:6.1f} {r['last']:6.1f} "
+            f"{r['messages']:5.0f} {r['kB']:6.1f} {r['done']:6.1f}"
+        )
+        if "frame_ms" in r:
+            line += (
+                f"   {r['frame_at']:8.1f} {r['frame_ms']:5.1f} {r['frame_style']:6.1f} "
+                f"{r['frame_elements']:7.0f} {r['frame_layout']:7.1f} {r['frame_paint']:6.1f}"
+            )
+        print(line)
+    if rows:
+        med = {k: statistics.median(r[k] for r in rows) for k in ("sent", "busy", "first", "last", "done")}
+        print(
+            "median: sent {sent:.1f}, kernel busy {busy:.1f}, first answer {first:.1f}, "
+            "last answer {last:.1f}, all views {done:.1f}".format(**med)
+        )
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())
