@@ -164,11 +164,11 @@ def test_the_rectangle_brush_selects_rows_by_both_confidences(pair):
     conf_a = special.softmax(np.asarray(a.logits, np.float64), axis=1).max(1)
     conf_b = special.softmax(np.asarray(b.logits, np.float64), axis=1).max(1)[[back[s] for s in a.ids.tolist()]]
     box_x, box_y = (0.5, 0.9), (0.2, 0.8)
-    # the browser brush sends only its extents; Python computes the rows over all rows
-    view._brush.brushing = True
-    view._brush.selected_x = np.array(box_x)
-    view._brush.selected_y = np.array(box_y)
-    view._brush.brushing = False
+    # the browser brush sends only its extents, once, on release (x0, x1, y0, y1; here dragged right to left);
+    # Python computes the rows over all rows
+    assert view.brush_box is None
+    view._brush.box = [box_x[1], box_x[0], box_y[0], box_y[1]]
+    assert view.brush_box == (box_x, box_y)
     inside = (conf_a >= box_x[0]) & (conf_a <= box_x[1]) & (conf_b >= box_y[0]) & (conf_b <= box_y[1])
     assert inside.sum() > 0
     assert view.state.rows.tolist() == np.flatnonzero(inside).tolist()
@@ -179,7 +179,7 @@ def test_the_rectangle_brush_selects_rows_by_both_confidences(pair):
     assert view.image[row, col, 3] > 200
     # another view's selection removes the brush rectangle
     view.state.select([0, 1], origin="python")
-    assert view._brush.selected_x is None
+    assert view.brush_box is None
 
 
 def test_points_are_painted_into_one_image_at_100k_rows():

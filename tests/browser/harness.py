@@ -37,6 +37,8 @@ from dataclasses import dataclass, field
 from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
+import numpy as np
+
 if TYPE_CHECKING:  # playwright is optional at import time: the fixtures skip/fail without it
     from playwright.sync_api import Browser, ConsoleMessage, Locator, Page, Playwright, Request
 
@@ -778,3 +780,25 @@ def record_timing(name: str, seconds: float) -> None:
     tmp = path.with_name(path.name + ".tmp")
     tmp.write_text(json.dumps(data, indent=2, sort_keys=True))
     os.replace(tmp, path)
+
+
+def axis_maps(view: Locator) -> tuple[tuple[float, float], tuple[float, float]]:
+    """Screen pixel = a * value + b for the x and the y axis, fitted through the drawn tick marks."""
+    ticks = view.evaluate(
+        """(root) => Array.from(root.querySelectorAll('g.axis')).map((ax) =>
+             Array.from(ax.querySelectorAll('.tick')).map((t) => {
+               const m = t.getScreenCTM();  // the tick's origin on the screen
+               return [parseFloat(t.querySelector('text').textContent.replace('\u2212', '-')), m.e, m.f];
+             }))"""
+    )
+    maps = {}
+    for axis in ticks:
+        v = np.array([t[0] for t in axis if np.isfinite(t[0])])
+        cx = np.array([t[1] for t in axis if np.isfinite(t[0])])
+        cy = np.array([t[2] for t in axis if np.isfinite(t[0])])
+        if len(v) < 2:
+            continue
+        key, pos = ("x", cx) if np.ptp(cx) > np.ptp(cy) else ("y", cy)
+        a, b = np.polyfit(v, pos, 1)
+        maps[key] = (float(a), float(b))
+    return maps["x"], maps["y"]

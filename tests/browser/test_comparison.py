@@ -12,6 +12,7 @@ import json
 import pytest
 
 from .harness import (
+    axis_maps,
     cell,
     open_notebook,
     read_cell_text,
@@ -54,17 +55,16 @@ panel"""
 
 STATE = """\
 v = panel.view
-br = v._brush
 inside = None
-if br.selected_x is not None and len(br.selected_x) == 2:
-    (x0, x1), (y0, y1) = sorted(br.selected_x), sorted(br.selected_y)
+if v.brush_box is not None:
+    (x0, x1), (y0, y1) = v.brush_box
     inside = np.flatnonzero((conf_a >= x0) & (conf_a <= x1) & (conf_b >= y0) & (conf_b <= y1)).tolist()
 print(json.dumps({
     "selected": panel.selected.tolist(), "origin": panel.state.origin_name,
     "fixed": [i for i, c in enumerate(cells) if c == "fixed"],
     "fixed_ids": [str(a.ids[i]) for i, c in enumerate(cells) if c == "fixed"],
     "eight_changed_ids": [str(a.ids[i]) for i, c in enumerate(cells) if c in ("fixed", "broken") and a.labels[i] == 8],
-    "inside": inside, "gallery": int(panel.gallery.n_shown),
+    "inside": inside, "box": v.brush_box, "gallery": int(panel.gallery.n_shown),
 }))"""
 
 _TILE_IDS_JS = """([i, want]) => {
@@ -179,11 +179,18 @@ def test_flip_cell_class_and_brush_select_in_the_gallery(jupyter_server, noteboo
     assert box is not None and box["width"] > 250 and box["height"] > 250
     scope = _scope(page, 1)
     x, y, w, h = box["x"], box["y"], box["width"], box["height"]
-    _drag(page, x + 0.45 * w, y + 0.15 * h, x + 0.97 * w, y + 0.75 * h)
+    (c0, r0), (c1, r1) = (x + 0.45 * w, y + 0.15 * h), (x + 0.97 * w, y + 0.75 * h)
+    _drag(page, c0, r0, c1, r1)
     _wait_scope_changes(page, 1, scope)
+    # screen position of the data (before the page scrolls), through the axes' tick marks
+    (ax_, bx_), (ay_, by_) = axis_maps(cell(page, 1).locator(".logitscope-comparison-scatter").first)
     _scroll_to(page, 1, ".logitscope-comparison")
     screenshot(page, "comparison-brushed")
     st = _state(page, 2)
+    # the brush sent the extents of the dragged rectangle: its corners, read on the axes, within a pixel
+    (bx0, bx1), (by0, by1) = st["box"]
+    assert sorted([(c0 - bx_) / ax_, (c1 - bx_) / ax_]) == pytest.approx([bx0, bx1], abs=1.0 / abs(ax_))
+    assert sorted([(r0 - by_) / ay_, (r1 - by_) / ay_]) == pytest.approx([by0, by1], abs=1.0 / abs(ay_))
     assert st["inside"] is not None and len(st["inside"]) > 5
     assert st["selected"] == st["inside"] and st["gallery"] == len(st["inside"])
 

@@ -18,6 +18,7 @@ from logitscope.widgets.confusion import short_label
 
 from .harness import (
     NOTEBOOK7_KNOWN_ERRORS,
+    axis_maps,
     cell,
     open_notebook,
     read_cell_text,
@@ -137,7 +138,7 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
     )
     screenshot(page, "dashboard-lab-brushed")
     # screen position of the data (before the next cell scrolls the page), through the axes' tick marks
-    (ax_, bx_), (ay_, by_) = _axis_maps(cell(page, 0).locator(".logitscope-scatter").first)
+    (ax_, bx_), (ay_, by_) = axis_maps(cell(page, 0).locator(".logitscope-scatter").first)
     st = _state(page, 1)
     assert st["origin"] == "score scatter"
     # the brush sent the extents of the dragged rectangle: its corners, read on the axes, within a pixel
@@ -281,28 +282,6 @@ def _inside(px: np.ndarray, py: np.ndarray, poly: np.ndarray) -> np.ndarray:
     return inside
 
 
-def _axis_maps(view) -> tuple[tuple[float, float], tuple[float, float]]:  # type: ignore[no-untyped-def]
-    """Screen pixel = a * value + b for the x and the y axis, fitted through the drawn tick marks."""
-    ticks = view.evaluate(
-        """(root) => Array.from(root.querySelectorAll('g.axis')).map((ax) =>
-             Array.from(ax.querySelectorAll('.tick')).map((t) => {
-               const m = t.getScreenCTM();  // the tick's origin on the screen
-               return [parseFloat(t.querySelector('text').textContent.replace('\u2212', '-')), m.e, m.f];
-             }))"""
-    )
-    maps = {}
-    for axis in ticks:
-        v = np.array([t[0] for t in axis if np.isfinite(t[0])])
-        cx = np.array([t[1] for t in axis if np.isfinite(t[0])])
-        cy = np.array([t[2] for t in axis if np.isfinite(t[0])])
-        if len(v) < 2:
-            continue
-        key, pos = ("x", cx) if np.ptp(cx) > np.ptp(cy) else ("y", cy)
-        a, b = np.polyfit(v, pos, 1)
-        maps[key] = (float(a), float(b))
-    return maps["x"], maps["y"]
-
-
 def _distance_to_path(px: float, py: float, path: np.ndarray) -> float:
     """Smallest distance in pixels from a point to a polyline."""
     a, b = path[:-1], path[1:]
@@ -346,7 +325,7 @@ def test_lasso_selects_the_rows_inside_the_shape(jupyter_server, notebook_dir, b
     screenshot(page, "dashboard-lab-lasso")
     # screen position of the data (before the next cell scrolls the page): a straight-line fit
     # through the axes' tick marks
-    (ax_, bx_), (ay_, by_) = _axis_maps(cell(page, 0).locator(".logitscope-scatter").first)
+    (ax_, bx_), (ay_, by_) = axis_maps(cell(page, 0).locator(".logitscope-scatter").first)
     st = _state(page, 1)
     assert st["origin"] == "score scatter" and len(st["selected"]) > 10
     sx, sy = ax_ * np.array(st["x"]) + bx_, ay_ * np.array(st["y"]) + by_

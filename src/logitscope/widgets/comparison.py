@@ -47,10 +47,11 @@ from ..checkpoints import FrameComparison, compare_frames
 from ..errors import InputTypeError, LabelError, LogitscopeError, ParameterError, ShapeError
 from ..frame import LogitFrame
 from .base import LinkedView
+from .brush import RectangleBrush
 from .card import SampleCard
 from .gallery import SampleGallery
 from .pick_table import PickTable, column
-from .scatter import FADED, PointRaster, QuietBrush
+from .scatter import FADED, PointRaster
 from .state import SharedState
 from .style import REFERENCE, RIGHT, WRONG, css
 
@@ -210,12 +211,9 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         self._ax = bq.Axis(scale=self._sx, label="confidence under A", tick_format=".1f", grid_lines="none")
         self._ay = bq.Axis(scale=self._sy, label="confidence under B", side="left", tick_format=".1f",
                            grid_lines="none")  # fmt: skip
-        self._brush = QuietBrush(x_scale=self._sx, y_scale=self._sy, marks=[], color="#7f9cc0")
-        self._brush.observe(self._on_brush, ["brushing", "selected_x", "selected_y"])
         self.figure = bq.Figure(
             marks=[self._mark, self._diagonal, self._top_mark, self._focus_mark],
             axes=[self._ax, self._ay],
-            interaction=self._brush,
             fig_margin={"top": 10, "bottom": 44, "left": 56, "right": 12},
             padding_x=0.0,
             padding_y=0.0,
@@ -223,6 +221,9 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
             layout=widgets.Layout(width=f"{width + 68}px", height=f"{height + 54}px"),
         )
         self.figure.add_class("logitscope-comparison-scatter")
+        # the rectangle brush is drawn in the browser and sends its extents once, on release (js/brush.js)
+        self._brush = RectangleBrush(self.figure, faded=FADED)
+        self._brush.observe(self._on_brush, "box")
         self.key = widgets.HTML()
 
         # ---- per-class change
@@ -249,7 +250,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
             [self.readout, self.flips_table, self.test_note, widgets.HBox([self.apart, self._apart_button])],
             layout=widgets.Layout(flex="1 1 380px", min_width="340px", padding="0 12px 0 0"),
         )
-        right = widgets.VBox([self.figure, self.key], layout=widgets.Layout(flex="0 0 auto"))
+        right = widgets.VBox([self._brush, self.key], layout=widgets.Layout(flex="0 0 auto"))
         top = widgets.HBox([left, right], layout=widgets.Layout(flex_flow="row wrap", align_items="flex-start"))
         self._content = (top, self.classes_table, self.note)
         widgets.VBox.__init__(self, children=list(self._content), **kwargs)
@@ -535,6 +536,8 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
         self._priority = priority[self._cells]
         self._paint = np.argsort(self._priority, kind="stable")  # the bulk first, changes on top
         self._base: np.ndarray | None = None
+        with self._brush.hold_sync():
+            self._brush.x_range, self._brush.y_range = [lo, hi], [lo, hi]
         with self.figure.hold_sync():
             self._sx.min, self._sx.max = lo, hi
             self._sy.min, self._sy.max = lo, hi
@@ -566,6 +569,7 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
             faded = PointRaster.png(PointRaster.to_rgba8(self._base * np.float32(FADED)))
             old = self._base_widgets
             self._base_widgets = (widgets.Image(value=full, format="png"), widgets.Image(value=faded, format="png"))
+            self._brush.points = self._base_widgets[0]  # the browser paints a brushed selection from it at once
             if old is not None:
                 for wdg in old:
                     wdg.close()
@@ -763,27 +767,28 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
 
     # ------------------------------------------------------------------ brush
 
+    @property
+    def brush_box(self) -> tuple[tuple[float, float], tuple[float, float]] | None:
+        """``((x0, x1), (y0, y1))`` of the rectangle brush drawn on the scatter, each sorted; None without one."""
+        return self._brush.extents
+
     def _clear_brush(self) -> None:
         self._last_box = None
-        if self._brush.selected_x is not None or self._brush.selected_y is not None:
-            with self._brush.hold_sync():
-                self._brush.selected_x = None
-                self._brush.selected_y = None
+        if self._brush.box:
+            self._brush.box = []
 
     def _on_brush(self, change: Any) -> None:
-        b = self._brush
-        if b.brushing:
-            return
-        sx, sy = b.selected_x, b.selected_y
-        if sx is None or sy is None or len(sx) < 2 or len(sy) < 2:
+        extents = self._brush.extents
+        if extents is None:
+            # the brush was removed: clear only a selection this view made
             if self._last_box is not None and self.owns_selection:
                 self._last_box = None
                 self.clear_selection()
             return
-        box = (*sorted((float(sx[0]), float(sx[1]))), *sorted((float(sy[0]), float(sy[1]))))
-        if box == self._last_box:
+        (x0, x1), (y0, y1) = extents
+        if (x0, x1, y0, y1) == self._last_box:
             return
-        self.select_box((box[0], box[1]), (box[2], box[3]))
+        self.select_box((x0, x1), (y0, y1))
 
     # ------------------------------------------------------------------ selection in
 
@@ -804,6 +809,13 @@ class CheckpointComparisonView(LinkedView, widgets.VBox):
                 "comparison (drawn over the rest faded)"
             )
         self.note.value = css("views") + f"<span class='ls-note'>{text}</span>"
+
+    def held_widgets(self) -> list[Any]:
+        # what a selection changes; a picture's own message before the mark that shows it
+        return [
+            *self._top_widgets, self._top_mark, self._mark, self._focus_mark, self._brush, self.note,
+            self.flips_table, self.classes_table, self,
+        ]  # fmt: skip
 
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         if not self.live:

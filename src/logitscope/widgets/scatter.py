@@ -25,7 +25,7 @@ import bqplot as bq
 import ipywidgets as widgets
 import numpy as np
 import traitlets
-from bqplot.interacts import BrushSelector, LassoSelector
+from bqplot.interacts import LassoSelector
 from bqplot.traits import array_serialization
 from PIL import Image as PILImage
 from traittypes import Array  # the array trait bqplot declares its own with
@@ -53,7 +53,6 @@ from .style import (
 __all__ = [
     "FADED",
     "PointRaster",
-    "QuietBrush",
     "QuietLines",
     "ScoreScatter",
 ]
@@ -62,14 +61,6 @@ _COLOR_MODES = {"correct / wrong": "correct", "true class": "label", "predicted 
 #: Alpha factor of the points outside the selection while a selection is shown: faded, still readable
 #: on a white page and on JupyterLab's dark theme.
 FADED = 0.5
-
-
-class QuietBrush(BrushSelector):
-    """bqplot's rectangle brush without echo messages: the kernel does not send each mouse move back."""
-
-    brushing = traitlets.Bool().tag(sync=True, echo_update=False)
-    selected_x = Array(None, allow_none=True).tag(sync=True, echo_update=False, **array_serialization)
-    selected_y = Array(None, allow_none=True).tag(sync=True, echo_update=False, **array_serialization)
 
 
 class QuietLines(bq.Lines):
