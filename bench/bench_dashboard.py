@@ -172,6 +172,21 @@ def _drag(page, x0: float, y0: float, x1: float, y1: float, steps: int = 12) -> 
     page.mouse.up()
 
 
+def _next_rectangle(page, area, i: int) -> tuple[float, float, float, float]:  # type: ignore[no-untyped-def]
+    """Corners of the ``i``-th brush on the plot ``area``; every other brush first clears by a click outside."""
+    box = area.bounding_box()
+    assert box is not None
+    # rectangles of different sizes, always starting outside the previous one
+    x0 = box["x"] + (0.05 + 0.04 * (i % 3)) * box["width"]
+    y0 = box["y"] + (0.05 + 0.03 * (i % 4)) * box["height"]
+    x1 = box["x"] + (0.35 + 0.06 * i) * box["width"] if i < 10 else box["x"] + 0.9 * box["width"]
+    y1 = box["y"] + (0.55 + 0.04 * (i % 5)) * box["height"]
+    if i % 2:  # every other brush: first clear by a click outside the plot's data
+        page.mouse.click(box["x"] + box["width"] - 3, box["y"] + box["height"] - 3)
+        page.wait_for_timeout(300)
+    return x0, y0, x1, y1
+
+
 def _brushes(page, index: int, count: int) -> list[float]:  # type: ignore[no-untyped-def]
     from tests.browser.harness import cell
 
@@ -180,16 +195,7 @@ def _brushes(page, index: int, count: int) -> list[float]:  # type: ignore[no-un
     area.scroll_into_view_if_needed()
     times = []
     for i in range(count):
-        box = area.bounding_box()
-        assert box is not None
-        # rectangles of different sizes, always starting outside the previous one
-        x0 = box["x"] + (0.05 + 0.04 * (i % 3)) * box["width"]
-        y0 = box["y"] + (0.05 + 0.03 * (i % 4)) * box["height"]
-        x1 = box["x"] + (0.35 + 0.06 * i) * box["width"] if i < 10 else box["x"] + 0.9 * box["width"]
-        y1 = box["y"] + (0.55 + 0.04 * (i % 5)) * box["height"]
-        if i % 2:  # every other brush: first clear by a click outside the plot's data
-            page.mouse.click(box["x"] + box["width"] - 3, box["y"] + box["height"] - 3)
-            page.wait_for_timeout(300)
+        x0, y0, x1, y1 = _next_rectangle(page, area, i)
         before = page.evaluate(SIGNATURES_JS, index)
         _drag(page, x0, y0, x1, y1)
         try:

@@ -163,15 +163,7 @@ def main(argv: list[str] | None = None) -> int:
                 area = cell(page, 1).locator(".logitscope-scatter .plotarea_background").first
                 area.scroll_into_view_if_needed()
                 for i in range(args.brushes):
-                    box = area.bounding_box()
-                    assert box is not None
-                    x0 = box["x"] + (0.05 + 0.04 * (i % 3)) * box["width"]
-                    y0 = box["y"] + (0.05 + 0.03 * (i % 4)) * box["height"]
-                    x1 = box["x"] + (0.35 + 0.06 * i) * box["width"]
-                    y1 = box["y"] + (0.55 + 0.04 * (i % 5)) * box["height"]
-                    if i % 2:  # as the bench: every other brush first clears by a click outside the data
-                        page.mouse.click(box["x"] + box["width"] - 3, box["y"] + box["height"] - 3)
-                        page.wait_for_timeout(300)
+                    x0, y0, x1, y1 = bd._next_rectangle(page, area, i)  # the bench's rectangles
                     before = page.evaluate(bd.SIGNATURES_JS, 1)
                     page.evaluate("window.__lsWs = []")
                     trace = base / f"brush-{i}.json"
