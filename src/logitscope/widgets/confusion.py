@@ -122,6 +122,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self.clicked: tuple[int, int] | None = None
         self.outlined: list[tuple[int, int]] = []
         self.cell_text: list[list[str]] = []
+        self._text_key: tuple[bytes, bytes, bool] | None = None
         if not frame.has_labels:
             widgets.VBox.__init__(
                 self, children=[widgets.Label("The confusion matrix needs labels; this frame has none.")]
@@ -363,9 +364,12 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         n = self.n_positions
         m = self.matrix()
         hidden = self._hidden()
-        text = [["" if hidden[i, j] else (f"{m[i, j]:.2f}" if self.normalize else f"{int(m[i, j]):,}")
-                 for j in range(n)] for i in range(n)]  # fmt: skip
-        self.cell_text = text
+        key = (m.tobytes(), hidden.tobytes(), self.normalize)
+        if key != self._text_key:  # a selection changes no cell's number: the texts are made again only when those do
+            self.cell_text = [["" if hidden[i, j] else (f"{m[i, j]:.2f}" if self.normalize else f"{int(m[i, j]):,}")
+                               for j in range(n)] for i in range(n)]  # fmt: skip
+            self._text_key = key
+        text = self.cell_text
         rows_sel = self.state.rows
         if rows_sel.size:
             codes = self._cell[rows_sel]
