@@ -285,18 +285,18 @@ class LogitFrame:
     ) -> None:
         if classes is None and isinstance(logits, pd.DataFrame):
             classes = [str(c) for c in logits.columns]
-        raw = _to_numpy(logits, "logits")
+        given = _to_numpy(logits, "logits")
+        raw = given
         if binary:
-            raw = an.binary_to_two_column(raw)
+            raw = an.binary_to_two_column(given)
         elif raw.ndim == 1 and raw.dtype.kind in "biuf":
             raise ShapeError(
                 f"logits are 1-D (shape {raw.shape}); a binary model's single score per sample (the log-odds "
                 "of class 1, e.g. decision_function) is passed as LogitFrame(scores, binary=True); its "
                 "probabilities of class 1 as LogitFrame.from_probabilities(np.column_stack([1 - p, p]))"
             )
-        z = check_logits(raw, check_finite=False)
-        fresh = z is not raw or isinstance(logits, list | tuple)  # converted: a new array already
-        z = check_logits(z, copy=copy and not fresh)  # a copy is checked as it is made, in the same pass
+        owned = raw is not given or isinstance(logits, list | tuple)  # made here: a new array already
+        z = check_logits(raw, copy=copy and not owned)  # a copy is checked as it is made, in the same pass
         n, k = z.shape
         if source == "logits" and _looks_like_probabilities(z):
             warnings.warn(

@@ -164,9 +164,9 @@ def check_logits(z: Any, what: str = "logits", *, check_finite: bool = True, cop
         :func:`assume_valid`). Pass False when the caller's own pass over the
         matrix detects them (:func:`nonfinite_error`).
     copy : bool, default False
-        Return a new C-ordered array that the caller owns. With numba the
-        copy is checked for finiteness as it is made, so copying and checking
-        cost one pass together.
+        Return a new C-ordered array that the caller owns (integers and
+        booleans are converted into it). With numba the copy is checked for
+        finiteness as it is made, so copying and checking cost one pass together.
 
     Raises
     ------
@@ -183,7 +183,8 @@ def check_logits(z: Any, what: str = "logits", *, check_finite: bool = True, cop
     arr = _to_numpy(z, what)
     if arr.dtype.kind not in FLOAT_KINDS:
         if arr.dtype.kind in "biu":
-            arr = arr.astype(np.float64)
+            arr = arr.astype(np.float64, order="C" if copy else "K")
+            copy = False  # the conversion made the new array asked for
         else:
             raise InputTypeError(f"{what} must hold numbers, got dtype {arr.dtype}")
     if arr.ndim != 2:
