@@ -41,7 +41,10 @@ import statistics
 import sys
 import tempfile
 import time
+from collections.abc import Iterator
+from contextlib import contextmanager
 from pathlib import Path
+from typing import Any
 
 import numpy as np
 
@@ -222,6 +225,68 @@ def _update(page, run: int, dash: int) -> float:  # type: ignore[no-untyped-def]
     return (float(t1.json_value()) - float(t0)) / 1000.0
 
 
+def heat_cells(k: int) -> int:
+    """Cells of the heat map drawn for ``k`` classes: the top 30 classes plus "other" when there are more."""
+    side = min(k, 30) + (1 if k > 30 else 0)
+    return side * side
+
+
+def frame_cell(n: int, k: int) -> str:
+    """The notebook's first cell: the parcel-camera frame of ``n`` x ``k``, named ``frame``."""
+    return (
+        "import sys, time, json\n"
+        f"sys.path.insert(0, {str(REPO / 'bench')!r})\n"
+        "import logitscope\n"
+        "from bench_dashboard import parcel_camera_frame\n"
+        f"frame = parcel_camera_frame({n}, {k})"
+    )
+
+
+def browser_missing() -> bool:
+    """True (and says what is missing) when chromium or playwright is not there."""
+    from tests.browser.harness import missing_browser_requirements
+
+    missing = missing_browser_requirements()
+    if missing:
+        print("cannot run: missing " + ", ".join(missing))
+    return bool(missing)
+
+
+@contextmanager
+def notebook_page(cells: list[str], name: str, init_script: str | None = None) -> Iterator[tuple[Any, Any]]:
+    """JupyterLab started with the browser-test harness and a notebook of ``cells`` open in chromium.
+
+    Yields ``(browser, page)``, the page 1400 x 1000 with ``init_script`` run before the page's own
+    scripts; the server, the browser and the notebook's folder go away afterwards.
+    """
+    from playwright.sync_api import sync_playwright
+    from tests.browser.harness import (
+        launch_chromium,
+        open_notebook,
+        start_jupyter_server,
+        stop_jupyter_server,
+        write_notebook,
+    )
+
+    base = Path(tempfile.mkdtemp(prefix=f"{name}-"))
+    server = start_jupyter_server(base / "root", base / "home")
+    try:
+        path = write_notebook(base / "root", f"{name}.ipynb", cells)
+        with sync_playwright() as pw:
+            browser = launch_chromium(pw)
+            try:
+                page = browser.new_context(viewport={"width": 1400, "height": 1000}).new_page()
+                if init_script:
+                    page.add_init_script(init_script)
+                open_notebook(page, server, path)
+                yield browser, page
+            finally:
+                browser.close()
+    finally:
+        stop_jupyter_server(server)
+        shutil.rmtree(base, ignore_errors=True)
+
+
 def main(argv: list[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--n", type=int, default=100_000)
@@ -231,31 +296,14 @@ def main(argv: list[str] | None = None) -> int:
     parser.add_argument("--screenshots", default=str(REPO / "test-artifacts"))
     args = parser.parse_args(argv)
 
-    from playwright.sync_api import sync_playwright
-    from tests.browser.harness import (
-        launch_chromium,
-        missing_browser_requirements,
-        open_notebook,
-        read_cell_text,
-        run_cell,
-        start_jupyter_server,
-        stop_jupyter_server,
-        write_notebook,
-    )
+    from tests.browser.harness import read_cell_text, run_cell
 
-    missing = missing_browser_requirements()
-    if missing:
-        print("cannot run: missing " + ", ".join(missing))
+    if browser_missing():
         return 2
     shots = Path(args.screenshots)
     shots.mkdir(parents=True, exist_ok=True)
-    base = Path(tempfile.mkdtemp(prefix="bench-dashboard-"))
     cells = [
-        "import sys, time, json\n"
-        f"sys.path.insert(0, {str(REPO / 'bench')!r})\n"
-        "import logitscope\n"
-        "from bench_dashboard import parcel_camera_frame\n"
-        f"frame = parcel_camera_frame({args.n}, {args.k})",
+        frame_cell(args.n, args.k),
         "t0 = time.perf_counter()\n"
         "dash = logitscope.explore(frame, relabel_path='marks.json')\n"
         "python_s = time.perf_counter() - t0\n"
@@ -275,44 +323,30 @@ def main(argv: list[str] | None = None) -> int:
         "dash_big",
         "print(json.dumps({'python_s': python_big_s, 'cells': dash_big.confusion.n_positions ** 2}))",
     ]
-    server = start_jupyter_server(base / "root", base / "home")
-    try:
-        path = write_notebook(base / "root", "bench.ipynb", cells)
-        with sync_playwright() as pw:
-            browser = launch_chromium(pw)
-            try:
-                page = browser.new_context(viewport={"width": 1400, "height": 1000}).new_page()
-                open_notebook(page, server, path)
-                t = time.monotonic()
-                run_cell(page, 0, timeout_ms=600_000)
-                print(f"frame {args.n:,} x {args.k}: built in the kernel in {time.monotonic() - t:.1f} s")
-                cells_small = min(args.k, 30) + (1 if args.k > 30 else 0)
-                render_s = _render(page, 1, cells_small**2)
-                run_cell(page, 2)
-                info = json.loads(read_cell_text(page, 2))
-                page.screenshot(path=str(shots / "bench-dashboard-render.png"))
-                brush_ms = _brushes(page, 1, args.brushes)
-                page.screenshot(path=str(shots / "bench-dashboard-brushed.png"))
-                run_cell(page, 2)
-                after = json.loads(read_cell_text(page, 2))
+    with notebook_page(cells, "bench-dashboard") as (_browser, page):
+        t = time.monotonic()
+        run_cell(page, 0, timeout_ms=600_000)
+        print(f"frame {args.n:,} x {args.k}: built in the kernel in {time.monotonic() - t:.1f} s")
+        render_s = _render(page, 1, heat_cells(args.k))
+        run_cell(page, 2)
+        info = json.loads(read_cell_text(page, 2))
+        page.screenshot(path=str(shots / "bench-dashboard-render.png"))
+        brush_ms = _brushes(page, 1, args.brushes)
+        page.screenshot(path=str(shots / "bench-dashboard-brushed.png"))
+        run_cell(page, 2)
+        after = json.loads(read_cell_text(page, 2))
 
-                run_cell(page, 3, timeout_ms=600_000)
-                update_s = _update(page, 4, 1)
-                run_cell(page, 5)
-                info_update = json.loads(read_cell_text(page, 5))
-                page.screenshot(path=str(shots / "bench-dashboard-updated.png"))
+        run_cell(page, 3, timeout_ms=600_000)
+        update_s = _update(page, 4, 1)
+        run_cell(page, 5)
+        info_update = json.loads(read_cell_text(page, 5))
+        page.screenshot(path=str(shots / "bench-dashboard-updated.png"))
 
-                run_cell(page, 6, timeout_ms=600_000)
-                cells_big = min(args.k_large, 30) + (1 if args.k_large > 30 else 0)
-                render_big_s = _render(page, 7, cells_big**2)
-                run_cell(page, 8)
-                info_big = json.loads(read_cell_text(page, 8))
-                page.screenshot(path=str(shots / "bench-dashboard-k-large.png"))
-            finally:
-                browser.close()
-    finally:
-        stop_jupyter_server(server)
-        shutil.rmtree(base, ignore_errors=True)
+        run_cell(page, 6, timeout_ms=600_000)
+        render_big_s = _render(page, 7, heat_cells(args.k_large))
+        run_cell(page, 8)
+        info_big = json.loads(read_cell_text(page, 8))
+        page.screenshot(path=str(shots / "bench-dashboard-k-large.png"))
 
     median = statistics.median(brush_ms) if brush_ms else float("nan")
     print(f"\nN = {args.n:,}, K = {args.k}; heat map {info['cells']} cells")

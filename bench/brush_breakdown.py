@@ -122,79 +122,48 @@ def main(argv: list[str] | None = None) -> int:
     args = parser.parse_args(argv)
 
     import bench_dashboard as bd
-    from playwright.sync_api import sync_playwright
-    from tests.browser.harness import (
-        cell,
-        launch_chromium,
-        missing_browser_requirements,
-        open_notebook,
-        run_cell,
-        start_jupyter_server,
-        stop_jupyter_server,
-        write_notebook,
-    )
+    from tests.browser.harness import cell, run_cell
 
-    missing = missing_browser_requirements()
-    if missing:
-        print("cannot run: missing " + ", ".join(missing))
+    if bd.browser_missing():
         return 2
-    base = Path(tempfile.mkdtemp(prefix="brush-breakdown-"))
-    cells = [
-        "import sys\n"
-        f"sys.path.insert(0, {str(REPO / 'bench')!r})\n"
-        "import logitscope\n"
-        "from bench_dashboard import parcel_camera_frame\n"
-        f"frame = parcel_camera_frame({args.n}, {args.k})",
-        "dash = logitscope.explore(frame, relabel_path='marks.json')\ndash",
-    ]
+    cells = [bd.frame_cell(args.n, args.k), "dash = logitscope.explore(frame, relabel_path='marks.json')\ndash"]
     rows: list[dict[str, float]] = []
-    server = start_jupyter_server(base / "root", base / "home")
-    try:
-        path = write_notebook(base / "root", "breakdown.ipynb", cells)
-        with sync_playwright() as pw:
-            browser = launch_chromium(pw)
-            try:
-                page = browser.new_context(viewport={"width": 1400, "height": 1000}).new_page()
-                page.add_init_script(WEBSOCKET_LOG_JS)
-                open_notebook(page, server, path)
-                run_cell(page, 0, timeout_ms=600_000)
-                bd._render(page, 1, (min(args.k, 30) + (1 if args.k > 30 else 0)) ** 2)
-                page.evaluate(bd.MOUSEUP_JS)
-                area = cell(page, 1).locator(".logitscope-scatter .plotarea_background").first
-                area.scroll_into_view_if_needed()
-                for i in range(args.brushes):
-                    x0, y0, x1, y1 = bd._next_rectangle(page, area, i)  # the bench's rectangles
-                    before = page.evaluate(bd.SIGNATURES_JS, 1)
-                    page.evaluate("window.__lsWs = []")
-                    trace = base / f"brush-{i}.json"
-                    if args.trace:
-                        browser.start_tracing(
-                            page=page,
-                            path=str(trace),
-                            categories=["devtools.timeline", "disabled-by-default-devtools.timeline", "toplevel"],
-                        )
-                    bd._drag(page, x0, y0, x1, y1)
-                    done = page.wait_for_function(bd.UPDATED_JS, arg=[1, before], polling="raf", timeout=20_000)
-                    page.wait_for_function(  # the kernel's idle status has arrived
-                        "() => window.__lsWs.some((m) => m.state === 'idle' && m.t > window.__lsMouseUp)",
-                        timeout=20_000,
-                    )
-                    row = _split(page.evaluate("window.__lsWs"), float(page.evaluate("window.__lsMouseUp")))
-                    row["done"] = float(done.json_value())
-                    if args.trace:
-                        page.wait_for_timeout(100)
-                        browser.stop_tracing()
-                        frame_split = _longest_frame(trace)
-                        if frame_split:
-                            row.update({f"frame_{k}": v for k, v in frame_split.items()})
-                    rows.append(row)
-                    page.wait_for_timeout(200)
-            finally:
-                browser.close()
-    finally:
-        stop_jupyter_server(server)
-        shutil.rmtree(base, ignore_errors=True)
+    traces = Path(tempfile.mkdtemp(prefix="brush-traces-"))
+    with bd.notebook_page(cells, "brush-breakdown", WEBSOCKET_LOG_JS) as (browser, page):
+        run_cell(page, 0, timeout_ms=600_000)
+        bd._render(page, 1, bd.heat_cells(args.k))
+        page.evaluate(bd.MOUSEUP_JS)
+        area = cell(page, 1).locator(".logitscope-scatter .plotarea_background").first
+        area.scroll_into_view_if_needed()
+        for i in range(args.brushes):
+            x0, y0, x1, y1 = bd._next_rectangle(page, area, i)  # the bench's rectangles
+            before = page.evaluate(bd.SIGNATURES_JS, 1)
+            page.evaluate("window.__lsWs = []")
+            trace = traces / f"brush-{i}.json"
+            if args.trace:
+                browser.start_tracing(
+                    page=page,
+                    path=str(trace),
+                    categories=["devtools.timeline", "disabled-by-default-devtools.timeline", "toplevel"],
+                )
+            bd._drag(page, x0, y0, x1, y1)
+            done = page.wait_for_function(bd.UPDATED_JS, arg=[1, before], polling="raf", timeout=20_000)
+            page.wait_for_function(  # the kernel's idle status has arrived
+                "() => window.__lsWs.some((m) => m.state === 'idle' && m.t > window.__lsMouseUp)",
+                timeout=20_000,
+            )
+            row = _split(page.evaluate("window.__lsWs"), float(page.evaluate("window.__lsMouseUp")))
+            row["done"] = float(done.json_value())
+            if args.trace:
+                page.wait_for_timeout(100)
+                browser.stop_tracing()
+                frame_split = _longest_frame(trace)
+                if frame_split:
+                    row.update({f"frame_{k}": v for k, v in frame_split.items()})
+            rows.append(row)
+            page.wait_for_timeout(200)
 
+    shutil.rmtree(traces, ignore_errors=True)
     print(f"N = {args.n:,}, K = {args.k}: ms after the mouse-up, per brush")
     head = f"{'brush':>5} {'sent':>6} {'busy':>6} {'first':>6} {'last':>6} {'msgs':>5} {'kB':>6} {'done':>6}"
     if args.trace:
