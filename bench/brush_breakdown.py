@@ -9,11 +9,14 @@ main thread does:
 - ``busy``: the kernel's "busy" status arrives (the round trip through the
   Jupyter server to the kernel and back);
 - ``first`` / ``last``: the first and the last widget message of the answer
-  arrive, and how many there were and their bytes;
+  arrive, and how many there were and their bytes; before each, ``made``: when
+  the kernel made that message (its header's time, to the millisecond);
 - ``done``: every view shows the selection (the same condition as the bench);
 - ``frame``: with ``--trace``, the longest main-thread task after the mouse-up
   and its style recalculation, layout and paint (milliseconds, with the number
-  of elements restyled).
+  of elements restyled), and ``main``: the main thread's busy time from the
+  mouse-up until every view shows the selection (near ``done`` when the page's
+  own work, not the kernel, is what the brush waits for).
 
 All times are milliseconds after the mouse-up. The scenario is the parcel
 camera of ``bench/bench_dashboard.py`` (seeded synthetic logits).
@@ -52,7 +55,9 @@ function Logged(url, protocols) {
     }
     const type = (head.match(/"msg_type":\s*"([a-z_]+)"/) || [])[1] || '';
     const state = (head.match(/"execution_state":\s*"([a-z]+)"/) || [])[1] || '';
-    window.__lsWs.push({t, size, type, state});
+    const date = (head.match(/"date":\s*"([^"]+)"/) || [])[1];
+    const made = date ? Date.parse(date) - performance.timeOrigin : NaN;  // the kernel's header time
+    window.__lsWs.push({t, size, type, state, made});
   });
   const send = ws.send.bind(ws);
   ws.send = (data) => { window.__lsWs.push({t: performance.now(), sent: true}); return send(data); };
@@ -74,13 +79,18 @@ def _split(log: list[dict[str, Any]], up: float) -> dict[str, float]:
         "busy": busy,
         "first": comms[0]["t"] - up if comms else float("nan"),
         "last": comms[-1]["t"] - up if comms else float("nan"),
+        "made_first": comms[0]["made"] - up if comms else float("nan"),
+        "made_last": comms[-1]["made"] - up if comms else float("nan"),
         "messages": float(len(comms)),
         "kB": sum(m["size"] for m in comms) / 1000.0,
     }
 
 
-def _longest_frame(path: Path) -> dict[str, float] | None:
-    """The longest main-thread task after the mouse-up in a chromium trace, split into its rendering steps."""
+def _longest_frame(path: Path, until_ms: float) -> dict[str, float] | None:
+    """The longest main-thread task after the mouse-up in a chromium trace, split into its rendering steps.
+
+    Also ``main``: the main thread's time in tasks begun from the mouse-up until ``until_ms`` after it.
+    """
     events = json.loads(path.read_text())
     events = events["traceEvents"] if isinstance(events, dict) else events
     ups = [
@@ -102,6 +112,9 @@ def _longest_frame(path: Path) -> dict[str, float] | None:
     def total(name: str) -> float:
         return sum(e.get("dur", 0) for e in inside if e.get("name") == name) / 1000.0
 
+    # the main thread's work from the mouse-up until then (top-level tasks only, not the ones nested in them)
+    tops = [e for e in mine if e.get("name") == task["name"] and e["ts"] <= up["ts"] + until_ms * 1000]
+    tops = [e for e in tops if not any(o is not e and o["ts"] <= e["ts"] < o["ts"] + o.get("dur", 0) for o in tops)]
     restyled = sum(e.get("args", {}).get("elementCount", 0) for e in inside if e.get("name") == "UpdateLayoutTree")
     return {
         "at": (task["ts"] - up["ts"]) / 1000.0,
@@ -110,6 +123,7 @@ def _longest_frame(path: Path) -> dict[str, float] | None:
         "elements": float(restyled),
         "layout": total("Layout"),
         "paint": total("Paint") + total("PrePaint"),
+        "main": sum(e.get("dur", 0) for e in tops) / 1000.0,
     }
 
 
@@ -157,7 +171,7 @@ def main(argv: list[str] | None = None) -> int:
             if args.trace:
                 page.wait_for_timeout(100)
                 browser.stop_tracing()
-                frame_split = _longest_frame(trace)
+                frame_split = _longest_frame(trace, row["done"])
                 if frame_split:
                     row.update({f"frame_{k}": v for k, v in frame_split.items()})
             rows.append(row)
@@ -165,19 +179,23 @@ def main(argv: list[str] | None = None) -> int:
 
     shutil.rmtree(traces, ignore_errors=True)
     print(f"N = {args.n:,}, K = {args.k}: ms after the mouse-up, per brush")
-    head = f"{'brush':>5} {'sent':>6} {'busy':>6} {'first':>6} {'last':>6} {'msgs':>5} {'kB':>6} {'done':>6}"
+    head = (
+        f"{'brush':>5} {'sent':>6} {'busy':>6} {'made':>6} {'first':>6} {'made':>6} {'last':>6} "
+        f"{'msgs':>5} {'kB':>6} {'done':>6}"
+    )
     if args.trace:
-        head += f"   {'frame at':>8} {'ms':>5} {'style':>6} {'(elts)':>7} {'layout':>7} {'paint':>6}"
+        head += f"   {'frame at':>8} {'ms':>5} {'style':>6} {'(elts)':>7} {'layout':>7} {'paint':>6} {'main':>6}"
     print(head)
     for i, r in enumerate(rows, 1):
         line = (
-            f"{i:>5} {r['sent']:6.1f} {r['busy']:6.1f} {r['first']:6.1f} {r['last']:6.1f} "
+            f"{i:>5} {r['sent']:6.1f} {r['busy']:6.1f} {r['made_first']:6.1f} {r['first']:6.1f} "
+            f"{r['made_last']:6.1f} {r['last']:6.1f} "
             f"{r['messages']:5.0f} {r['kB']:6.1f} {r['done']:6.1f}"
         )
         if "frame_ms" in r:
             line += (
                 f"   {r['frame_at']:8.1f} {r['frame_ms']:5.1f} {r['frame_style']:6.1f} "
-                f"{r['frame_elements']:7.0f} {r['frame_layout']:7.1f} {r['frame_paint']:6.1f}"
+                f"{r['frame_elements']:7.0f} {r['frame_layout']:7.1f} {r['frame_paint']:6.1f} {r['frame_main']:6.1f}"
             )
         print(line)
     if rows:
@@ -185,6 +203,7 @@ def main(argv: list[str] | None = None) -> int:
         print(
             "median: sent {sent:.1f}, kernel busy {busy:.1f}, first answer {first:.1f}, "
             "last answer {last:.1f}, all views {done:.1f}".format(**med)
+            + (f", main thread busy {statistics.median(r['frame_main'] for r in rows):.1f}" if args.trace else "")
         )
     return 0
 

@@ -84,7 +84,7 @@ def test_selected_from_python_reaches_every_view(dash, mailroom):
     np.testing.assert_array_equal(sel[0], np.histogram(conf[rows][right], edges)[0])
     np.testing.assert_array_equal(sel[1], np.histogram(conf[rows][~right], edges)[0])
     cells = sorted({(int(y[r]), int(pred[r])) for r in rows})
-    assert sorted(map(tuple, dash.confusion._grid.selected.tolist())) == cells
+    assert dash.confusion.outlined == cells
     assert dash._selection.value.startswith("5 of 1,797 samples selected from Python")
     dash._clear.click()
     assert dash.selected.size == 0 and dash.gallery.n_shown == mailroom.n_samples

@@ -392,9 +392,9 @@ def test_confusion_highlights_cells_of_a_selection(mailroom):
     rows = np.array([0, 5, 10, 11, 300, 1796])
     view.state.select(rows, origin="test")
     expected = sorted({(int(y[r]), int(pred[r])) for r in rows})
-    assert sorted(map(tuple, view._grid.selected.tolist())) == expected
+    assert view.outlined == expected
     view.state.clear("test")
-    assert view._grid.selected is None
+    assert view.outlined == [] and not view._outline.visible
 
 
 def test_confusion_pairs_within_top_k_against_torch(parcels):
@@ -568,6 +568,19 @@ def _label_map(mark) -> dict:  # type: ignore[no-untyped-def]
     return {(r, c): t for r, c, t in zip(rows, cols, texts, strict=True)}
 
 
+def _outlined_squares(view: ConfusionHeatmap) -> list[tuple[int, int]]:
+    """The (row, column) of each closed unit square of the confusion view's outline path (NaN between squares)."""
+    x, y = np.asarray(view._outline.x, dtype=float), np.asarray(view._outline.y, dtype=float)
+    n = view.n_positions
+    squares = []
+    for xs, ys in zip(np.split(x, np.flatnonzero(np.isnan(x))), np.split(y, np.flatnonzero(np.isnan(y))), strict=True):
+        xs, ys = xs[~np.isnan(xs)], ys[~np.isnan(ys)]
+        assert xs.size == 5 and xs[0] == xs[-1] and ys[0] == ys[-1]  # closed
+        assert np.ptp(xs) == 1 and np.ptp(ys) == 1  # one cell wide and high
+        squares.append((int(n - ys.max()), int(xs.min())))
+    return sorted(squares)
+
+
 def test_confusion_selection_is_outlined_with_its_counts(mailroom):
     view = ConfusionHeatmap(mailroom)
     y = np.asarray(mailroom.labels)
@@ -578,8 +591,8 @@ def test_confusion_selection_is_outlined_with_its_counts(mailroom):
     # the selected rows' own confusion matrix (scikit-learn) says which cells hold them and how many
     sel = sk_confusion_matrix(y[rows], pred[rows], labels=range(10))
     assert view.outlined == [(int(i), int(j)) for i, j in np.argwhere(sel > 0)]
-    assert sorted(map(tuple, view._grid.selected.tolist())) == view.outlined
-    assert view._grid.selected_style["stroke-width"] == "3px" and view._grid.unselected_style == {}  # nothing fades
+    assert _outlined_squares(view) == view.outlined  # the one outline path goes round exactly those cells
+    assert view._grid.selected is None and view._grid.unselected_style == {}  # no cell is restyled: nothing fades
     got = _label_map(view._selected_numbers)
     names = mailroom.classes
     for i, j in view.outlined:

@@ -389,6 +389,29 @@ print(json.dumps({"outlined": c.outlined, "diag": [c.cell_text[i][i] for i in ra
                   "label": list(dash.calibration.sweep.marker_label.text)}))"""
 
 
+# JS: for each square of the confusion view's outline path, the row-major index of the heat-map cell it
+# covers on the screen (every corner within 1 px), or -1 when it covers none; sorted.
+OUTLINE_ON_CELLS_JS = """
+(root) => {
+  const path = root.querySelector('path.line');
+  const cells = Array.from(root.querySelectorAll('.heatmapcell')).map((c) => c.getBoundingClientRect());
+  const ctm = path.getScreenCTM();
+  const found = [];
+  for (const sub of (path.getAttribute('d') || '').split('M').filter((s) => s.trim())) {
+    const v = (sub.match(/-?[0-9.]+(?:e-?[0-9]+)?/g) || []).map(Number);
+    const xs = [], ys = [];
+    for (let i = 0; i + 1 < v.length; i += 2) {
+      const p = new DOMPoint(v[i], v[i + 1]).matrixTransform(ctm);
+      xs.push(p.x); ys.push(p.y);
+    }
+    const box = [Math.min(...xs), Math.min(...ys), Math.max(...xs), Math.max(...ys)];
+    found.push(cells.findIndex((r) => [r.left, r.top, r.right, r.bottom].every((e, k) => Math.abs(e - box[k]) <= 1)));
+  }
+  return found.sort((a, b) => a - b);
+}
+"""
+
+
 def test_confusion_selection_blank_diagonal_and_sweep_label(jupyter_server, notebook_dir, browser_page, browser_log):
     page = browser_page
     cells = [SELECT, "dash.confusion.hide_diagonal = True", CONFUSION_STATE]
@@ -402,10 +425,11 @@ def test_confusion_selection_blank_diagonal_and_sweep_label(jupyter_server, note
     # a selection from Python: each cell holding selected rows is outlined and says how many
     page.wait_for_function("(el) => el.querySelectorAll('text.label').length > 100", arg=heat.element_handle())
     got = _kernel_json(page, 3)
-    outlined = heat.locator(".heatmapcell").evaluate_all(
-        "(els) => els.filter((e) => getComputedStyle(e).strokeWidth === '3px').length"
-    )
-    assert outlined == len(got["outlined"]) > 0
+    # the outline path's squares, on the screen, lie exactly on the outlined cells (row-major index, 1 px)
+    on_cells = heat.evaluate(OUTLINE_ON_CELLS_JS)
+    assert on_cells == sorted(i * 10 + j for i, j in got["outlined"]) and on_cells
+    VIEWS_DIR.mkdir(parents=True, exist_ok=True)
+    heat.locator(".bqplot").first.screenshot(path=str(VIEWS_DIR / "mailroom-confusion-outlined.png"))
     sel_texts = [t for t in heat.locator("text.label").all_text_contents() if t.endswith(" sel.")]
     assert len(sel_texts) == len(got["outlined"])
     # a hidden diagonal leaves its cells blank, not 0.00

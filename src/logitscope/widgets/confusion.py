@@ -61,6 +61,21 @@ def short_label(name: str, limit: int = _LABEL_CHARS) -> str:
     return shorten(name, limit, where="middle")
 
 
+def _squares(cells: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """x and y of one path round the cells numbered ``cells`` (row * n + column) of an n x n grid.
+
+    Each cell is a closed unit square on scales of cell edges (x from 0 at the left, y from 0 at the
+    bottom: the first row is drawn at the top); NaN between squares breaks the path. No NaN at the end:
+    bqplot puts a line's label at its last point.
+    """
+    i, j = (cells // n).astype(np.float32), (cells % n).astype(np.float32)  # whole numbers: float32 is exact
+    top = n - i
+    gap = np.full_like(i, np.nan)
+    x = np.stack([j, j + 1, j + 1, j, j, gap], axis=1).ravel()[:-1]
+    y = np.stack([top, top, top - 1, top - 1, top, gap], axis=1).ravel()[:-1]
+    return x, y
+
+
 class ConfusionHeatmap(LinkedView, widgets.VBox):
     """Heat map of the confusion matrix (rows true class, columns predicted class).
 
@@ -134,8 +149,10 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self._ready = True
         self._max_classes = max_classes
         self._compute_structure()
-        self._s_row = bq.OrdinalScale(reverse=True)
-        self._s_col = bq.OrdinalScale()
+        # no scale is padded (the labels would pad theirs, the outline its own by other amounts): the cells
+        # fill the plot area, and the outline's edges 0 to n fall on theirs
+        self._s_row = bq.OrdinalScale(reverse=True, allow_padding=False)
+        self._s_col = bq.OrdinalScale(allow_padding=False)
         self._s_color = bq.ColorScale(colors=[_ZERO_COLOR, _FULL_COLOR], min=0.0)
         self._tooltip = bq.Tooltip(
             fields=["row", "column", "color"], labels=["true class", "predicted", "samples"], formats=["", "", ".0f"]
@@ -146,12 +163,20 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             color=np.zeros((self.n_positions, self.n_positions)),
             scales={"row": self._s_row, "column": self._s_col, "color": self._s_color},
             stroke="white",
-            # a selection is an outline round each cell holding selected rows; nothing fades
-            selected_style={"stroke": SELECTED, "stroke-width": "3px"},
-            unselected_style={},
             display_format=None,
             tooltip=self._tooltip,
         )
+        # a selection is an outline round each cell holding selected rows, all of them one path on scales
+        # of cell edges (0 to n, the grid fills the plot): a selection redraws that one path, where the heat
+        # map's own "selected" cells would restyle every cell of the grid
+        n0 = float(self.n_positions)
+        self._s_edge_x = bq.LinearScale(min=0.0, max=n0, allow_padding=False)
+        self._s_edge_y = bq.LinearScale(min=0.0, max=n0, allow_padding=False)
+        x0, y0 = _squares(np.zeros(1, dtype=np.int64), self.n_positions)  # hidden until a selection
+        self._outline = bq.Lines(
+            x=x0, y=y0, scales={"x": self._s_edge_x, "y": self._s_edge_y},
+            colors=[SELECTED], stroke_width=3, apply_clip=False, interactions={}, visible=False,
+        )  # fmt: skip
         self._grid.on_element_click(self._on_cell_click)
         label_scales = {"x": self._s_col, "y": self._s_row}
         size = 11 if self.n_positions <= 8 else 10
@@ -167,7 +192,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         self._ax_row = bq.Axis(scale=self._s_row, side="left", label="true class", grid_lines="none")
         self.figure = bq.Figure(
             display_toolbar=False,
-            marks=[self._grid, self._numbers, self._selected_numbers],
+            marks=[self._grid, self._outline, self._numbers, self._selected_numbers],
             axes=[self._ax_col, self._ax_row],
             padding_x=0.0,
             padding_y=0.0,
@@ -399,6 +424,16 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
                     self._selected_numbers.text = [f"{int(per_cell[i, j]):,} sel." for i, j in cells]
                 self._selected_numbers.visible = bool(cells.size)
 
+    def _draw_outline(self, cells: np.ndarray) -> None:
+        """One path round the cells numbered ``cells`` (row * n + column): a closed square each, gaps between."""
+        if cells.size == 0:  # the path is hidden, not emptied: bqplot puts a line's label at its last point
+            self._outline.visible = False
+            return
+        x, y = _squares(cells, self.n_positions)
+        with self._outline.hold_sync():
+            self._outline.x, self._outline.y = x, y
+            self._outline.visible = True
+
     def _on_k(self, change: Any = None) -> None:
         self.pairs = list(self.summary_at(self.k).pairs)
         names = self.frame.classes
@@ -439,14 +474,14 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
         if not self.owns_selection or rows.size == 0:
             self._reset_click_buttons()
         if rows.size == 0:
-            self._grid.selected = None
+            self._draw_outline(np.zeros(0, dtype=np.int64))
             self._note.value = ""
             self._draw_numbers()
             return
         n = self.n_positions
         codes = self._cell[rows]
         cells = np.flatnonzero(np.bincount(codes[codes >= 0], minlength=n * n))
-        self._grid.selected = np.stack([cells // n, cells % n], axis=1).astype(np.int32)
+        self._draw_outline(cells)
         self._draw_numbers()
         held = "" if n <= MAX_NUMBERED else " (hover a cell for its numbers)"
         # no stylesheet of its own: the pair panel's heading carries it for the whole view (a <style>
@@ -572,7 +607,10 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
     def held_widgets(self) -> list[Any]:
         if not self._ready:
             return []
-        return [self._grid, self._numbers, self._selected_numbers, self._note, self._row_button, self._col_button]
+        return [
+            self._grid, self._outline, self._numbers, self._selected_numbers, self._note, self._row_button,
+            self._col_button,
+        ]  # fmt: skip
 
     def on_selection(self, rows: np.ndarray, mine: bool) -> None:
         if self._ready:
@@ -587,6 +625,7 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             with self._grid.hold_sync():
                 keys = np.asarray(self._keys, dtype=object)
                 self._grid.row, self._grid.column = keys, keys
+            self._s_edge_x.max = self._s_edge_y.max = float(self.n_positions)
             self._place_ticks()
         self._reset_click_buttons()
         self._recolor()
