@@ -328,6 +328,13 @@ def test_histogram_counts_match_numpy_histogram(parcels):
     assert view._sel_bars.visible and view._bars.opacities == [0.3, 0.3]
     view.state.clear("test")
     assert not view._sel_bars.visible
+    # the count axis ends at the tallest bar drawn: the tallest stack (numpy.histogram of all confidences),
+    # or side by side the tallest single bar; a selection leaves it where it is
+    assert view._sy.min == 0 and view._sy.max == np.histogram(conf, edges)[0].max()
+    view.state.select(rows, origin="test")
+    assert view._sy.max == np.histogram(conf, edges)[0].max()
+    view.layout_mode = "side by side"
+    assert view._sy.max == max(right.max(), wrong.max())
 
 
 def test_histogram_other_score_and_temperature(parcels):

@@ -212,9 +212,13 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
         with self.figure.hold_sync():
             self._sx.min, self._sx.max = lo - width / 2, hi + width / 2
             self._ax.tick_values = np.asarray(nice_ticks(lo, hi, n=6))
+            counts = self.counts()
             with self._bars.hold_sync():
                 self._bars.x = centres
-                self._bars.y = self.counts()
+                self._bars.y = counts
+            # the count axis is fixed by the tallest bar: a selection's bars (never taller) leave it alone,
+            # where a domain taken from the data would be worked out again, and both marks redrawn, each time
+            self._fix_count_axis()
             self._ax.label = SCORE_NAMES.get(self.score, self.score)
             with self._sel_bars.hold_sync():
                 self._sel_bars.x = centres
@@ -248,10 +252,18 @@ class ConfidenceHistogram(LinkedView, widgets.VBox):
         self._brush.selected = None  # bqplot redraws the brush from it (its reset does nothing)
         self._redraw()
 
+    def _fix_count_axis(self) -> None:
+        """The count axis from 0 to the tallest bar drawn (a stack, or one bar side by side)."""
+        counts = np.asarray(self._bars.y)
+        tallest = counts.sum(axis=0).max() if self.layout_mode == "stacked" else counts.max()
+        self._sy.max = float(max(tallest, 1))
+
     def _on_layout_mode(self, change: Any = None) -> None:
         kind = "stacked" if self.layout_mode == "stacked" else "grouped"
-        self._bars.type = kind
-        self._sel_bars.type = kind
+        with self.figure.hold_sync():
+            self._bars.type = kind
+            self._sel_bars.type = kind
+            self._fix_count_axis()
 
     # ------------------------------------------------------------------ selection out
 
