@@ -23,7 +23,12 @@ measures, in the page (``performance.now()``):
   checkpoint's logits are made in the cell before (a training loop has them
   before it calls update); the timed cell makes the frame from them (copy and
   check included) and updates the dashboard;
-- render with ``--k-large`` classes (heat map shows the top classes plus "other").
+- render with ``--k-large`` classes (heat map shows the top classes plus "other");
+- baseline, on the same page after the brushes: a button's click to the kernel,
+  whose callback writes one number into an HTML widget, until the page shows
+  it (median over ``--brushes`` clicks), and the brush as a multiple of it. It
+  is the floor of any linked view here: the Jupyter server's relay both ways,
+  the kernel's busy and idle messages, and JupyterLab's handling of them.
 
 Targets: render < 3 s, brush median < 100 ms (the issue's target for chromium) and update < 1 s at N = 100,000, K = 100.
 
@@ -211,6 +216,40 @@ def _brushes(page, index: int, count: int) -> list[float]:  # type: ignore[no-un
     return times
 
 
+# The baseline: the smallest linked round trip there is. A button's click goes to the kernel, whose
+# callback writes one number into an HTML widget, which the page then shows. Same page, server and kernel
+# as the brush (the dashboard is on the page), so the ratio brush / baseline is what the views add.
+ECHO_CELL = (
+    "import ipywidgets\n"
+    "echo_button = ipywidgets.Button(description='echo')\n"
+    "echo_text = ipywidgets.HTML('0', _dom_classes=['bench-echo'])\n"
+    "def _echo(_):\n"
+    "    echo_text.value = str(int(echo_text.value) + 1)\n"
+    "echo_button.on_click(_echo)\n"
+    "ipywidgets.HBox([echo_button, echo_text])"
+)
+ECHOED_JS = """(before) => { const e = document.querySelector('.bench-echo');
+  const t = e ? e.textContent.trim() : ''; return t && t !== before ? performance.now() - window.__lsMouseUp : false; }"""
+
+
+def _echoes(page, index: int, count: int) -> list[float]:  # type: ignore[no-untyped-def]
+    """Milliseconds from the mouse-up of a click on the echo button of cell ``index`` until its number changes."""
+    from tests.browser.harness import cell, run_cell
+
+    run_cell(page, index)
+    page.evaluate(MOUSEUP_JS)
+    button = cell(page, index).get_by_role("button", name="echo")
+    button.scroll_into_view_if_needed()
+    page.wait_for_selector(".bench-echo")
+    times = []
+    for _ in range(count):
+        before = page.evaluate("() => document.querySelector('.bench-echo').textContent.trim()")
+        button.click()
+        times.append(float(page.wait_for_function(ECHOED_JS, arg=before, polling="raf", timeout=20_000).json_value()))
+        page.wait_for_timeout(200)
+    return times
+
+
 def _update(page, run: int, dash: int) -> float:  # type: ignore[no-untyped-def]
     """Seconds from Shift+Enter on the update cell ``run`` until the dashboard of cell ``dash`` shows the frame."""
     from tests.browser.harness import cell
@@ -322,6 +361,7 @@ def main(argv: list[str] | None = None) -> int:
         "python_big_s = time.perf_counter() - t0\n"
         "dash_big",
         "print(json.dumps({'python_s': python_big_s, 'cells': dash_big.confusion.n_positions ** 2}))",
+        ECHO_CELL,
     ]
     with notebook_page(cells, "bench-dashboard") as (_browser, page):
         t = time.monotonic()
@@ -333,6 +373,7 @@ def main(argv: list[str] | None = None) -> int:
         page.screenshot(path=str(shots / "bench-dashboard-render.png"))
         brush_ms = _brushes(page, 1, args.brushes)
         page.screenshot(path=str(shots / "bench-dashboard-brushed.png"))
+        echo_ms = _echoes(page, 9, args.brushes)
         run_cell(page, 2)
         after = json.loads(read_cell_text(page, 2))
 
@@ -357,6 +398,8 @@ def main(argv: list[str] | None = None) -> int:
         (f"brush to all views updated, median of {len(brush_ms)} (ms)", median, TARGET_BRUSH_MS),
         ("  fastest brush (ms)", min(brush_ms) if brush_ms else float("nan"), None),
         ("  slowest brush (ms)", max(brush_ms) if brush_ms else float("nan"), None),
+        (f"baseline: a button's round trip, median of {len(echo_ms)} (ms)", statistics.median(echo_ms), None),
+        ("  brush / baseline", median / statistics.median(echo_ms), None),
         ("update to a new frame, Shift+Enter to views redrawn (s)", update_s, TARGET_UPDATE_S),
         ("  of which Python shows the new frame (s)", info_update["update_python_s"], None),
         (f"render with K = {args.k_large:,} (s)", render_big_s, TARGET_RENDER_S),
@@ -367,6 +410,7 @@ def main(argv: list[str] | None = None) -> int:
         tgt = "" if target is None else f"< {target:g}"
         print(f"{name:48s} {value:10.3f} {tgt:>10s}  {verdict}")
     print(f"brush times (ms): {', '.join(f'{v:.0f}' for v in brush_ms)}")
+    print(f"baseline times (ms): {', '.join(f'{v:.0f}' for v in echo_ms)}")
     print(f"last selection after the brushes: {after['selected']:,} rows; after the update {info_update['selected']:,}")
     return 0
 
