@@ -229,7 +229,8 @@ ECHO_CELL = (
     "ipywidgets.HBox([echo_button, echo_text])"
 )
 ECHOED_JS = """(before) => { const e = document.querySelector('.bench-echo');
-  const t = e ? e.textContent.trim() : ''; return t && t !== before ? performance.now() - window.__lsMouseUp : false; }"""
+  const t = e ? e.textContent.trim() : '';
+  return t && t !== before ? performance.now() - window.__lsMouseUp : false; }"""
 
 
 def _echoes(page, index: int, count: int) -> list[float]:  # type: ignore[no-untyped-def]
