@@ -384,8 +384,17 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
                 hidden[-1, -1] = False  # it holds the confusions among the "other" classes
         return hidden
 
-    def _draw_numbers(self) -> None:
-        """Each cell's number (blank where hidden), and under it how many selected rows the cell holds."""
+    def _selected_per_cell(self) -> np.ndarray:
+        """How many selected rows each cell holds, (n, n); unlabelled rows fall in no cell."""
+        n = self.n_positions
+        codes = self._cell[self.state.rows]
+        return np.bincount(codes[codes >= 0], minlength=n * n).reshape(n, n)
+
+    def _draw_numbers(self, per_cell: np.ndarray | None = None) -> None:
+        """Each cell's number (blank where hidden), and under it how many selected rows the cell holds.
+
+        ``per_cell`` is :meth:`_selected_per_cell` when the caller has it already.
+        """
         n = self.n_positions
         m = self.matrix()
         hidden = self._hidden()
@@ -396,11 +405,8 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             self._text_key = key
         text = self.cell_text
         rows_sel = self.state.rows
-        if rows_sel.size:
-            codes = self._cell[rows_sel]
-            per_cell = np.bincount(codes[codes >= 0], minlength=n * n).reshape(n, n)  # unlabelled rows: no cell
-        else:
-            per_cell = np.zeros((n, n), dtype=np.int64)
+        if per_cell is None:
+            per_cell = self._selected_per_cell()
         cells = np.argwhere(per_cell > 0)
         self.outlined = [(int(i), int(j)) for i, j in cells]
         show = n <= MAX_NUMBERED
@@ -479,10 +485,10 @@ class ConfusionHeatmap(LinkedView, widgets.VBox):
             self._draw_numbers()
             return
         n = self.n_positions
-        codes = self._cell[rows]
-        cells = np.flatnonzero(np.bincount(codes[codes >= 0], minlength=n * n))
+        per_cell = self._selected_per_cell()  # counted once, for the outline and the numbers
+        cells = np.flatnonzero(per_cell)
         self._draw_outline(cells)
-        self._draw_numbers()
+        self._draw_numbers(per_cell)
         held = "" if n <= MAX_NUMBERED else " (hover a cell for its numbers)"
         # no stylesheet of its own: the pair panel's heading carries it for the whole view (a <style>
         # element put in the page on every selection makes the browser restyle the whole page)
