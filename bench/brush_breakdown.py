@@ -200,10 +200,11 @@ def main(argv: list[str] | None = None) -> int:
         print(line)
     if rows:
         med = {k: statistics.median(r[k] for r in rows) for k in ("sent", "busy", "first", "last", "done")}
+        traced = [r["frame_main"] for r in rows if "frame_main" in r]  # a trace without the mouse-up gives none
         print(
             "median: sent {sent:.1f}, kernel busy {busy:.1f}, first answer {first:.1f}, "
             "last answer {last:.1f}, all views {done:.1f}".format(**med)
-            + (f", main thread busy {statistics.median(r['frame_main'] for r in rows):.1f}" if args.trace else "")
+            + (f", main thread busy {statistics.median(traced):.1f}" if traced else "")
         )
     return 0
 
