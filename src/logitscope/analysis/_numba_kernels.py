@@ -4,7 +4,8 @@ Importing this module fails when numba is missing; the callers then use the
 numpy path, which computes the same quantities. Rows run in parallel threads.
 Each row is scanned in short loops that the compiler turns into SIMD code:
 the maximum, then the exponential sums, then the arg-max with the count of
-ties at the top, then the runner-up. Every loop must stay vectorisable, so:
+ties at the top, then the runner-up (the comparisons in the input's own dtype,
+the sums in float64). Every loop must stay vectorisable, so:
 
 - maxima use LLVM's ``maxnum`` (:func:`maxnum`); numba's ``max`` compiles to a
   compare-and-branch that the vectoriser gives up on;
@@ -134,15 +135,22 @@ def exp_nonpositive_array(x):  # pragma: no cover - compiled
 
 
 @numba.njit(**_OPTS)
-def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, logptrue, ptrue, brier, rank):
-    """Every per-sample score of each row; returns the number of rows holding NaN or an infinity."""
+def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, logptrue, ptrue, brier, rank, neg_inf):
+    """Every per-sample score of each row; returns the number of rows holding NaN or an infinity.
+
+    ``neg_inf`` is minus infinity in the dtype of ``z``. The order statistics (maximum, arg-max, ties,
+    runner-up, rank) compare the values in that dtype, twice as many to a vector for float32 as in
+    float64, with the same answers (widening a float is exact and keeps the order); only the
+    exponential sums run in float64.
+    """
     n, k = z.shape
     nonfinite = 0
     for i in numba.prange(n):
         row = z[i]
-        top = -np.inf
+        top_z = neg_inf
         for j in range(k):
-            top = maxnum(top, np.float64(row[j]))
+            top_z = maxnum(top_z, row[j])
+        top = np.float64(top_z)
         s = 0.0
         t = 0.0
         u = 0.0
@@ -156,16 +164,16 @@ def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, l
         a = np.int32(k)
         ties = np.int32(0)
         for j in range(k):
-            at_top = np.float64(row[j]) == top
+            at_top = row[j] == top_z
             a = min(a, np.int32(j) if at_top else np.int32(k))
             ties += np.int32(at_top)
         a = min(a, np.int32(k - 1))
         # runner-up: the top again when it is tied, else the largest value below it
-        runner = -np.inf
+        runner_z = neg_inf
         for j in range(k):
-            x = np.float64(row[j])
-            runner = maxnum(runner, x if x < top else -np.inf)
-        g = 0.0 if ties > 1 else (runner - top) * beta
+            x = row[j]
+            runner_z = maxnum(runner_z, x if x < top_z else neg_inf)
+        g = 0.0 if ties > 1 else (np.float64(runner_z) - top) * beta
         log_s = math.log(s)
         pred[i] = a
         conf[i] = 1.0 / s
@@ -176,13 +184,14 @@ def scores_kernel(z, y, has_y, beta, pred, conf, ent, margin, lmargin, energy, l
         energy[i] = -(top * beta + log_s) / beta
         if has_y:
             yi = y[i]
-            zy = np.float64(row[yi])
+            zy_z = row[yi]
+            zy = np.float64(zy_z)
             # one loop over the whole row (two loops split at the label vectorise worse); ties: an equal
             # logit at a lower index ranks above the label (as argmax), the label itself never counts
-            above = 0
+            above = np.int32(0)
             for j in range(k):
-                x = np.float64(row[j])
-                above += (x > zy) | ((x == zy) & (j < yi))
+                x = row[j]
+                above += np.int32((x > zy_z) | ((x == zy_z) & (j < yi)))
             lp = (zy - top) * beta - log_s
             py = math.exp(lp)
             logptrue[i] = lp

@@ -203,6 +203,21 @@ def _scores_numpy(z: np.ndarray, y: np.ndarray | None, beta: float, out: dict[st
     return nonfinite
 
 
+_LABEL_F64 = ("true_log_probability", "true_probability", "brier")
+_INTEGER_COLUMNS = ("predicted", "true_rank")
+
+
+def _output_columns(n: int, names: list[str]) -> dict[str, np.ndarray]:
+    """One empty 8-byte column of length ``n`` per name (int64 for the integer scores, else float64).
+
+    The columns are cut from one allocation: a single large block is mapped fresh with huge pages
+    (numpy advises them for large arrays), where a column each can come from the heap's 4 KiB pages,
+    whose first writes fault one page at a time.
+    """
+    block = np.empty((len(names), n), dtype=np.float64)
+    return {name: block[i].view(np.int64) if name in _INTEGER_COLUMNS else block[i] for i, name in enumerate(names)}
+
+
 def sample_scores(
     logits: ArrayLike,
     labels: ArrayLike | None = None,
@@ -247,13 +262,7 @@ def sample_scores(
     t = check_temperature(temperature)
     beta = 1.0 / t
     f64 = ["confidence", "entropy", "margin", "logit_margin", "energy"]
-    out: dict[str, np.ndarray] = {name: np.empty(n, dtype=np.float64) for name in f64}
-    out["predicted"] = np.empty(n, dtype=np.int64)
-    if y is not None:
-        out["true_log_probability"] = np.empty(n, dtype=np.float64)
-        out["true_probability"] = np.empty(n, dtype=np.float64)
-        out["brier"] = np.empty(n, dtype=np.float64)
-        out["true_rank"] = np.empty(n, dtype=np.int64)
+    out = _output_columns(n, [*f64, "predicted"] + ([] if y is None else [*_LABEL_F64, "true_rank"]))
     nonfinite = 0
     if _pick(backend) == "numba":
         nb = _numba()
@@ -266,7 +275,7 @@ def sample_scores(
                 for name in ("true_log_probability", "true_probability", "brier")
             ]
             rank = out["true_rank"][rows] if has_y else np.empty(1, dtype=np.int64)
-            nonfinite += nb.scores_kernel(zc, yy, has_y, beta, *per_row, *label_cols, rank)
+            nonfinite += nb.scores_kernel(zc, yy, has_y, beta, *per_row, *label_cols, rank, zc.dtype.type(-np.inf))
     else:
         with np.errstate(invalid="ignore"):  # a non-finite row's NaN is counted, then reported below
             nonfinite = _scores_numpy(z, y, beta, out)
