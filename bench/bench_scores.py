@@ -12,10 +12,11 @@ Baselines:
 - torch: ``torch.log_softmax`` + entropy + ``torch.topk(2)`` on the CPU, when torch is installed.
 
 Targets (checked and printed, never asserted in unit tests): the per-sample
-scores *including the frame's own validation* (building the frame, which checks
-every value for NaN and infinities, then ``sample_scores``) within 4x of the
+scores *including the frame's own validation* (building the frame, whose first
+scoring pass at its temperature checks every value for NaN and infinities and is
+kept, then ``sample_scores``, which finds those scores cached) within 4x of the
 floor, both for a frame that shares the caller's matrix and for one that copies
-it (the copy is checked as it is made, in one pass); ``LogitFrame.scores()`` (a DataFrame)
+it (the copy is a pass of its own before the scores); ``LogitFrame.scores()`` (a DataFrame)
 within 6x and at least 10x faster than the naive composition; the temperature
 fit within 15 floor passes; peak memory of ``scores()`` under 1.5x the logit
 matrix. The timings are best-of-``--repeat`` wall times, the candidates and the
@@ -130,7 +131,7 @@ def main() -> None:
     rows: list[tuple[str, float]] = [("floor: z.sum(axis=1)", floor)]
     rows.append(("finiteness check alone (find_nonfinite_rows)", turns["nonfinite"]))
     rows.append(("LogitFrame(copy=False).sample_scores(): input shared", t_shared))
-    rows.append(("LogitFrame(copy=True).sample_scores(): a checked copy, then the scores", t_copied))
+    rows.append(("LogitFrame(copy=True).sample_scores(): a copy, then the scores", t_copied))
     rows.append(("  baseline: np.array copy, check_logits, sample_scores", turns["separate"]))
     t_arrays = turns["arrays"]
     rows.append((f"analysis.sample_scores ({scores_module.available_backends()[0]}, checks finiteness)", t_arrays))

@@ -128,3 +128,37 @@ def test_a_copying_frame_keeps_its_numbers_when_the_caller_writes_on(check_backe
     np.testing.assert_allclose(s.true_probability[labelled], p[labelled, y[labelled]], rtol=1e-12)
     assert np.isnan(s.true_probability[~labelled]).all() and (s.true_rank[~labelled] == -1).all()
     assert not s.correct[~labelled].any()
+
+
+@pytest.mark.parametrize("min_bytes", [0, 64 << 20])
+def test_the_frame_names_the_same_rows_whether_its_scoring_pass_or_a_separate_check_finds_them(
+    monkeypatch, min_bytes
+):
+    # with room for its scores the frame finds non-finite rows in its first scoring pass; with none (a
+    # cache budget of 0 bytes for these K = 2 float16 logits) the separate check does; the error is the same
+    monkeypatch.setattr(LogitFrame, "_CACHE_MIN_BYTES", min_bytes)
+    z = _poisoned(np.float16, 2, seed=5)
+    bad = np.flatnonzero(~np.isfinite(z).all(axis=1))  # reference: numpy.isfinite
+    with pytest.raises(NonFiniteError, match=f"in {bad.size} of 64 rows: rows {', '.join(map(str, bad[:3]))}"):
+        LogitFrame(z, labels=np.zeros(64, dtype=int))
+    clean = np.nan_to_num(z, nan=0.0, posinf=1.0, neginf=-1.0)
+    frame = LogitFrame(clean, labels=np.zeros(64, dtype=int))
+    p = np.exp(clean - clean.max(axis=1, keepdims=True).astype(np.float64))
+    np.testing.assert_allclose(frame.sample_scores().confidence, (p / p.sum(axis=1, keepdims=True)).max(axis=1))
+
+
+def test_a_frames_scores_are_read_only_so_a_caller_cannot_change_later_answers():
+    from scipy.special import softmax
+
+    rng = np.random.default_rng(4)
+    z = rng.normal(size=(300, 5))
+    y = rng.integers(0, 5, 300)
+    y[::7] = -1  # partly labelled: the blanked columns are read-only too
+    frame = LogitFrame(z, labels=y)
+    s = frame.sample_scores()
+    for name, arr in s.to_dict().items():
+        with pytest.raises(ValueError, match="read-only"):
+            arr[0] = 0
+        assert not arr.flags.writeable, name
+    p = softmax(z, axis=1)  # reference: scipy.special.softmax
+    np.testing.assert_allclose(frame.sample_scores().confidence, p.max(axis=1), rtol=1e-12)

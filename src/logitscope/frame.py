@@ -6,7 +6,7 @@ import os
 import warnings
 from collections import OrderedDict
 from collections.abc import Iterator, Sequence
-from contextlib import contextmanager
+from contextlib import contextmanager, nullcontext
 from dataclasses import dataclass
 from typing import Any, Literal
 
@@ -16,7 +16,14 @@ from numpy.typing import ArrayLike
 
 from . import analysis as an
 from .analysis._blocks import block_slices
-from .analysis._validation import _to_numpy, assume_valid, check_labels, check_logits, check_temperature
+from .analysis._validation import (
+    _to_numpy,
+    assume_valid,
+    check_labels,
+    check_logits,
+    check_temperature,
+    checks_enabled,
+)
 from .analysis.softmax import result_dtype
 from .errors import (
     ClassNameError,
@@ -194,6 +201,23 @@ def _classes_from_labels(labels: Any, default: tuple[str, ...]) -> tuple[str, ..
 _PROBE_ROWS = 1024
 
 
+def _checked_by_scoring(z: np.ndarray) -> bool:
+    """Whether a new frame checks ``z`` for NaN and infinities in its first scoring pass rather than alone.
+
+    The per-sample scores find non-finite rows as they go (:func:`logitscope.analysis.sample_scores`),
+    so a frame that keeps its scores anyway computes them when it is made, and the check costs no pass
+    of its own. That holds when the numba kernel runs (the numpy path is many passes) and one
+    temperature's scores fit the score cache (:meth:`LogitFrame._cache_room`); otherwise the separate
+    check, a fraction of a pass, is the cheaper one.
+    """
+    if z.ndim != 2 or z.dtype.kind != "f" or z.shape[0] == 0 or z.shape[1] < 2:
+        return False
+    return (
+        an.available_backends()[0] == "numba"
+        and LogitFrame._cache_room(z.shape[0], z.nbytes, LogitFrame._CACHE_MIN_BYTES) >= 1
+    )
+
+
 def _looks_like_probabilities(z: np.ndarray) -> bool:
     """True when every row is non-negative and sums to one (a few rows are looked at first, so logits cost little)."""
     atol = 1e-6 if z.dtype == np.float64 else 1e-3
@@ -216,6 +240,14 @@ class LogitFrame:
     holds its own read-only copies of every array it is given, so changing the
     caller's array (an in-place operation on a torch tensor, say) cannot
     change the frame.
+
+    Every logit is checked for NaN and infinities when the frame is made. The
+    check rides on the per-sample scores at the frame's temperature, which the
+    frame then computes at once and keeps (read-only, like every score it
+    caches): the scoring pass finds such rows as it goes, so the check costs no
+    pass of its own. Where one temperature's scores would not fit the score
+    cache (a quarter of the logit matrix, at least 64 MiB) or numba is absent,
+    a separate check runs instead, a fraction of one pass over the matrix.
 
     Parameters
     ----------
@@ -266,6 +298,8 @@ class LogitFrame:
     #: (at least one temperature is always kept): a quarter of the logit matrix, or 64 MiB for a small one.
     _CACHE_SIZE = 4
     _CACHE_MIN_BYTES = 64 << 20
+    #: The scores of one temperature per row: ten 8-byte columns and a boolean one.
+    _SCORE_BYTES_PER_ROW = 8 * 10 + 1
 
     def __init__(
         self,
@@ -296,7 +330,9 @@ class LogitFrame:
                 "probabilities of class 1 as LogitFrame.from_probabilities(np.column_stack([1 - p, p]))"
             )
         owned = raw is not given or isinstance(logits, list | tuple)  # made here: a new array already
-        z = check_logits(raw, copy=copy and not owned)  # a copy is checked as it is made, in the same pass
+        by_scoring = _checked_by_scoring(raw)
+        # a copy is checked as it is made, in the same pass; a matrix checked by scoring is checked below
+        z = check_logits(raw, copy=copy and not owned, check_finite=not by_scoring)
         n, k = z.shape
         if source == "logits" and _looks_like_probabilities(z):
             warnings.warn(
@@ -316,6 +352,8 @@ class LogitFrame:
         self._source = source
         self._cache: OrderedDict[float, an.SampleScores] = OrderedDict()
         self._curves: dict[float, tuple[np.ndarray | None, an.RiskCoverage]] | None = None
+        if by_scoring and checks_enabled():
+            self._score(self._temperature, check=True)  # raises NonFiniteError naming the rows
 
     # ------------------------------------------------------------------ validation
 
@@ -761,14 +799,20 @@ class LogitFrame:
         if hit is not None:
             self._cache.move_to_end(t)
             return hit
+        return self._score(t, check=False)
+
+    def _score(self, t: float, check: bool) -> an.SampleScores:
+        """Compute and cache the scores at ``t``; with ``check`` the same pass checks every value is finite."""
         keep = self._cache_slots()
         while self._cache and len(self._cache) >= keep:  # make room first: old and new scores never coexist
             self._cache.popitem(last=False)
         y = self._labels
-        with assume_valid():
+        with nullcontext() if check else assume_valid():
             s = an.sample_scores(self._logits, None if y is None else self._labels_for_analysis(), temperature=t)
         if y is not None and not self.fully_labelled:
             s = _blank_unlabelled(s, y < 0)
+        for arr in s.to_dict().values():
+            arr.flags.writeable = False  # cached: a caller writing into them would change every later answer
         self._cache[t] = s
         return s
 
@@ -802,9 +846,14 @@ class LogitFrame:
     def _cache_slots(self) -> int:
         """How many temperatures' scores the cache keeps: ``_CACHE_SIZE``, fewer when they would take more
         than a quarter of the logit matrix (or ``_CACHE_MIN_BYTES``), never none."""
-        per_row = 8 * 10 + 1  # the scores of one temperature: ten 8-byte columns and a boolean one
-        budget = max(self._logits.nbytes // 4, self._CACHE_MIN_BYTES)
-        return int(max(1, min(self._CACHE_SIZE, budget // max(1, per_row * self.n_samples))))
+        room = self._cache_room(self.n_samples, self._logits.nbytes, self._CACHE_MIN_BYTES)
+        return int(max(1, min(self._CACHE_SIZE, room)))
+
+    @classmethod
+    def _cache_room(cls, n: int, nbytes: int, min_bytes: int) -> int:
+        """How many temperatures' scores of ``n`` rows fit a budget of a quarter of ``nbytes``, or ``min_bytes``."""
+        budget = max(nbytes // 4, min_bytes)
+        return int(budget // max(1, cls._SCORE_BYTES_PER_ROW * n))
 
     def probabilities(self, temperature: float | None = None) -> np.ndarray:
         """``softmax(z / T)`` as an (N, K) array (float32 for float16/32 logits)."""
@@ -1065,22 +1114,14 @@ def _decision_logits_matching(estimator: Any, X: Any, p: np.ndarray) -> np.ndarr
 
 
 def _blank_unlabelled(s: an.SampleScores, missing: np.ndarray) -> an.SampleScores:
-    """Scores with the label-dependent ones of unlabelled rows blanked (NaN, rank -1, not correct)."""
-    import dataclasses
-
-    changes: dict[str, Any] = {}
+    """The fresh scores ``s`` with the label-dependent ones of unlabelled rows blanked in place (NaN, rank -1,
+    not correct); ``s`` must be new arrays that nothing else holds yet."""
     for name in ("true_probability", "true_log_probability", "brier"):
         arr = getattr(s, name)
         if arr is not None:
-            arr = np.array(arr, copy=True)
             arr[missing] = np.nan
-            changes[name] = arr
     if s.true_rank is not None:
-        rank = np.array(s.true_rank, copy=True)
-        rank[missing] = -1
-        changes["true_rank"] = rank
+        s.true_rank[missing] = -1
     if s.correct is not None:
-        ok = np.array(s.correct, copy=True)
-        ok[missing] = False
-        changes["correct"] = ok
-    return dataclasses.replace(s, **changes)
+        s.correct[missing] = False
+    return s
