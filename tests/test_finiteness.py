@@ -131,9 +131,7 @@ def test_a_copying_frame_keeps_its_numbers_when_the_caller_writes_on(check_backe
 
 
 @pytest.mark.parametrize("min_bytes", [0, 64 << 20])
-def test_the_frame_names_the_same_rows_whether_its_scoring_pass_or_a_separate_check_finds_them(
-    monkeypatch, min_bytes
-):
+def test_the_frame_names_the_same_rows_whether_its_scoring_pass_or_a_separate_check_finds_them(monkeypatch, min_bytes):
     # with room for its scores the frame finds non-finite rows in its first scoring pass; with none (a
     # cache budget of 0 bytes for these K = 2 float16 logits) the separate check does; the error is the same
     monkeypatch.setattr(LogitFrame, "_CACHE_MIN_BYTES", min_bytes)
