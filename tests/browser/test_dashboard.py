@@ -63,6 +63,7 @@ print(json.dumps({
     "gallery": int(dash.gallery.n_shown), "sk_confusion": confusion_matrix(y, pred).tolist(),
     "labels": y[rows].tolist(), "pred": pred[rows].tolist(),
     "pairs": [[q.true, q.other, q.count] for q in dash.confusion.pairs],
+    "bundled": dash.state.bundle.ready,
 }))"""
 
 
@@ -141,6 +142,9 @@ def test_brush_and_clicks_select_in_python(jupyter_server, notebook_dir, browser
     (ax_, bx_), (ay_, by_) = axis_maps(cell(page, 0).locator(".logitscope-scatter").first)
     st = _state(page, 1)
     assert st["origin"] == "score scatter"
+    # the page loaded the module that applies a selection's updates as one message: every view
+    # below follows the selections through it (the widgets send nothing of their own)
+    assert st["bundled"] is True
     # the brush sent the extents of the dragged rectangle: its corners, read on the axes, within a pixel
     (bx0, bx1), (by0, by1) = st["box"]
     assert sorted([(c0 - bx_) / ax_, (c1 - bx_) / ax_]) == pytest.approx([bx0, bx1], abs=1.0 / abs(ax_))

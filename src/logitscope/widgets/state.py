@@ -56,6 +56,8 @@ class SharedState(traitlets.HasTraits):
         self._names: dict[str, str] = {"": "", "python": "Python"}
         self._counts: dict[str, int] = {}
         self._views: list[weakref.ref[Any]] = []
+        self._bundle: Any = None  # a SyncBundle, made when the first view registers
+        self._batching = False
         kwargs.setdefault("binning", Binning())
         super().__init__(rows=np.zeros(0, dtype=np.int64), temperature=float(temperature), **kwargs)
 
@@ -76,6 +78,10 @@ class SharedState(traitlets.HasTraits):
         self._names[token] = name
         if view is not None:
             self._views.append(weakref.ref(view))
+            if self._bundle is None:
+                from .bundle import SyncBundle
+
+                self._bundle = SyncBundle()
         return token
 
     @contextmanager
@@ -85,7 +91,9 @@ class SharedState(traitlets.HasTraits):
         The views' numbers are computed one after the other in the kernel; had each view's messages
         left as soon as they were made, the browser would redraw views while the kernel still computes
         others (two processes busy, and the server relaying the messages waits for a free core on a
-        small machine). Held, they leave in one burst, the first view's first, and the browser draws once.
+        small machine). Held, they leave together at the end, the first view's first: as one message
+        (:class:`~logitscope.widgets.bundle.SyncBundle`) once a page has loaded the module that applies
+        it, which the browser handles in one task and draws once; else one message per widget.
         :meth:`select` runs inside it; each view names its widgets in ``held_widgets()``.
 
         Examples
@@ -99,10 +107,24 @@ class SharedState(traitlets.HasTraits):
         alive = [v for v in (ref() for ref in self._views) if v is not None]
         self._views = [weakref.ref(v) for v in alive]
         held = [w for v in alive for w in v.held_widgets()]
-        with ExitStack() as stack:
-            for w in reversed(held):  # held contexts close last-in first-out: the first widget's message first
-                stack.enter_context(w.hold_sync())
-            yield
+        outermost = not self._batching
+        self._batching = True
+        try:
+            with ExitStack() as stack:
+                for w in reversed(held):  # held contexts close last-in first-out: the first widget's message first
+                    stack.enter_context(w.hold_sync())
+                yield
+                if outermost and self._bundle is not None:
+                    self._bundle.send_held(held)  # one message for all, once a page can apply it
+        finally:
+            if outermost:
+                self._batching = False
+
+    @property
+    def bundle(self) -> Any:
+        """The :class:`~logitscope.widgets.bundle.SyncBundle` that sends a selection's updates as one
+        message (None until a view registers); its ``ready`` says whether a page can apply them."""
+        return self._bundle
 
     def name_of(self, token: str) -> str:
         """The readable name behind an origin token (the token itself when unknown)."""
