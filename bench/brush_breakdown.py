@@ -10,7 +10,9 @@ main thread does:
   Jupyter server to the kernel and back);
 - ``first`` / ``last``: the first and the last widget message of the answer
   arrive, and how many there were and their bytes; before each, ``made``: when
-  the kernel made that message (its header's time, to the millisecond);
+  the kernel made that message (its header's time, to the millisecond). Once
+  the page has loaded the module that applies them (``SyncBundle``), one message
+  carries every view's update, so ``msgs`` is 1 and first is last;
 - ``done``: every view shows the selection (the same condition as the bench);
 - ``frame``: with ``--trace``, the longest main-thread task after the mouse-up
   and its style recalculation, layout and paint (milliseconds, with the number
