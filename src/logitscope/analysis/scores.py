@@ -270,10 +270,7 @@ def sample_scores(
         for rows, zc in _numba_blocks(z):
             yy = y[rows] if y is not None else np.zeros(1, dtype=np.int64)
             per_row = [out[name][rows] for name in ("predicted", *f64)]
-            label_cols = [
-                out[name][rows] if has_y else np.empty(1)
-                for name in ("true_log_probability", "true_probability", "brier")
-            ]
+            label_cols = [out[name][rows] if has_y else np.empty(1) for name in _LABEL_F64]
             rank = out["true_rank"][rows] if has_y else np.empty(1, dtype=np.int64)
             nonfinite += nb.scores_kernel(zc, yy, has_y, beta, *per_row, *label_cols, rank, zc.dtype.type(-np.inf))
     else:

@@ -12,7 +12,7 @@ from __future__ import annotations
 import weakref
 from collections.abc import Iterator
 from contextlib import ExitStack, contextmanager
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
 import numpy as np
 import traitlets
@@ -20,6 +20,9 @@ import traitlets
 from ..findings import Binning
 from ..parameters import check as check_parameter
 from ..rows import as_rows, rows_or_all
+
+if TYPE_CHECKING:
+    from .bundle import SyncBundle
 
 __all__ = ["SharedState", "as_rows", "rows_or_all"]
 
@@ -56,7 +59,7 @@ class SharedState(traitlets.HasTraits):
         self._names: dict[str, str] = {"": "", "python": "Python"}
         self._counts: dict[str, int] = {}
         self._views: list[weakref.ref[Any]] = []
-        self._bundle: Any = None  # a SyncBundle, made when the first view registers
+        self._bundle: SyncBundle | None = None  # made when the first view registers
         self._batching = False
         kwargs.setdefault("binning", Binning())
         super().__init__(rows=np.zeros(0, dtype=np.int64), temperature=float(temperature), **kwargs)
@@ -121,7 +124,7 @@ class SharedState(traitlets.HasTraits):
                 self._batching = False
 
     @property
-    def bundle(self) -> Any:
+    def bundle(self) -> SyncBundle | None:
         """The :class:`~logitscope.widgets.bundle.SyncBundle` that sends a selection's updates as one
         message (None until a view registers); its ``ready`` says whether a page can apply them."""
         return self._bundle
